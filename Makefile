@@ -1,0 +1,31 @@
+# levelfield: `make demo` and `make test` work on a fresh machine (they create .venv when absent).
+PYTHON ?= python3
+VENV ?= .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.levelfield-installed
+DEMO ?= demo-workspace
+LF := $(VENV)/bin/levelfield -w $(DEMO)
+
+.PHONY: demo test setup bench clean
+
+setup: $(STAMP)
+
+$(STAMP): pyproject.toml
+	@$(PYTHON) -c 'import sys; sys.exit("levelfield needs Python 3.11 or newer, found " + sys.version.split()[0]) if sys.version_info < (3, 11) else None'
+	@test -x $(PY) || $(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --disable-pip-version-check -e '.[test]'
+	@touch $(STAMP)
+
+demo: $(STAMP)
+	rm -rf $(DEMO)
+	$(LF) init
+	cp sample_history/levelfield.toml $(DEMO)/levelfield.toml
+	$(LF) load sample_history/results/*.csv
+	$(LF) status
+	@echo "demo workspace: $(abspath $(DEMO))"
+
+test: $(STAMP)
+	$(PY) -m pytest
+
+clean:
+	rm -rf $(DEMO) .pytest_cache

@@ -1,0 +1,244 @@
+"""The workspace configuration (``levelfield.toml``): a schema of options, each with its
+default and help, validated all at once so the user sees every problem in one go.
+
+The ``[parties.a]`` / ``[parties.b]`` tables are a fixed contract (other tools write them):
+``name``, ``labels`` and ``colour``.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable
+
+from monitor.errors import ConfigError
+
+_COLOUR = re.compile(r"^#[0-9a-fA-F]{6}$")
+
+
+@dataclass(frozen=True)
+class Option:
+    section: str
+    key: str
+    default: Any
+    help: str
+    check: Callable[[Any], str | None] = field(default=lambda v: None, compare=False)
+
+    @property
+    def name(self) -> str:
+        return f"{self.section}.{self.key}"
+
+
+def _typed(kind, *, low=None, high=None, choices=None):
+    def check(value):
+        if kind is float and isinstance(value, int) and not isinstance(value, bool):
+            value = float(value)
+        if not isinstance(value, kind) or (kind is int and isinstance(value, bool)):
+            return f"must be {kind.__name__}, got {type(value).__name__} {value!r}"
+        if choices is not None and value not in choices:
+            return f"must be one of {', '.join(map(repr, choices))}, got {value!r}"
+        if low is not None and value < low:
+            return f"must be at least {low}, got {value!r}"
+        if high is not None and value > high:
+            return f"must be at most {high}, got {value!r}"
+        return None
+
+    return check
+
+
+def _labels(value):
+    if not isinstance(value, list) or not value or not all(isinstance(v, str) and v for v in value):
+        return "must be a non-empty list of non-empty strings"
+    return None
+
+
+def _colour(value):
+    if not isinstance(value, str) or not _COLOUR.match(value):
+        return f'must be a colour like "#1b7f79", got {value!r}'
+    return None
+
+
+OPTIONS: list[Option] = [
+    Option("parties.a", "name", "Party A", "display name of major party a", _typed(str)),
+    Option("parties.a", "labels", ["A"], "labels in native files that mean party a", _labels),
+    Option("parties.a", "colour", "#1b7f79", "chart colour of party a", _colour),
+    Option("parties.b", "name", "Party B", "display name of major party b", _typed(str)),
+    Option("parties.b", "labels", ["B"], "labels in native files that mean party b", _labels),
+    Option("parties.b", "colour", "#c9861a", "chart colour of party b", _colour),
+    Option(
+        "uncontested", "policy", "impute",
+        "how contests with one major party absent enter the measures: impute | exclude | none",
+        _typed(str, choices=("impute", "exclude", "none")),
+    ),
+    Option(
+        "uncontested", "winner_share", 0.75,
+        "two-party share given to the winner of an uncontested contest under policy = impute",
+        _typed(float, low=0.5, high=1.0),
+    ),
+    Option(
+        "measures", "competitive_window", 0.05,
+        "a district is competitive when |share - 0.5| is below this (common practice)",
+        _typed(float, low=0.0, high=0.5),
+    ),
+    Option(
+        "measures", "lopsided_variant", "welch", "t-test of the lopsided-margins test: welch | pooled",
+        _typed(str, choices=("welch", "pooled")),
+    ),
+    Option(
+        "measures", "symmetry_band", 0.05,
+        "symmetry_bias averages S(v) - (1 - S(1 - v)) over 0.5 +- this band",
+        _typed(float, low=0.0, high=0.5),
+    ),
+    Option(
+        "measures", "interval_draws", 1000, "simulated elections behind each 95% interval",
+        _typed(int, low=10, high=1_000_000),
+    ),
+    Option(
+        "measures", "noise_sd", 0.03,
+        "SD of the district-level two-party share noise used for intervals",
+        _typed(float, low=0.0, high=0.5),
+    ),
+    Option("measures", "seed", 20240101, "random seed of the interval simulations", _typed(int, low=0)),
+    Option(
+        "load", "max_votes_per_row", 50_000_000,
+        "a vote count above this is refused as implausible",
+        _typed(int, low=1),
+    ),
+    Option(
+        "load", "max_decompressed_mb", 512,
+        "a gzipped file that decompresses beyond this many MB is refused",
+        _typed(int, low=1),
+    ),
+    Option(
+        "schedule", "poll_seconds", 60, "how often the watcher polls the inbox",
+        _typed(int, low=1, high=86_400),
+    ),
+    Option(
+        "schedule", "nightly", "03:00", "local time (HH:MM) of the nightly full verification",
+        lambda v: None if isinstance(v, str) and re.match(r"^([01]\d|2[0-3]):[0-5]\d$", v)
+        else f'must be a time like "03:00", got {v!r}',
+    ),
+]
+
+_BY_NAME = {opt.name: opt for opt in OPTIONS}
+SECTIONS = list(dict.fromkeys(opt.section for opt in OPTIONS))
+
+
+@dataclass(frozen=True)
+class Party:
+    code: str
+    name: str
+    labels: tuple[str, ...]
+    colour: str
+
+
+class Config:
+    """Validated configuration: ``config["uncontested.policy"]`` or the typed helpers."""
+
+    def __init__(self, values: dict[str, Any], path: Path | None = None):
+        self._values = values
+        self.path = path
+
+    def __getitem__(self, name: str) -> Any:
+        return self._values[name]
+
+    def party(self, code: str) -> Party:
+        return Party(
+            code,
+            self[f"parties.{code}.name"],
+            tuple(self[f"parties.{code}.labels"]),
+            self[f"parties.{code}.colour"],
+        )
+
+    def label_codes(self) -> dict[str, str]:
+        """Map each configured label (case-folded, trimmed) to its party code."""
+        out = {}
+        for code in ("a", "b"):
+            for label in self[f"parties.{code}.labels"]:
+                out[normalise_label(label)] = code
+        return out
+
+    @property
+    def policy(self) -> str:
+        """The uncontested policy as stored with every measure, e.g. ``impute:0.75``."""
+        policy = self["uncontested.policy"]
+        if policy == "impute":
+            return f"impute:{self['uncontested.winner_share']:g}"
+        return policy
+
+
+def normalise_label(label: str) -> str:
+    return " ".join(label.split()).casefold()
+
+
+def load_config(path: Path | None) -> Config:
+    """Read ``path`` (missing file = all defaults), validate everything, raise once."""
+    raw: dict[str, Any] = {}
+    if path is not None and path.exists():
+        try:
+            raw = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+        except tomllib.TOMLDecodeError as exc:
+            raise ConfigError(f"{path}: not valid TOML: {exc}") from None
+        except UnicodeDecodeError as exc:
+            raise ConfigError(f"{path}: not valid UTF-8 ({exc.reason} at byte {exc.start})") from None
+    values = {opt.name: opt.default for opt in OPTIONS}
+    problems: list[str] = []
+    for name, value in _flatten(raw):
+        opt = _BY_NAME.get(name)
+        if opt is None:
+            hint = difflib.get_close_matches(name, list(_BY_NAME), n=1)
+            problems.append(f"unknown option {name!r}" + (f" (did you mean {hint[0]!r}?)" if hint else ""))
+            continue
+        message = opt.check(value)
+        if message:
+            problems.append(f"{name} {message}")
+            continue
+        values[name] = float(value) if isinstance(opt.default, float) else value
+    overlap = {normalise_label(x) for x in values["parties.a.labels"]} & {
+        normalise_label(x) for x in values["parties.b.labels"]
+    }
+    if overlap:
+        problems.append(f"labels {sorted(overlap)} are listed for both parties.a and parties.b")
+    if problems:
+        where = str(path) if path else "configuration"
+        raise ConfigError(f"{where}: " + "; ".join(problems))
+    return Config(values, path)
+
+
+def _flatten(table: dict[str, Any], prefix: str = ""):
+    for key, value in table.items():
+        name = f"{prefix}.{key}" if prefix else key
+        if isinstance(value, dict):
+            yield from _flatten(value, name)
+        else:
+            yield name, value
+
+
+def default_toml() -> str:
+    """The commented default ``levelfield.toml`` written by ``levelfield init``."""
+    lines = [
+        "# levelfield workspace configuration.",
+        "# Every option is shown with its default; delete a line to go back to the default.",
+        "# The [parties.a] and [parties.b] tables are read by other tools too: keep their keys.",
+        "# Signed measures are positive when they favour party a.",
+    ]
+    for section in SECTIONS:
+        lines.append("")
+        lines.append(f"[{section}]")
+        for opt in (o for o in OPTIONS if o.section == section):
+            lines.append(f"# {opt.help}")
+            lines.append(f"{opt.key} = {_toml_value(opt.default)}")
+    return "\n".join(lines) + "\n"
+
+
+def _toml_value(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(value, list):
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    return repr(value)

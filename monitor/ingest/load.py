@@ -1,0 +1,271 @@
+"""Loading one file into the store: parse, validate, then write every unit in one transaction.
+
+A file delivers whole (cycle, state, chamber) units. The same bytes twice change nothing. A unit
+that is already stored with other contents is a correction: the new contests become current,
+the old ones stay in history (``units.superseded_by``), and the report says what changed.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import json
+from collections import Counter, defaultdict
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+
+import pandas as pd
+import sqlite_utils
+
+from monitor.config import Config
+from monitor.errors import DataError, Problem, UsageError
+from monitor.ingest.mapping import Mapping, parse_mapped, sum_candidate_lines
+from monitor.ingest.native import parse_native
+from monitor.ingest.reader import csv_rows, decode, decompressed, read_raw
+from monitor.ingest.records import ParseContext, Record
+from monitor.ingest.validate import check_records
+from monitor.reduce import reduce_contests
+from store import queries, transaction
+
+
+@dataclass
+class UnitChange:
+    cycle: int
+    state: str
+    chamber: str
+    action: str  # new | corrected | unchanged
+    contests: int
+    changes: list[str] = field(default_factory=list)
+
+
+@dataclass
+class LoadReport:
+    file: str
+    sha256: str
+    outcome: str  # loaded | already loaded | dry run
+    format: str = ""
+    load_id: int | None = None
+    rows_read: int = 0
+    rows_accepted: int = 0
+    rows_rejected: int = 0
+    rows_filtered: int = 0
+    units: list[UnitChange] = field(default_factory=list)
+    other_labels: dict[str, int] = field(default_factory=dict)
+    skipped: list[str] = field(default_factory=list)
+    note: str = ""
+
+    def count(self, action: str) -> int:
+        return sum(1 for u in self.units if u.action == action)
+
+    def lines(self) -> list[str]:
+        head = f"{self.file}: {self.outcome}"
+        if self.load_id is not None:
+            head += f" (load #{self.load_id})"
+        out = [head]
+        if self.note:
+            out.append(f"  {self.note}")
+        if self.outcome == "already loaded":
+            return out
+        out.append(f"  format {self.format}; rows read {self.rows_read}, accepted {self.rows_accepted}, "
+                   f"rejected {self.rows_rejected}" + (f", filtered out {self.rows_filtered}" if self.rows_filtered else ""))
+        out.append(f"  units: {self.count('new')} new, {self.count('corrected')} corrected, "
+                   f"{self.count('unchanged')} unchanged")
+        for unit in self.units:
+            if unit.action == "corrected":
+                out.append(f"  correction {unit.cycle} {unit.state} {unit.chamber}:")
+                out.extend(f"    {c}" for c in unit.changes or ["no change in seats, winners or vote totals"])
+        if self.other_labels:
+            labels = ", ".join(f"{k!r} ({v})" for k, v in sorted(self.other_labels.items()))
+            out.append(f"  party labels counted as 'other': {labels}")
+        if self.skipped:
+            out.append(f"  skipped {len(self.skipped)} problem row(s):")
+            out.extend(f"    {s}" for s in self.skipped)
+        return out
+
+    def to_json(self) -> str:
+        return json.dumps(asdict(self), sort_keys=True)
+
+
+def load_file(
+    db: sqlite_utils.Database,
+    path: Path,
+    config: Config,
+    *,
+    mapping: Mapping | None = None,
+    source: str | None = None,
+    dry_run: bool = False,
+    skip_bad_rows: bool = False,
+    encoding: str | None = None,
+    now: dt.datetime | None = None,
+) -> LoadReport:
+    """Load ``path``; raise :class:`DataError` (nothing written) when it cannot load whole."""
+    try:
+        raw = read_raw(path)
+    except FileNotFoundError:
+        raise UsageError(f"{path}: no such file") from None
+    except IsADirectoryError:
+        raise UsageError(f"{path}: is a folder, not a file") from None
+    except OSError as exc:
+        raise UsageError(f"{path}: cannot read ({exc.strerror})") from None
+    report = LoadReport(file=raw.name, sha256=raw.sha256, outcome="dry run" if dry_run else "loaded")
+    earlier = queries.load_by_sha256(db, raw.sha256)
+    if earlier is not None:
+        report.outcome = "already loaded"
+        report.load_id = earlier["id"]
+        report.note = (f"the same bytes (sha256 {raw.sha256[:12]}...) were loaded as load #{earlier['id']} "
+                       f"on {earlier['loaded_at']}; nothing changed")
+        return report
+
+    content = decompressed(raw, config["load.max_decompressed_mb"] * 2**20)
+    text = decode(raw.name, content, encoding or (mapping.encoding if mapping else None))
+    rows = csv_rows(raw.name, text, mapping.delimiter if mapping else ",")
+    header = next(rows, None)
+    if header is None or not any(c.strip() for c in header[1]):
+        raise DataError([Problem(raw.name, 1, None, "the file is empty: no header row")])
+    ctx = ParseContext(raw.name, config["load.max_votes_per_row"], config.label_codes())
+    if mapping is None:
+        report.format, records, problems, report.rows_read = parse_native(ctx, header[1], rows)
+    else:
+        report.format = "mapped"
+        records, problems, report.rows_read, report.rows_filtered = parse_mapped(ctx, mapping, header[1], rows)
+    cross, bad = check_records(raw.name, records)
+    problems = sorted(problems + cross, key=lambda p: p.row or 0)
+    if problems and not skip_bad_rows:
+        raise DataError(problems, f"{len(problems)} problem(s) in {raw.name}; nothing was loaded "
+                                  "(fix the file, or pass --skip-bad-rows to load the rest)")
+    if bad:
+        records = [r for i, r in enumerate(records) if i not in bad]
+    report.skipped = [str(p) for p in problems]
+    report.rows_accepted = len({r.row for r in records})
+    report.rows_rejected = report.rows_read - report.rows_filtered - report.rows_accepted
+    if mapping is not None and mapping.candidate_lines == "sum":
+        records = sum_candidate_lines(records)
+    if not records:
+        raise DataError(problems or [Problem(raw.name, None, None, "no result rows to load")],
+                        f"{raw.name}: no rows left to load; nothing was loaded")
+    report.other_labels = dict(ctx.other_labels)
+
+    stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
+    units = _group_units(records)
+    try:
+        with transaction(db) as conn:
+            _write(conn, raw, mapping, source, stamp, units, report)
+            if dry_run:
+                raise _DryRun()
+    except _DryRun:
+        report.load_id = None
+    return report
+
+
+class _DryRun(Exception):
+    """Raised inside the transaction so that a dry run rolls back everything it wrote."""
+
+
+def _group_units(records: list[Record]) -> dict[tuple, list[Record]]:
+    units: dict[tuple, list[Record]] = defaultdict(list)
+    for rec in records:
+        units[rec.unit].append(rec)
+    return dict(sorted(units.items()))
+
+
+def _content_hash(records: list[Record]) -> str:
+    lines = sorted(
+        f"{r.district}\x1f{int(r.special)}\x1f{r.seats}\x1f{r.party}\x1f{r.party_code}\x1f{r.candidate}"
+        f"\x1f{r.votes}\x1f{int(r.writein)}\x1f{r.status}"
+        for r in records
+    )
+    return hashlib.sha256("\n".join(lines).encode()).hexdigest()
+
+
+def _reduce_records(records: list[Record]) -> tuple[pd.DataFrame, dict[tuple, int]]:
+    """Reduce a unit's records; contest ids are positions in the returned key map."""
+    keys: dict[tuple, int] = {}
+    rows = []
+    for rec in records:
+        cid = keys.setdefault((rec.district, rec.special), len(keys))
+        rows.append((cid, rec.party_code, rec.candidate, rec.votes))
+    votes = pd.DataFrame(rows, columns=["contest_id", "party_code", "candidate", "votes"])
+    seats = {}
+    for rec in records:
+        seats[keys[(rec.district, rec.special)]] = rec.seats
+    contests = pd.DataFrame({"contest_id": list(seats), "seats": list(seats.values())})
+    return reduce_contests(votes, contests).set_index("contest_id"), keys
+
+
+def _write(conn, raw, mapping, source, stamp, units, report: LoadReport) -> None:
+    current = queries.current_units(conn, units)
+    load_id = queries.insert_load(conn, {
+        "file_name": raw.name, "sha256": raw.sha256, "bytes": raw.size, "format": report.format,
+        "mapping_sha256": mapping.sha256 if mapping else None,
+        "source": source or (mapping.source if mapping else None),
+        "rows_read": report.rows_read, "rows_accepted": report.rows_accepted,
+        "rows_rejected": report.rows_rejected, "loaded_at": stamp, "outcome": "loading",
+    })
+    report.load_id = load_id
+    queries.ensure_keys(conn, "cycles", "year", sorted({k[0] for k in units}))
+    queries.ensure_keys(conn, "states", "code", sorted({k[1] for k in units}))
+    queries.ensure_keys(conn, "chambers", "code", sorted({k[2] for k in units}))
+    superseded = []
+    contest_id = queries.next_id(conn, "contests")
+    for key, records in units.items():
+        digest = _content_hash(records)
+        before = current.get(key)
+        reduced, contest_keys = _reduce_records(records)
+        change = UnitChange(*key, action="new", contests=len(contest_keys))
+        report.units.append(change)
+        if before is not None and before["content_sha256"] == digest:
+            change.action = "unchanged"
+            continue
+        if before is not None:
+            change.action = "corrected"
+            change.changes = _describe_changes(conn, before["id"], reduced, contest_keys)
+            superseded.append(before["load_id"])
+        unit_id = queries.insert_unit(conn, key, load_id, records[0].status, digest,
+                                      before["id"] if before else None)
+        ids = {ck: contest_id + i for ck, i in contest_keys.items()}
+        contest_id += len(ids)
+        seats = {(r.district, r.special): r.seats for r in records}
+        queries.insert_contests(conn, [
+            (cid, unit_id, ck[0], seats[ck], int(ck[1]), reduced.loc[i, "status"])
+            for (ck, cid), i in zip(ids.items(), contest_keys.values())
+        ])
+        queries.insert_votes(conn, [
+            (ids[(r.district, r.special)], r.party, r.party_code, r.candidate, r.votes, int(r.writein), r.row)
+            for r in records
+        ])
+    queries.update_load(conn, load_id, {
+        "units_new": report.count("new"), "units_corrected": report.count("corrected"),
+        "units_unchanged": report.count("unchanged"), "outcome": "loaded",
+        "supersedes": json.dumps(sorted(set(superseded))) if superseded else None,
+        "report": report.to_json(),
+    })
+
+
+def _describe_changes(conn, old_unit_id: int, new: pd.DataFrame, new_keys: dict[tuple, int]) -> list[str]:
+    """Plain-words differences between a stored unit and its re-delivery."""
+    old_votes = queries.unit_votes(conn, [old_unit_id])
+    old_votes["key"] = list(zip(old_votes["district"], old_votes["special"].astype(bool)))
+    old_contests = old_votes.drop_duplicates("contest_id")[["contest_id", "seats", "key"]]
+    old = reduce_contests(old_votes, old_contests).set_index("contest_id")
+    old_keys = dict(zip(old_contests["key"], old_contests["contest_id"]))
+    changes = []
+    for code in ("a", "b"):
+        before, after = old[f"seats_{code}"].sum(), new[f"seats_{code}"].sum()
+        if before != after:
+            changes.append(f"seats of party {code}: {before:g} -> {after:g}")
+    for key in sorted(set(old_keys) | set(new_keys)):
+        label = f"district {key[0]}" + (" (special)" if key[1] else "")
+        if key not in new_keys:
+            changes.append(f"{label}: dropped")
+        elif key not in old_keys:
+            changes.append(f"{label}: added")
+        else:
+            w0, w1 = old.loc[old_keys[key], "winner"], new.loc[new_keys[key], "winner"]
+            if w0 != w1:
+                changes.append(f"{label}: winner {w0} -> {w1}")
+    for code in ("a", "b", "other"):
+        before, after = int(old[f"votes_{code}"].sum()), int(new[f"votes_{code}"].sum())
+        if before != after:
+            changes.append(f"votes of {'party ' + code if code != 'other' else 'other parties'}: "
+                           f"{before:,} -> {after:,} ({after - before:+,})")
+    return changes

@@ -1,0 +1,121 @@
+"""The native formats: long (one row per candidate line) and wide (one ``votes_<party>`` column per party).
+
+Long header: ``cycle,state,chamber,district,party,candidate,votes`` plus optional
+``seats,special,writein,status``. Wide header: ``cycle,state,chamber,district`` plus one
+``votes_<party label>`` column per party, optional ``seats,special,status``.
+"""
+
+from __future__ import annotations
+
+import difflib
+from typing import Iterable
+
+from monitor.errors import DataError, Problem
+from monitor.ingest.records import ParseContext, Record, parse_record
+
+LONG_REQUIRED = ("cycle", "state", "chamber", "district", "party", "candidate", "votes")
+LONG_OPTIONAL = ("seats", "special", "writein", "status")
+WIDE_REQUIRED = ("cycle", "state", "chamber", "district")
+WIDE_OPTIONAL = ("seats", "special", "status")
+VOTES_PREFIX = "votes_"
+
+
+def header_problems(file: str, header: list[str]) -> list[Problem]:
+    """Duplicated and empty column names (row 1)."""
+    problems = []
+    seen: dict[str, int] = {}
+    for index, name in enumerate(header):
+        key = name.strip().casefold()
+        if not key:
+            problems.append(Problem(file, 1, f"#{index + 1}", "column has no name"))
+        elif key in seen:
+            problems.append(Problem(file, 1, name.strip(), f"duplicated column (also column {seen[key] + 1})"))
+        else:
+            seen[key] = index
+    return problems
+
+
+def detect_format(header: list[str]) -> str:
+    names = {h.strip().casefold() for h in header}
+    if "party" not in names and any(n.startswith(VOTES_PREFIX) for n in names):
+        return "native-wide"
+    return "native-long"
+
+
+def parse_native(
+    ctx: ParseContext, header: list[str], rows: Iterable[tuple[int, list[str]]]
+) -> tuple[str, list[Record], list[Problem], int]:
+    """Parse a native file; returns (format, records, row problems, rows read).
+
+    Header problems raise :class:`DataError` at once: no row can be read without a sound header.
+    """
+    problems = header_problems(ctx.file, header)
+    fmt = detect_format(header)
+    names = [h.strip() for h in header]
+    index = {n.casefold(): i for i, n in enumerate(names)}
+    if fmt == "native-long":
+        required, optional = LONG_REQUIRED, LONG_OPTIONAL
+        parties: list[tuple[str, int]] = []
+    else:
+        required, optional = WIDE_REQUIRED, WIDE_OPTIONAL
+        parties = [(n[len(VOTES_PREFIX):], i) for i, n in enumerate(names)
+                   if n.casefold().startswith(VOTES_PREFIX)]
+        empty = [n for n, _ in parties if not n.strip()]
+        if empty:
+            problems.append(Problem(ctx.file, 1, VOTES_PREFIX, "a votes_ column names no party"))
+    known = set(required) | set(optional)
+    for name in required:
+        if name not in index:
+            problems.append(Problem(ctx.file, 1, name, f"missing column (the {fmt} header needs "
+                                                        f"{','.join(required)})"))
+    for name in names:
+        key = name.casefold()
+        if key and key not in known and not (parties and key.startswith(VOTES_PREFIX)):
+            hint = difflib.get_close_matches(key, sorted(known), n=1)
+            problems.append(Problem(ctx.file, 1, name, "unknown column" + (f" (did you mean {hint[0]!r}?)" if hint else "")))
+    if len(names) == 1 and any(sep in names[0] for sep in ";\t|"):
+        problems = [Problem(ctx.file, 1, None, "the header is one column: is the file separated by "
+                                               "something other than commas? native files use commas")]
+    if problems:
+        raise DataError(problems, f"{len(problems)} problem(s) in the header; nothing was loaded")
+
+    records: list[Record] = []
+    row_problems: list[Problem] = []
+    read = 0
+    width = len(names)
+    columns = {n.casefold(): n for n in names}
+    for row, cells in rows:
+        if not cells or (len(cells) == 1 and not cells[0].strip()):
+            continue  # blank line
+        read += 1
+        if len(cells) != width:
+            row_problems.append(Problem(ctx.file, row, None,
+                                        f"has {len(cells)} cells but the header has {width} columns"))
+            continue
+
+        def get(name, cells=cells):
+            i = index.get(name)
+            return None if i is None else cells[i]
+
+        if fmt == "native-long":
+            record, problems = parse_record(ctx, row, get, columns)
+            row_problems.extend(problems)
+            if record:
+                records.append(record)
+            continue
+        for label, i in parties:
+            if not cells[i].strip():
+                continue  # party not on the ballot in this district
+
+            def get_wide(name, cells=cells, label=label, i=i):
+                if name == "party":
+                    return label
+                if name == "votes":
+                    return cells[i]
+                return get(name)
+
+            record, problems = parse_record(ctx, row, get_wide, {**columns, "votes": names[i]})
+            row_problems.extend(problems)
+            if record:
+                records.append(record)
+    return fmt, records, row_problems, read

@@ -1,0 +1,95 @@
+"""Reading a file's bytes safely: checksum, gzip with a decompressed-size cap, decoding, CSV rows."""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import zlib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Iterator
+
+from monitor.errors import DataError, Problem
+
+GZIP_MAGIC = b"\x1f\x8b"
+
+
+@dataclass(frozen=True)
+class RawFile:
+    path: Path
+    name: str
+    data: bytes  # the raw bytes as delivered
+    sha256: str
+
+    @property
+    def size(self) -> int:
+        return len(self.data)
+
+
+def read_raw(path: Path) -> RawFile:
+    data = path.read_bytes()
+    return RawFile(path, path.name, data, hashlib.sha256(data).hexdigest())
+
+
+def decompressed(raw: RawFile, max_bytes: int) -> bytes:
+    """The file's content, gunzipped when it starts with the gzip magic; refuse past ``max_bytes``."""
+    if not raw.data.startswith(GZIP_MAGIC):
+        return raw.data
+    out = bytearray()
+    data = raw.data
+    try:
+        while data:
+            stream = zlib.decompressobj(wbits=31)  # gzip member
+            chunk = stream.decompress(data, max_bytes + 1 - len(out))
+            while True:
+                out += chunk
+                if len(out) > max_bytes:
+                    raise DataError(
+                        [Problem(raw.name, None, None,
+                                 f"gzip content is larger than the {max_bytes // 2**20} MB cap "
+                                 "(load.max_decompressed_mb); refused")]
+                    )
+                if stream.eof or not stream.unconsumed_tail:
+                    break
+                chunk = stream.decompress(stream.unconsumed_tail, max_bytes + 1 - len(out))
+            if not stream.eof:
+                raise DataError([Problem(raw.name, None, None, "gzip file is truncated")])
+            data = stream.unused_data  # concatenated members
+            if data and not data.startswith(GZIP_MAGIC):
+                break  # trailing garbage after the last member is ignored, as gzip(1) does
+    except zlib.error as exc:
+        raise DataError([Problem(raw.name, None, None, f"not a valid gzip file ({exc})")]) from None
+    return bytes(out)
+
+
+def decode(name: str, content: bytes, encoding: str | None) -> str:
+    """Decode as UTF-8 (a BOM is fine) unless ``encoding`` is given; a bad byte names its row."""
+    chosen = encoding or "utf-8-sig"
+    try:
+        text = content.decode(chosen)
+    except LookupError:
+        raise DataError([Problem(name, None, None, f"unknown encoding {encoding!r}")]) from None
+    except UnicodeDecodeError as exc:
+        row = content.count(b"\n", 0, exc.start) + 1
+        hint = "" if encoding else "; if the file is in another encoding, pass --encoding (e.g. --encoding cp1252)"
+        raise DataError(
+            [Problem(name, row, None,
+                     f"byte 0x{content[exc.start]:02x} is not valid {chosen.replace('-sig', '')}{hint}")]
+        ) from None
+    if "\x00" in text:
+        row = text.count("\n", 0, text.index("\x00")) + 1
+        raise DataError([Problem(name, row, None, "contains NUL bytes: this is not a text CSV file")])
+    return text
+
+
+def csv_rows(name: str, text: str, delimiter: str = ",") -> Iterator[tuple[int, list[str]]]:
+    """Yield ``(row_number, cells)``; row numbers are physical lines (header = 1)."""
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
+    start = 1
+    try:
+        for cells in reader:
+            yield start, cells
+            start = reader.line_num + 1
+    except csv.Error as exc:
+        raise DataError([Problem(name, reader.line_num or start, None, f"malformed CSV: {exc}")]) from None

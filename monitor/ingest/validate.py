@@ -1,0 +1,68 @@
+"""Checks across rows: a contest and a unit must hang together.
+
+Each check returns problems located at the row that shows it, so ``--skip-bad-rows`` can drop
+exactly the rows concerned (a whole contest or unit when the fault is the contest's or unit's).
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+
+from monitor.errors import Problem
+from monitor.ingest.records import Record
+
+
+def check_records(file: str, records: list[Record]) -> tuple[list[Problem], set[int]]:
+    """Return the problems and the set of record indexes they condemn."""
+    problems: list[Problem] = []
+    bad: set[int] = set()
+    contests: dict[tuple, list[int]] = defaultdict(list)
+    units: dict[tuple, list[int]] = defaultdict(list)
+    for i, rec in enumerate(records):
+        contests[rec.contest].append(i)
+        units[rec.unit].append(i)
+
+    for key, members in contests.items():
+        lines: dict[tuple[str, str], int] = {}
+        for i in members:
+            rec = records[i]
+            if not rec.candidate:
+                continue
+            line = (rec.party.casefold(), rec.candidate.casefold())
+            if line in lines:
+                first = records[lines[line]]
+                problems.append(Problem(file, rec.row, rec.columns.get("candidate", "candidate"),
+                                        f"candidate {rec.candidate!r} appears twice on the "
+                                        f"{rec.party or '(no party)'!r} line of district "
+                                        f"{rec.district!r} (first at row {first.row})"))
+                bad.add(i)
+            else:
+                lines[line] = i
+        seats = {records[i].seats for i in members}
+        if len(seats) > 1:
+            first = records[members[0]]
+            for i in members:
+                if records[i].seats != first.seats:
+                    problems.append(Problem(file, records[i].row, records[i].columns.get("seats", "seats"),
+                                            f"seats {records[i].seats} disagrees with {first.seats} at row "
+                                            f"{first.row} for district {first.district!r}"))
+            bad.update(members)
+        if sum(records[i].votes for i in members) == 0:
+            first = records[members[0]]
+            problems.append(Problem(file, first.row, first.columns.get("votes", "votes"),
+                                    f"district {first.district!r} ({first.state} {first.chamber} "
+                                    f"{first.cycle}) has no votes at all"))
+            bad.update(members)
+
+    for key, members in units.items():
+        statuses = {records[i].status for i in members}
+        if len(statuses) > 1:
+            first = records[members[0]]
+            other = next(records[i] for i in members if records[i].status != first.status)
+            problems.append(Problem(file, other.row, other.columns.get("status", "status"),
+                                    f"{first.state} {first.chamber} {first.cycle} mixes certified and "
+                                    f"unofficial rows (row {first.row} is {first.status}, this row is "
+                                    f"{other.status}); a unit is delivered whole, with one status"))
+            bad.update(members)
+    problems.sort(key=lambda p: (p.row or 0))
+    return problems, bad

@@ -1,0 +1,68 @@
+"""What the store holds: the answer behind ``levelfield status``."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import store
+from monitor.workspace import Workspace
+
+
+@dataclass
+class StoreStatus:
+    schema_version: int
+    cycles_by_chamber: dict[str, list[int]]
+    states: int
+    contests: int
+    vote_lines: int
+    loads: list[dict]
+    pending: list[str]
+    rejected: list[str]
+    measures: int = 0
+    extra: dict[str, str] = field(default_factory=dict)
+
+    def lines(self) -> list[str]:
+        out = [f"schema version {self.schema_version}"]
+        if not self.cycles_by_chamber:
+            out.append("no results stored yet")
+        for chamber, cycles in sorted(self.cycles_by_chamber.items()):
+            out.append(f"chamber {chamber}: {len(cycles)} cycle(s), {_spans(cycles)}")
+        out.append(f"states {self.states}, current contests {self.contests}, vote lines {self.vote_lines}, "
+                   f"measures {self.measures}")
+        out.append(f"last loads ({len(self.loads)} shown):")
+        for load in self.loads:
+            out.append(f"  #{load['id']} {load['loaded_at']} {load['outcome']}: {load['file_name']} "
+                       f"(sha256 {load['sha256'][:12]}, {load['rows_accepted']} rows, "
+                       f"{load['units_new']} new / {load['units_corrected']} corrected units)")
+        out.append(f"inbox: {len(self.pending)} pending file(s)" + (": " + ", ".join(self.pending[:10]) if self.pending else ""))
+        out.append(f"rejected: {len(self.rejected)} file(s)" + (": " + ", ".join(self.rejected[:10]) if self.rejected else ""))
+        for key, value in self.extra.items():
+            out.append(f"{key}: {value}")
+        return out
+
+
+def _spans(cycles: list[int]) -> str:
+    if not cycles:
+        return ""
+    return f"{cycles[0]}-{cycles[-1]}" if len(cycles) > 1 else str(cycles[0])
+
+
+def store_status(ws: Workspace, last: int = 5) -> StoreStatus:
+    db = ws.open_store()
+    by_chamber: dict[str, list[int]] = {}
+    for chamber, cycle in db.execute(
+        "SELECT DISTINCT chamber, cycle FROM units WHERE superseded_by IS NULL ORDER BY chamber, cycle"
+    ):
+        by_chamber.setdefault(chamber, []).append(cycle)
+    states = db.execute("SELECT COUNT(DISTINCT state) FROM units WHERE superseded_by IS NULL").fetchone()[0]
+    contests = db.execute("SELECT COUNT(*) FROM current_contests").fetchone()[0]
+    lines = db.execute("SELECT COUNT(*) FROM district_results").fetchone()[0]
+    measures = db.execute("SELECT COUNT(*) FROM measures").fetchone()[0]
+    cols = ["id", "file_name", "sha256", "loaded_at", "outcome", "rows_accepted", "units_new", "units_corrected"]
+    loads = [dict(zip(cols, row)) for row in db.execute(
+        f"SELECT {', '.join(cols)} FROM loads ORDER BY id DESC LIMIT ?", [last])]
+    pending = sorted(p.name for p in ws.inbox.iterdir() if p.is_file() and not p.name.startswith("."))
+    rejected = sorted(p.name for p in ws.folder("rejected").iterdir()
+                      if p.is_file() and not p.name.endswith(".error.txt"))
+    return StoreStatus(store.schema_version(db), by_chamber, states, contests, lines, loads, pending,
+                       rejected, measures)

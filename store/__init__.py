@@ -1,0 +1,10 @@
+"""The SQLite store: schema, migrations and queries.
+
+This package knows tables, not politics: it stores what the loader hands it and answers
+queries; what a party code or a contest status *means* is decided in ``monitor``.
+"""
+
+from store.db import connect, transaction
+from store.migrations import SCHEMA_VERSION, migrate, schema_version
+
+__all__ = ["SCHEMA_VERSION", "connect", "migrate", "schema_version", "transaction"]

@@ -1,0 +1,198 @@
+"""Numbered schema migrations.
+
+Each migration is a block of SQL applied once, in order, inside one transaction, and recorded
+in ``schema_version``. Never edit a migration that has shipped: add a new one.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+
+import sqlite_utils
+
+from store.db import transaction
+
+MIGRATIONS: list[tuple[int, str, str]] = [
+    (
+        1,
+        "results store with provenance",
+        """
+        CREATE TABLE states (
+            code TEXT PRIMARY KEY,
+            name TEXT
+        );
+        CREATE TABLE chambers (
+            code TEXT PRIMARY KEY,
+            name TEXT
+        );
+        CREATE TABLE cycles (
+            year INTEGER PRIMARY KEY
+        );
+        CREATE TABLE loads (
+            id INTEGER PRIMARY KEY,
+            file_name TEXT NOT NULL,
+            sha256 TEXT NOT NULL,
+            bytes INTEGER NOT NULL,
+            format TEXT NOT NULL,
+            mapping_sha256 TEXT,
+            source TEXT,
+            rows_read INTEGER NOT NULL,
+            rows_accepted INTEGER NOT NULL,
+            rows_rejected INTEGER NOT NULL,
+            units_new INTEGER NOT NULL DEFAULT 0,
+            units_corrected INTEGER NOT NULL DEFAULT 0,
+            units_unchanged INTEGER NOT NULL DEFAULT 0,
+            loaded_at TEXT NOT NULL,
+            outcome TEXT NOT NULL,
+            supersedes TEXT,
+            report TEXT
+        );
+        CREATE INDEX loads_sha256 ON loads(sha256);
+        CREATE TABLE units (
+            id INTEGER PRIMARY KEY,
+            cycle INTEGER NOT NULL REFERENCES cycles(year),
+            state TEXT NOT NULL REFERENCES states(code),
+            chamber TEXT NOT NULL REFERENCES chambers(code),
+            load_id INTEGER NOT NULL REFERENCES loads(id),
+            certification TEXT NOT NULL,
+            content_sha256 TEXT NOT NULL,
+            superseded_by INTEGER REFERENCES units(id) DEFERRABLE INITIALLY DEFERRED,
+            supersedes INTEGER REFERENCES units(id)
+        );
+        CREATE UNIQUE INDEX units_current ON units(cycle, state, chamber) WHERE superseded_by IS NULL;
+        CREATE INDEX units_load ON units(load_id);
+        CREATE TABLE contests (
+            id INTEGER PRIMARY KEY,
+            unit_id INTEGER NOT NULL REFERENCES units(id),
+            district TEXT NOT NULL,
+            seats INTEGER NOT NULL DEFAULT 1,
+            special INTEGER NOT NULL DEFAULT 0,
+            status TEXT NOT NULL,
+            UNIQUE (unit_id, district, special)
+        );
+        CREATE TABLE votes (
+            id INTEGER PRIMARY KEY,
+            contest_id INTEGER NOT NULL REFERENCES contests(id),
+            party TEXT NOT NULL,
+            party_code TEXT NOT NULL,
+            candidate TEXT NOT NULL,
+            votes INTEGER NOT NULL,
+            writein INTEGER NOT NULL DEFAULT 0,
+            source_row INTEGER
+        );
+        CREATE INDEX votes_contest ON votes(contest_id);
+        CREATE TABLE plans (
+            id INTEGER PRIMARY KEY,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            plan_id TEXT NOT NULL,
+            first_cycle INTEGER NOT NULL,
+            last_cycle INTEGER,
+            drawn_by TEXT NOT NULL,
+            note TEXT,
+            source TEXT,
+            inferred INTEGER NOT NULL DEFAULT 0,
+            UNIQUE (state, chamber, plan_id)
+        );
+        CREATE TABLE measures (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            measure TEXT NOT NULL,
+            value REAL,
+            low REAL,
+            high REAL,
+            p_value REAL,
+            reason TEXT,
+            method_version TEXT NOT NULL,
+            policy TEXT NOT NULL,
+            inputs_hash TEXT NOT NULL,
+            unit_id INTEGER REFERENCES units(id),
+            computed_at TEXT NOT NULL,
+            PRIMARY KEY (cycle, state, chamber, measure)
+        );
+        CREATE TABLE flags (
+            id INTEGER PRIMARY KEY,
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            measure TEXT NOT NULL,
+            direction TEXT,
+            detail TEXT,
+            raised_at TEXT NOT NULL,
+            cleared_at TEXT,
+            load_id INTEGER REFERENCES loads(id)
+        );
+
+        -- Browsing views: plain SQL, readable with any SQLite tool.
+        -- district_results is a fixed contract read by other tools: keep its columns.
+        CREATE VIEW district_results AS
+            SELECT u.cycle AS cycle, u.state AS state, u.chamber AS chamber,
+                   c.district AS district, v.party AS party, v.candidate AS candidate,
+                   v.votes AS votes, u.certification AS status, u.load_id AS load_id
+            FROM votes v
+            JOIN contests c ON c.id = v.contest_id
+            JOIN units u ON u.id = c.unit_id
+            WHERE u.superseded_by IS NULL;
+        CREATE VIEW current_contests AS
+            SELECT c.id AS contest_id, u.cycle, u.state, u.chamber, c.district, c.seats,
+                   c.special, c.status, u.certification, u.load_id,
+                   (SELECT COALESCE(SUM(v.votes), 0) FROM votes v WHERE v.contest_id = c.id) AS total_votes
+            FROM contests c JOIN units u ON u.id = c.unit_id
+            WHERE u.superseded_by IS NULL;
+        CREATE VIEW unit_history AS
+            SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.certification,
+                   u.load_id, l.file_name, l.sha256, l.loaded_at,
+                   u.supersedes, u.superseded_by,
+                   CASE WHEN u.superseded_by IS NULL THEN 'current' ELSE 'superseded' END AS standing
+            FROM units u JOIN loads l ON l.id = u.load_id;
+        """,
+    ),
+]
+
+SCHEMA_VERSION = MIGRATIONS[-1][0]
+
+
+def schema_version(db: sqlite_utils.Database) -> int:
+    """The highest migration applied, 0 for an empty database."""
+    if "schema_version" not in db.table_names():
+        return 0
+    row = db.execute("SELECT MAX(version) FROM schema_version").fetchone()
+    return row[0] or 0
+
+
+def migrate(db: sqlite_utils.Database) -> list[int]:
+    """Apply every migration newer than the database; return the versions applied."""
+    db.execute(
+        "CREATE TABLE IF NOT EXISTS schema_version ("
+        "version INTEGER PRIMARY KEY, description TEXT NOT NULL, applied_at TEXT NOT NULL)"
+    )
+    current = schema_version(db)
+    if current > SCHEMA_VERSION:
+        raise RuntimeError(
+            f"the store is at schema version {current}, newer than this levelfield "
+            f"({SCHEMA_VERSION}); upgrade levelfield"
+        )
+    applied = []
+    for version, description, sql in MIGRATIONS:
+        if version <= current:
+            continue
+        with transaction(db) as conn:
+            # re-check inside the writer lock: another process may have migrated meanwhile
+            done = conn.execute("SELECT 1 FROM schema_version WHERE version = ?", [version]).fetchone()
+            if done:
+                continue
+            for statement in _statements(sql):
+                conn.execute(statement)
+            conn.execute(
+                "INSERT INTO schema_version(version, description, applied_at) VALUES (?, ?, ?)",
+                [version, description, _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")],
+            )
+        applied.append(version)
+    return applied
+
+
+def _statements(sql: str) -> list[str]:
+    """Split a migration into statements (no semicolons inside our literals)."""
+    lines = [line for line in sql.splitlines() if not line.strip().startswith("--")]
+    return [s.strip() for s in "\n".join(lines).split(";") if s.strip()]

@@ -1,0 +1,119 @@
+"""Queries over the store. Plain SQL with bound parameters only; no politics here."""
+
+from __future__ import annotations
+
+import sqlite3
+from typing import Iterable, Sequence
+
+import pandas as pd
+import sqlite_utils
+
+UnitKey = tuple[int, str, str]
+
+
+def load_by_sha256(db: sqlite_utils.Database, sha256: str) -> dict | None:
+    row = db.execute(
+        "SELECT id, file_name, loaded_at, outcome FROM loads WHERE sha256 = ? ORDER BY id LIMIT 1", [sha256]
+    ).fetchone()
+    return None if row is None else dict(zip(("id", "file_name", "loaded_at", "outcome"), row))
+
+
+def current_units(conn: sqlite3.Connection, keys: Iterable[UnitKey]) -> dict[UnitKey, dict]:
+    """The current (not superseded) unit rows for ``keys``."""
+    out = {}
+    for cycle, state, chamber in keys:
+        row = conn.execute(
+            "SELECT id, load_id, certification, content_sha256 FROM units "
+            "WHERE cycle = ? AND state = ? AND chamber = ? AND superseded_by IS NULL",
+            [cycle, state, chamber],
+        ).fetchone()
+        if row:
+            out[(cycle, state, chamber)] = dict(zip(("id", "load_id", "certification", "content_sha256"), row))
+    return out
+
+
+def insert_load(conn: sqlite3.Connection, values: dict) -> int:
+    names = list(values)
+    cur = conn.execute(
+        f"INSERT INTO loads ({', '.join(names)}) VALUES ({', '.join('?' for _ in names)})",
+        [values[n] for n in names],
+    )
+    return cur.lastrowid
+
+
+def update_load(conn: sqlite3.Connection, load_id: int, values: dict) -> None:
+    sets = ", ".join(f"{n} = ?" for n in values)
+    conn.execute(f"UPDATE loads SET {sets} WHERE id = ?", [*values.values(), load_id])
+
+
+def ensure_keys(conn: sqlite3.Connection, table: str, column: str, values: Iterable) -> None:
+    assert (table, column) in {("states", "code"), ("chambers", "code"), ("cycles", "year")}
+    conn.executemany(f"INSERT OR IGNORE INTO {table} ({column}) VALUES (?)", [(v,) for v in values])
+
+
+def insert_unit(
+    conn: sqlite3.Connection, key: UnitKey, load_id: int, certification: str, content_sha256: str,
+    previous_id: int | None,
+) -> int:
+    """Insert a unit as current; a previous current unit becomes superseded by it."""
+    new_id = conn.execute("SELECT COALESCE(MAX(id), 0) + 1 FROM units").fetchone()[0]
+    if previous_id is not None:
+        conn.execute("UPDATE units SET superseded_by = ? WHERE id = ?", [new_id, previous_id])
+    conn.execute(
+        "INSERT INTO units (id, cycle, state, chamber, load_id, certification, content_sha256, supersedes) "
+        "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+        [new_id, *key, load_id, certification, content_sha256, previous_id],
+    )
+    return new_id
+
+
+def insert_contests(conn: sqlite3.Connection, rows: Sequence[tuple]) -> None:
+    """rows: (id, unit_id, district, seats, special, status)."""
+    conn.executemany(
+        "INSERT INTO contests (id, unit_id, district, seats, special, status) VALUES (?, ?, ?, ?, ?, ?)", rows
+    )
+
+
+def next_id(conn: sqlite3.Connection, table: str) -> int:
+    assert table in {"contests", "votes", "units", "loads"}
+    return conn.execute(f"SELECT COALESCE(MAX(id), 0) + 1 FROM {table}").fetchone()[0]
+
+
+def insert_votes(conn: sqlite3.Connection, rows: Sequence[tuple]) -> None:
+    """rows: (contest_id, party, party_code, candidate, votes, writein, source_row)."""
+    conn.executemany(
+        "INSERT INTO votes (contest_id, party, party_code, candidate, votes, writein, source_row) "
+        "VALUES (?, ?, ?, ?, ?, ?, ?)",
+        rows,
+    )
+
+
+def unit_votes(conn: sqlite3.Connection | sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.DataFrame:
+    """Vote lines of the given units: unit_id, contest_id, district, seats, special, party,
+    party_code, candidate, votes."""
+    conn = getattr(conn, "conn", conn)
+    if not unit_ids:
+        return pd.DataFrame(columns=["unit_id", "contest_id", "district", "seats", "special", "party",
+                                     "party_code", "candidate", "votes"])
+    marks = ",".join("?" for _ in unit_ids)
+    return pd.read_sql_query(
+        "SELECT c.unit_id, v.contest_id, c.district, c.seats, c.special, v.party, v.party_code, "
+        f"v.candidate, v.votes FROM votes v JOIN contests c ON c.id = v.contest_id "
+        f"WHERE c.unit_id IN ({marks}) ORDER BY c.unit_id, v.contest_id, v.id",
+        conn, params=list(unit_ids),
+    )
+
+
+def current_votes(db: sqlite_utils.Database, where: str = "", params: Sequence = ()) -> pd.DataFrame:
+    """Vote lines of every current unit, with the unit's keys (optionally filtered by ``where``
+    over the aliases u, c, v)."""
+    clause = f"AND ({where})" if where else ""
+    return pd.read_sql_query(
+        "SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.certification, u.load_id, "
+        "c.id AS contest_id, c.district, c.seats, c.special, c.status, "
+        "v.party, v.party_code, v.candidate, v.votes "
+        "FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
+        f"WHERE u.superseded_by IS NULL {clause} "
+        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, v.id",
+        db.conn, params=list(params),
+    )
