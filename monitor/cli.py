@@ -146,6 +146,61 @@ def status(ws: Workspace) -> None:
         click.echo(line)
 
 
+@main.command()
+@click.option("--full", is_flag=True, help="Recompute every unit, not only those whose inputs or method changed.")
+@click.pass_obj
+@guarded
+def compute(ws: Workspace, full: bool) -> None:
+    """Recompute the measures of units whose inputs or method changed, then the national
+    pool, the flags and the watch list of the cycles and chambers they touch."""
+    from monitor.compute import compute as run
+    from monitor.flags import run_flags
+
+    db, config = ws.open_store(), ws.config()
+    for line in run(db, config, full=full).lines():
+        click.echo(line)
+    for line in run_flags(db, config, full=full).lines():
+        click.echo(line)
+
+
+@main.command()
+@click.option("--cycle", type=int, help="Only this cycle.")
+@click.option("--chamber", help="Only this chamber.")
+@click.option("--watch", "show", flag_value="watch", help="The plans on watch.")
+@click.option("--changes", "show", flag_value="changes", help="The history of raised and cleared flags.")
+@click.option("--format", "fmt", type=click.Choice(["table", "csv", "json"]), default="table", show_default=True)
+@click.pass_obj
+@guarded
+def flags(ws: Workspace, cycle, chamber, show, fmt) -> None:
+    """Show the flagged units (default), the watch list (--watch) or the flag history (--changes).
+
+    Flags are computed by `levelfield compute`. A flag is an indicator that a unit sits in the
+    tail of the national distribution, not a legal finding.
+    """
+    from monitor.flags import flag_table
+    from monitor.output import to_text, write
+
+    write(to_text(flag_table(ws.open_store(), show or "flags", cycle=cycle, chamber=chamber), fmt), None)
+
+
+@main.command()
+@click.argument("file", type=click.Path(path_type=Path, dir_okay=False))
+@click.pass_obj
+@guarded
+def plans(ws: Workspace, file: Path) -> None:
+    """Load plan eras (who drew each map) from FILE.
+
+    Columns: state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source; drawn_by is one of
+    party_a, party_b, split, commission, court, other. The file replaces the plans of every
+    state and chamber it names. Units outside every era get an inferred plan (a new plan from each
+    cycle ending in 2), marked inferred wherever it shows.
+    """
+    from monitor.plans import load_plans
+
+    done = load_plans(ws.open_store(), file)
+    click.echo(f"{file.name}: {done['plans']} plan(s) loaded for {done['state_chambers']} state chamber(s)")
+
+
 @main.group()
 def export() -> None:
     """Export stored data as CSV or JSON."""
@@ -166,3 +221,16 @@ def export_results(ws: Workspace, fmt: str, out: Path | None) -> None:
     from monitor.results import results_export
 
     write(to_text(results_export(ws.open_store()), fmt), out)
+
+
+@export.command("measures")
+@FORMAT
+@OUT
+@click.pass_obj
+@guarded
+def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
+    """Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy."""
+    from monitor.compute import measures_export
+    from monitor.output import to_text, write
+
+    write(to_text(measures_export(ws.open_store()), fmt), out)

@@ -103,6 +103,47 @@ OPTIONS: list[Option] = [
     ),
     Option("measures", "seed", 20240101, "random seed of the interval simulations", _typed(int, low=0)),
     Option(
+        "measures", "responsiveness_h", 0.05,
+        "responsiveness is [S(V+h) - S(V-h)] / 2h at the observed statewide vote V",
+        _typed(float, low=0.001, high=0.5),
+    ),
+    Option(
+        "pool", "tolerance", 0.005,
+        "a simulated delegation counts when its statewide share is within this of the state's",
+        _typed(float, low=0.0001, high=0.1),
+    ),
+    Option(
+        "pool", "draws", 10_000, "accepted simulated delegations per unit (national-pool null)",
+        _typed(int, low=100, high=10_000_000),
+    ),
+    Option(
+        "pool", "exclude_own_state", True, "leave the state's own districts out of its pool",
+        _typed(bool),
+    ),
+    Option("pool", "seed", 19720101, "random seed of the national-pool simulation", _typed(int, low=0)),
+    Option(
+        "flags", "tail", 0.025,
+        "a measure is flagged when it lies in this outer tail of its null, on either side",
+        _typed(float, low=0.0001, high=0.25),
+    ),
+    Option(
+        "flags", "p_threshold", 0.05,
+        "the lopsided-margins t-test and the mean-median z-test flag below this p",
+        _typed(float, low=0.0001, high=0.5),
+    ),
+    Option(
+        "flags", "min_districts", 6, "units with fewer districts are never flagged",
+        _typed(int, low=2, high=10_000),
+    ),
+    Option(
+        "flags", "watch_cycles", 2, "a plan goes on watch when this many of its cycles are flagged ...",
+        _typed(int, low=1, high=100),
+    ),
+    Option(
+        "flags", "watch_measures", 2, "... each by at least this many measures agreeing in direction",
+        _typed(int, low=1, high=10),
+    ),
+    Option(
         "load", "max_votes_per_row", 50_000_000,
         "a vote count above this is refused as implausible",
         _typed(int, low=1),

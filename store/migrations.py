@@ -148,6 +148,87 @@ MIGRATIONS: list[tuple[int, str, str]] = [
             FROM units u JOIN loads l ON l.id = u.load_id;
         """,
     ),
+    (
+        2,
+        "national pool, tails, flags with history, watch list",
+        """
+        DROP TABLE flags;
+        CREATE TABLE pool_seats (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            districts INTEGER NOT NULL,
+            vote_share REAL,
+            seats_a REAL,
+            expected_seats REAL,
+            low REAL,
+            high REAL,
+            percentile REAL,
+            excess_seats REAL,
+            draws INTEGER,
+            ess REAL,
+            mc_se REAL,
+            reason TEXT,
+            inputs_hash TEXT NOT NULL,
+            method_version TEXT NOT NULL,
+            computed_at TEXT NOT NULL,
+            PRIMARY KEY (cycle, state, chamber)
+        );
+        CREATE TABLE tails (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            measure TEXT NOT NULL,
+            value REAL,
+            null_percentile REAL,
+            null_low REAL,
+            null_high REAL,
+            null_dropped REAL,
+            p_value REAL,
+            cross_percentile REAL,
+            robust_z REAL,
+            robust_z_all REAL,
+            flagged INTEGER NOT NULL DEFAULT 0,
+            direction TEXT,
+            basis TEXT,
+            plan_id TEXT,
+            reason TEXT,
+            computed_at TEXT NOT NULL,
+            PRIMARY KEY (cycle, state, chamber, measure)
+        );
+        CREATE TABLE flag_events (
+            id INTEGER PRIMARY KEY,
+            scope TEXT NOT NULL,
+            cycle INTEGER,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            plan_id TEXT,
+            measure TEXT,
+            event TEXT NOT NULL,
+            direction TEXT,
+            why TEXT NOT NULL,
+            at TEXT NOT NULL,
+            load_id INTEGER REFERENCES loads(id)
+        );
+        CREATE INDEX flag_events_unit ON flag_events(state, chamber, cycle);
+        CREATE TABLE watch (
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            plan_id TEXT NOT NULL,
+            drawn_by TEXT,
+            inferred INTEGER NOT NULL DEFAULT 0,
+            favours TEXT NOT NULL,
+            severity REAL NOT NULL,
+            seats_at_stake REAL,
+            concurring INTEGER NOT NULL,
+            cycles TEXT NOT NULL,
+            measures TEXT NOT NULL,
+            since INTEGER,
+            computed_at TEXT NOT NULL,
+            PRIMARY KEY (state, chamber, plan_id)
+        );
+        """,
+    ),
 ]
 
 SCHEMA_VERSION = MIGRATIONS[-1][0]

@@ -1,0 +1,134 @@
+"""Recompute the measures of every unit whose inputs or method changed, and store them.
+
+A unit's inputs hash covers its two-party district inputs (after the uncontested policy), the
+policy and the measure settings; a stored measure is stale when that hash or the measure's method
+version differs. ``full=True`` recomputes everything.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+from dataclasses import dataclass, field, fields
+
+import numpy as np
+import pandas as pd
+import sqlite_utils
+
+from monitor.config import Config
+from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
+from monitor.measures import MEASURE_VERSIONS, MeasureSettings, compute_measures
+from store import transaction
+
+EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value",
+                  "method_version", "policy"]
+
+
+def measure_settings(config: Config) -> MeasureSettings:
+    """The engine's settings from the ``[measures]`` section (options the engine does not know
+    are ignored; options the config does not set keep the engine's defaults)."""
+    known = {f.name for f in fields(MeasureSettings)}
+    values = {}
+    for name in known:
+        try:
+            values[name] = config[f"measures.{name}"]
+        except KeyError:
+            continue
+    return MeasureSettings(**values)
+
+
+def settings_salt(config: Config) -> str:
+    settings = measure_settings(config)
+    parts = {f.name: getattr(settings, f.name) for f in fields(settings)}
+    parts["seed"] = config["measures.seed"]
+    parts["versions"] = MEASURE_VERSIONS
+    return json.dumps(parts, sort_keys=True, default=str)
+
+
+@dataclass
+class ComputeReport:
+    units_total: int = 0
+    units_computed: int = 0
+    units_unchanged: int = 0
+    rows_written: int = 0
+    units_removed: int = 0
+    computed: list[tuple] = field(default_factory=list)
+
+    def lines(self) -> list[str]:
+        out = [f"measures: {self.units_computed} unit(s) computed, {self.units_unchanged} unchanged "
+               f"(of {self.units_total}); {self.rows_written} rows written"]
+        if self.units_removed:
+            out.append(f"  {self.units_removed} unit(s) no longer in the store: their measures were removed")
+        return out
+
+
+def compute_frame(config: Config, contests: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Pure step: measures (long frame with unit keys) for the given reduced contests."""
+    arrays = measure_inputs(contests, config, settings_salt(config))
+    units = arrays.units
+    if units.empty:
+        return units, pd.DataFrame(columns=[*UNIT_KEYS, "measure", "value", "low", "high", "p_value", "reason"])
+    rng = np.random.default_rng(config["measures.seed"])
+    long = compute_measures(arrays.unit, arrays.votes_a, arrays.votes_b, arrays.uncontested,
+                            len(units), measure_settings(config), rng)
+    keys = units[[*UNIT_KEYS, "unit_id", "inputs_hash"]].reset_index(drop=True)
+    long = long.join(keys, on="unit")
+    return units, long
+
+
+def compute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
+            now: dt.datetime | None = None) -> ComputeReport:
+    """Bring the ``measures`` table up to date (incrementally unless ``full``)."""
+    report = ComputeReport()
+    contests = reduced_contests(db)
+    arrays = measure_inputs(contests, config, settings_salt(config))
+    units = arrays.units
+    report.units_total = len(units)
+    stored = pd.read_sql_query(
+        "SELECT cycle, state, chamber, measure, inputs_hash, method_version FROM measures", db.conn)
+    stale = units.index.to_numpy()
+    if not full and not stored.empty:
+        fresh = set()
+        expected = set(MEASURE_VERSIONS.items())
+        for key, group in stored.groupby(UNIT_KEYS, sort=False):
+            if group["inputs_hash"].nunique() == 1 and set(zip(group["measure"], group["method_version"])) == expected:
+                fresh.add((*key, group["inputs_hash"].iloc[0]))
+        keep = [(c, s, ch, h) not in fresh for c, s, ch, h in
+                zip(units["cycle"], units["state"], units["chamber"], units["inputs_hash"])]
+        stale = units.index[np.array(keep, dtype=bool)].to_numpy()
+    report.units_computed = len(stale)
+    report.units_unchanged = len(units) - len(stale)
+    current = set(zip(units["cycle"], units["state"], units["chamber"]))
+    gone = {k for k in zip(stored["cycle"], stored["state"], stored["chamber"])} - current
+    report.units_removed = len(gone)
+
+    stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
+    rows = []
+    if len(stale):
+        sub = contests[contests["unit_id"].isin(units.loc[stale, "unit_id"])]
+        _, long = compute_frame(config, sub)
+        long = long.astype(object).where(long.notna(), None)
+        rows = [
+            (r.cycle, r.state, r.chamber, r.measure, r.value, r.low, r.high, r.p_value, r.reason,
+             MEASURE_VERSIONS[r.measure], config.policy, r.inputs_hash, r.unit_id, stamp)
+            for r in long.itertuples(index=False)
+        ]
+        report.computed = sorted({(r[0], r[1], r[2]) for r in rows})
+    with transaction(db) as conn:
+        for key in report.computed + sorted(gone):
+            conn.execute("DELETE FROM measures WHERE cycle = ? AND state = ? AND chamber = ?", list(key))
+        conn.executemany(
+            "INSERT INTO measures (cycle, state, chamber, measure, value, low, high, p_value, reason, "
+            "method_version, policy, inputs_hash, unit_id, computed_at) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
+            rows,
+        )
+    report.rows_written = len(rows)
+    return report
+
+
+def measures_export(db: sqlite_utils.Database) -> pd.DataFrame:
+    """The stored measures with the fixed export columns (a contract other tools read)."""
+    return pd.read_sql_query(
+        f"SELECT {', '.join(EXPORT_COLUMNS)} FROM measures ORDER BY cycle, state, chamber, measure",
+        db.conn,
+    )

@@ -1,0 +1,154 @@
+"""Plan eras: which redistricting plan was in force for each unit, and who drew it.
+
+``levelfield plans FILE`` loads eras from a CSV with the columns
+``state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source`` (``last_cycle`` may be
+empty for a plan still in force). Units not covered by a loaded era get an *inferred* plan: a new
+plan from each cycle ending in 2 (the first cycle after a decennial census), drawn by ``other``,
+marked ``inferred`` everywhere it shows.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+from pathlib import Path
+
+import pandas as pd
+import sqlite_utils
+
+from monitor.errors import DataError, Problem, UsageError
+from monitor.ingest.fields import parse_cycle
+from monitor.ingest.native import header_problems
+from monitor.ingest.reader import csv_rows, decode, read_raw
+from store import transaction
+
+DRAWN_BY = ("party_a", "party_b", "split", "commission", "court", "other")
+COLUMNS = ("state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "note", "source")
+REQUIRED = COLUMNS[:6]
+
+
+def read_plans(path: Path) -> pd.DataFrame:
+    """Parse and validate a plans file; raise DataError with every problem."""
+    try:
+        raw = read_raw(path)
+    except OSError as exc:
+        raise UsageError(f"{path}: cannot read ({exc.strerror or exc})") from None
+    rows = csv_rows(raw.name, decode(raw.name, raw.data, None))
+    header = next(rows, None)
+    if header is None:
+        raise DataError([Problem(raw.name, 1, None, "the file is empty: no header row")])
+    names = [h.strip().casefold() for h in header[1]]
+    problems = header_problems(raw.name, header[1])
+    problems += [Problem(raw.name, 1, c, "missing column") for c in REQUIRED if c not in names]
+    problems += [Problem(raw.name, 1, c, "unknown column") for c in names if c and c not in COLUMNS]
+    if problems:
+        raise DataError(problems)
+    out = []
+    for row, cells in rows:
+        if not cells or (len(cells) == 1 and not cells[0].strip()):
+            continue
+        if len(cells) != len(names):
+            problems.append(Problem(raw.name, row, None, f"has {len(cells)} cells but the header has {len(names)} columns"))
+            continue
+        rec = {c: " ".join(v.split()) for c, v in zip(names, cells)}
+        for col in ("state", "chamber", "plan_id"):
+            if not rec[col]:
+                problems.append(Problem(raw.name, row, col, f"{col} is empty"))
+        first, why = parse_cycle(rec["first_cycle"])
+        if why:
+            problems.append(Problem(raw.name, row, "first_cycle", why.replace("cycle", "first_cycle", 1)))
+        last = None
+        if rec["last_cycle"]:
+            last, why = parse_cycle(rec["last_cycle"])
+            if why:
+                problems.append(Problem(raw.name, row, "last_cycle", why.replace("cycle", "last_cycle", 1)))
+            elif first is not None and last < first:
+                problems.append(Problem(raw.name, row, "last_cycle", f"last_cycle {last} is before first_cycle {first}"))
+        if rec["drawn_by"] not in DRAWN_BY:
+            problems.append(Problem(raw.name, row, "drawn_by",
+                                    f"drawn_by {rec['drawn_by']!r} is not one of {', '.join(DRAWN_BY)}"))
+        out.append({**rec, "first_cycle": first, "last_cycle": last, "row": row,
+                    "note": rec.get("note", ""), "source": rec.get("source", "")})
+    frame = pd.DataFrame(out, columns=[*COLUMNS, "row"])
+    if not problems:
+        problems += _overlaps(raw.name, frame)
+    if problems:
+        raise DataError(problems, f"{len(problems)} problem(s) in {raw.name}; no plan was loaded")
+    return frame
+
+
+def _overlaps(name: str, frame: pd.DataFrame) -> list[Problem]:
+    problems = []
+    seen: dict[tuple, str] = {}
+    for (state, chamber), group in frame.groupby(["state", "chamber"], sort=False):
+        group = group.sort_values("first_cycle")
+        previous = None
+        for rec in group.itertuples():
+            key = (state, chamber, rec.plan_id)
+            if key in seen:
+                problems.append(Problem(name, rec.row, "plan_id", f"plan {rec.plan_id!r} is listed twice for {state} {chamber}"))
+            seen[key] = rec.plan_id
+            if previous is not None and (previous.last_cycle is None or previous.last_cycle >= rec.first_cycle):
+                problems.append(Problem(name, rec.row, "first_cycle",
+                                        f"plan {rec.plan_id!r} starts in {rec.first_cycle} while plan "
+                                        f"{previous.plan_id!r} (row {previous.row}) is still in force"))
+            previous = rec
+    return problems
+
+
+def load_plans(db: sqlite_utils.Database, path: Path) -> dict:
+    """Replace the plans of every (state, chamber) named in the file, in one transaction."""
+    frame = read_plans(path)
+    pairs = sorted(set(zip(frame["state"], frame["chamber"])))
+    with transaction(db) as conn:
+        for state, chamber in pairs:
+            conn.execute("DELETE FROM plans WHERE state = ? AND chamber = ?", [state, chamber])
+        conn.executemany(
+            "INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, 0)",
+            [(r.state, r.chamber, r.plan_id, int(r.first_cycle),
+              None if pd.isna(r.last_cycle) else int(r.last_cycle), r.drawn_by, r.note, r.source)
+             for r in frame.itertuples()],
+        )
+    return {"plans": len(frame), "state_chambers": len(pairs)}
+
+
+def census_start(cycle: int) -> int:
+    """The first cycle of the decade's plan: the latest year ending in 2 at or before ``cycle``."""
+    return cycle - ((cycle - 2) % 10)
+
+
+def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> pd.DataFrame:
+    """For units (cycle, state, chamber): plan_id, drawn_by, inferred. Units outside every loaded
+    era get an inferred decade plan, which is (re)written to the plans table with inferred = 1."""
+    plans = pd.read_sql_query(
+        "SELECT state, chamber, plan_id, first_cycle, last_cycle, drawn_by FROM plans WHERE inferred = 0",
+        db.conn,
+    )
+    eras = defaultdict(list)
+    for p in plans.itertuples():
+        eras[(p.state, p.chamber)].append(p)
+    out = []
+    inferred: dict[tuple, tuple] = {}
+    for u in units[["cycle", "state", "chamber"]].itertuples(index=False):
+        match = next((p for p in eras.get((u.state, u.chamber), ())
+                      if p.first_cycle <= u.cycle and (pd.isna(p.last_cycle) or u.cycle <= p.last_cycle)), None)
+        if match is not None:
+            out.append((match.plan_id, match.drawn_by, 0))
+            continue
+        start = census_start(int(u.cycle))
+        plan_id = f"{u.state}-{u.chamber}-{start}"
+        key = (u.state, u.chamber, plan_id)
+        first, last = inferred.get(key, (u.cycle, u.cycle))
+        inferred[key] = (min(first, u.cycle), max(last, u.cycle))
+        out.append((plan_id, "other", 1))
+    with transaction(db) as conn:
+        conn.execute("DELETE FROM plans WHERE inferred = 1")
+        conn.executemany(
+            "INSERT OR REPLACE INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
+            "VALUES (?, ?, ?, ?, ?, 'other', 'inferred: a new plan assumed from each cycle ending in 2', NULL, 1)",
+            [(s, c, p, int(f), int(l)) for (s, c, p), (f, l) in inferred.items()],
+        )
+    result = units[["cycle", "state", "chamber"]].copy()
+    result[["plan_id", "drawn_by", "inferred"]] = pd.DataFrame(out, index=result.index,
+                                                               columns=["plan_id", "drawn_by", "inferred"])
+    return result
