@@ -27,5 +27,8 @@ demo: $(STAMP)
 test: $(STAMP)
 	$(PY) -m pytest
 
+bench: $(STAMP)
+	$(PY) -m bench
+
 clean:
 	rm -rf $(DEMO) .pytest_cache

@@ -201,6 +201,29 @@ def plans(ws: Workspace, file: Path) -> None:
     click.echo(f"{file.name}: {done['plans']} plan(s) loaded for {done['state_chambers']} state chamber(s)")
 
 
+@main.command()
+@click.option("--inbox", type=click.Path(path_type=Path, file_okay=False), help="Folder to watch (default the workspace's inbox/).")
+@click.option("--every", type=click.IntRange(1, 86_400), help="Seconds between polls (default schedule.poll_seconds, 60).")
+@click.option("--once", is_flag=True, help="Process the inbox once and exit (for cron or CI).")
+@click.option("--no-publish", is_flag=True, help="Load and recompute, but do not republish the site.")
+@click.pass_obj
+@guarded
+def watch(ws: Workspace, inbox, every, once, no_publish) -> None:
+    """Watch the inbox: load settled files, recompute, republish; verify nightly.
+
+    Loaded files move to archive/<date>/, refused ones to rejected/ with an error report beside
+    them. Stop with Ctrl-C or SIGTERM: the job in progress finishes first.
+    """
+    from monitor.watcher import Service
+
+    service = Service(ws, inbox=inbox, publish=not no_publish)
+    if once:
+        loaded = service.run_once()
+        click.echo(f"processed the inbox: {loaded} file(s) loaded")
+    else:
+        service.run_forever(every)
+
+
 @main.group()
 def export() -> None:
     """Export stored data as CSV or JSON."""

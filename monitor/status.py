@@ -64,5 +64,27 @@ def store_status(ws: Workspace, last: int = 5) -> StoreStatus:
     pending = sorted(p.name for p in ws.inbox.iterdir() if p.is_file() and not p.name.startswith("."))
     rejected = sorted(p.name for p in ws.folder("rejected").iterdir()
                       if p.is_file() and not p.name.endswith(".error.txt"))
-    return StoreStatus(store.schema_version(db), by_chamber, states, contests, lines, loads, pending,
-                       rejected, measures)
+    result = StoreStatus(store.schema_version(db), by_chamber, states, contests, lines, loads, pending,
+                         rejected, measures)
+    result.extra.update(_watcher_state(ws))
+    return result
+
+
+def _watcher_state(ws: Workspace) -> dict[str, str]:
+    """Last and next run of each watcher job and the last error, from logs/watcher-state.json."""
+    import json
+
+    from monitor.watcher import STATE_FILE
+
+    path = ws.folder("logs") / STATE_FILE
+    try:
+        state = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {"watcher": "has not run in this workspace"}
+    out = {"watcher": f"running (pid {state['pid']})" if state.get("pid") else
+           f"not running (stopped {state.get('stopped_at') or 'unknown'})"}
+    for job, info in sorted(state.get("jobs", {}).items()):
+        out[f"job {job}"] = f"last run {info.get('last_run') or 'never'}, next run {info.get('next_run') or 'not scheduled'}"
+    error = state.get("last_error")
+    out["last error"] = f"{error['at']}: {error['message']}" if error else "none"
+    return out
