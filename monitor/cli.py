@@ -8,6 +8,7 @@ failure prints one line and writes the traceback to ``logs/levelfield.log``.
 from __future__ import annotations
 
 import functools
+import os
 import sys
 import traceback
 from pathlib import Path
@@ -40,6 +41,12 @@ def guarded(func):
             _fail(f"error: {exc}", exc.exit_code)
         except (click.exceptions.Exit, click.ClickException, SystemExit, KeyboardInterrupt):
             raise
+        except BrokenPipeError:  # output piped into `head` and the like: stop quietly
+            try:
+                sys.stdout = open(os.devnull, "w")
+            except OSError:
+                pass
+            sys.exit(0)
         except Exception as exc:  # unexpected: one line for the user, the traceback to the log
             ctx = click.get_current_context(silent=True)
             ws = ctx.obj if ctx and isinstance(ctx.obj, Workspace) else None
@@ -114,7 +121,10 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
     mapping = load_mapping(mapping_path) if mapping_path else None
     db = ws.open_store()
     worst = 0
-    for path in files:
+    progress = len(files) > 1 and sys.stderr.isatty()
+    for number, path in enumerate(files, 1):
+        if progress:
+            click.echo(f"[{number}/{len(files)}] {path}", err=True)
         try:
             report = load_file(db, path, config, mapping=mapping, source=source, dry_run=dry_run,
                                skip_bad_rows=skip_bad_rows, encoding=encoding)

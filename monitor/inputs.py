@@ -23,7 +23,8 @@ def reduced_contests(db: sqlite_utils.Database, where: str = "", params=()) -> p
     if lines.empty:
         return pd.DataFrame(columns=["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id",
                                      "district", "seats", "special", "votes_a", "votes_b", "votes_other",
-                                     "total", "status", "seats_a", "seats_b", "seats_other", "winner"])
+                                     "total", "status", "seats_a", "seats_b", "seats_other", "winner",
+                                     "candidates_a", "candidates_b", "candidates_other"])
     contests = lines.drop_duplicates("contest_id")[
         ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "seats", "special"]
     ]

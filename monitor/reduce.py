@@ -31,7 +31,8 @@ def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame
     """``votes``: columns contest_id, party_code, candidate, votes.
     ``contests``: contest_id (index or column), seats.
     Returns one row per contest_id with votes_a, votes_b, votes_other, total, status,
-    seats_a, seats_b, seats_other, winner (a | b | other | split).
+    seats_a, seats_b, seats_other, winner (a | b | other | split) and candidates_a,
+    candidates_b, candidates_other (how many candidates of each code stood).
     """
     contests = contests.reset_index() if "contest_id" not in contests.columns else contests
     seats = contests.set_index("contest_id")["seats"].astype(np.int64)
@@ -83,21 +84,24 @@ def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame
         [out["seats_a"] == full, out["seats_b"] == full, out["seats_other"] == full],
         ["a", "b", "other"], default="split",
     )
-    return out.drop(columns=["n_a", "n_b", "n_other"]).reset_index()
+    out = out.rename(columns={"n_a": "candidates_a", "n_b": "candidates_b", "n_other": "candidates_other"})
+    return out.reset_index()
 
 
 def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
     """The contests that enter the district-share measures, with ``votes_a``/``votes_b`` after the
-    uncontested policy and an ``uncontested`` flag. Multi-member contests and contests with no
-    major party are left out (they have no single two-party share per seat)."""
-    r = reduced[(reduced["seats"] == 1) & (reduced["status"] != "no_major")].copy()
+    uncontested policy and an ``uncontested`` flag. Left out: multi-member contests and contests
+    with no major party (no single two-party share per seat), and contests won by a minor party
+    or an independent (a two-party share would hand a major party a seat it did not win)."""
+    r = reduced[(reduced["seats"] == 1) & (reduced["status"] != "no_major")
+                & (reduced["winner"] != "other")].copy()
     lopsided = r["status"].isin(["uncontested", "same_party"])
     r["uncontested"] = lopsided
     va = r["votes_a"].astype(float)
     vb = r["votes_b"].astype(float)
     if policy == "impute":
-        a_side = r["votes_a"] > 0
-        a_side = np.where(r["votes_a"] == r["votes_b"], r["winner"] == "a", a_side)
+        # the one major party that stood gets the winner's share (even if it polled 0 votes)
+        a_side = (r["candidates_a"] > 0).to_numpy() if len(r) else np.zeros(0, dtype=bool)
         total = r["total"].astype(float)
         va = va.where(~lopsided, np.where(a_side, winner_share, 1 - winner_share) * total)
         vb = vb.where(~lopsided, np.where(a_side, 1 - winner_share, winner_share) * total)

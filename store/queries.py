@@ -11,9 +11,11 @@ import sqlite_utils
 UnitKey = tuple[int, str, str]
 
 
-def load_by_sha256(db: sqlite_utils.Database, sha256: str) -> dict | None:
+def load_by_sha256(db: sqlite_utils.Database, sha256: str, mapping_sha256: str | None = None) -> dict | None:
+    """The first load of these bytes read through this mapping (``None``: read natively)."""
     row = db.execute(
-        "SELECT id, file_name, loaded_at, outcome FROM loads WHERE sha256 = ? ORDER BY id LIMIT 1", [sha256]
+        "SELECT id, file_name, loaded_at, outcome FROM loads WHERE sha256 = ? AND mapping_sha256 IS ? "
+        "ORDER BY id LIMIT 1", [sha256, mapping_sha256]
     ).fetchone()
     return None if row is None else dict(zip(("id", "file_name", "loaded_at", "outcome"), row))
 

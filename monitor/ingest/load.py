@@ -78,7 +78,7 @@ class LoadReport:
             labels = ", ".join(f"{k!r} ({v})" for k, v in sorted(self.other_labels.items()))
             out.append(f"  party labels counted as 'other': {labels}")
         if self.skipped:
-            out.append(f"  skipped {len(self.skipped)} problem row(s):")
+            out.append(f"  skipped {self.rows_rejected} row(s):")
             out.extend(f"    {s}" for s in self.skipped)
         return out
 
@@ -108,12 +108,13 @@ def load_file(
     except OSError as exc:
         raise UsageError(f"{path}: cannot read ({exc.strerror})") from None
     report = LoadReport(file=raw.name, sha256=raw.sha256, outcome="dry run" if dry_run else "loaded")
-    earlier = queries.load_by_sha256(db, raw.sha256)
+    earlier = queries.load_by_sha256(db, raw.sha256, mapping.sha256 if mapping else None)
     if earlier is not None:
         report.outcome = "already loaded"
         report.load_id = earlier["id"]
-        report.note = (f"the same bytes (sha256 {raw.sha256[:12]}...) were loaded as load #{earlier['id']} "
-                       f"on {earlier['loaded_at']}; nothing changed")
+        report.note = (f"the same bytes (sha256 {raw.sha256[:12]}...)"
+                       + (" through the same mapping" if mapping else "")
+                       + f" were loaded as load #{earlier['id']} on {earlier['loaded_at']}; nothing changed")
         return report
 
     content = decompressed(raw, config["load.max_decompressed_mb"] * 2**20)
@@ -133,9 +134,13 @@ def load_file(
     if problems and not skip_bad_rows:
         raise DataError(problems, f"{len(problems)} problem(s) in {raw.name}; nothing was loaded "
                                   "(fix the file, or pass --skip-bad-rows to load the rest)")
+    # every skipped row is listed: rows with a problem, then rows dropped with their district or unit
+    named = {p.row for p in problems}
+    report.skipped = [str(p) for p in problems] + [
+        f"{raw.name}:{row}: skipped with the rest of its district or unit"
+        for row in sorted({records[i].row for i in bad} - named)]
     if bad:
         records = [r for i, r in enumerate(records) if i not in bad]
-    report.skipped = [str(p) for p in problems]
     report.rows_accepted = len({r.row for r in records})
     report.rows_rejected = report.rows_read - report.rows_filtered - report.rows_accepted
     if mapping is not None and mapping.candidate_lines == "sum":
@@ -219,6 +224,8 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport) -> None
         if before is not None:
             change.action = "corrected"
             change.changes = _describe_changes(conn, before["id"], reduced, contest_keys)
+            if before["certification"] != records[0].status:
+                change.changes.insert(0, f"status: {before['certification']} -> {records[0].status}")
             superseded.append(before["load_id"])
         unit_id = queries.insert_unit(conn, key, load_id, records[0].status, digest,
                                       before["id"] if before else None)

@@ -53,6 +53,10 @@ def load_mapping(path: Path) -> Mapping:
     for key in raw:
         if key not in TOP_KEYS:
             problems.append(f"unknown key {key!r}")
+    for key in ("keep", "parties", "exclude", "districts"):
+        if not isinstance(raw.get(key, {}), dict):
+            problems.append(f"{key} must be a table ([{key}] on its own line, then key = value lines)")
+            raw[key] = {}
     columns = raw.get("columns", {})
     if not isinstance(columns, dict) or not all(isinstance(v, str) and v for v in columns.values()):
         problems.append("[columns] must map our field names to their column names (text)")
@@ -71,6 +75,9 @@ def load_mapping(path: Path) -> Mapping:
     lines = raw.get("candidate_lines", "separate")
     if lines not in ("sum", "separate"):
         problems.append(f"candidate_lines must be \"sum\" or \"separate\", got {lines!r}")
+    for key in ("encoding", "source"):
+        if key in raw and not (isinstance(raw[key], str) and raw[key].strip()):
+            problems.append(f"{key} must be a non-empty text")
     delimiter = raw.get("delimiter", ",")
     if not isinstance(delimiter, str) or len(delimiter) != 1:
         problems.append("delimiter must be one character")

@@ -103,6 +103,9 @@ def parse_native(
             if record:
                 records.append(record)
             continue
+        # a wide row is one whole contest: a bad cell skips the row, never half of it
+        row_records: list[Record] = []
+        row_seen: set[Problem] = set()
         for label, i in parties:
             if not cells[i].strip():
                 continue  # party not on the ballot in this district
@@ -115,7 +118,10 @@ def parse_native(
                 return get(name)
 
             record, problems = parse_record(ctx, row, get_wide, {**columns, "votes": names[i]})
-            row_problems.extend(problems)
+            row_problems.extend(p for p in problems if p not in row_seen)  # a shared cell once
+            row_seen.update(problems)
             if record:
-                records.append(record)
+                row_records.append(record)
+        if not row_seen:
+            records.extend(row_records)
     return fmt, records, row_problems, read

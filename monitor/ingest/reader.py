@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
 
-from monitor.errors import DataError, Problem
+from monitor.errors import DataError, Problem, UsageError
 
 GZIP_MAGIC = b"\x1f\x8b"
 
@@ -69,7 +69,7 @@ def decode(name: str, content: bytes, encoding: str | None) -> str:
     try:
         text = content.decode(chosen)
     except LookupError:
-        raise DataError([Problem(name, None, None, f"unknown encoding {encoding!r}")]) from None
+        raise UsageError(f"unknown encoding {encoding!r} (try utf-8 or cp1252)") from None
     except UnicodeDecodeError as exc:
         row = content.count(b"\n", 0, exc.start) + 1
         hint = "" if encoding else "; if the file is in another encoding, pass --encoding (e.g. --encoding cp1252)"
@@ -77,6 +77,7 @@ def decode(name: str, content: bytes, encoding: str | None) -> str:
             [Problem(name, row, None,
                      f"byte 0x{content[exc.start]:02x} is not valid {chosen.replace('-sig', '')}{hint}")]
         ) from None
+    text = text.removeprefix("\ufeff")  # a BOM is not part of the header, whatever the encoding
     if "\x00" in text:
         row = text.count("\n", 0, text.index("\x00")) + 1
         raise DataError([Problem(name, row, None, "contains NUL bytes: this is not a text CSV file")])

@@ -1,0 +1,134 @@
+"""The store: migrations, pragmas, transactions, supersession and the browsing views."""
+
+from __future__ import annotations
+
+import sqlite3
+
+import pytest
+
+import store
+from store import queries
+from store.migrations import MIGRATIONS
+
+RESULT_VIEW_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id"]
+
+
+@pytest.fixture
+def db(tmp_path):
+    database = store.connect(tmp_path / "history.sqlite")
+    yield database
+    database.close()
+
+
+def test_migrations_are_numbered_and_recorded(db):
+    versions = [v for v, _, _ in MIGRATIONS]
+    assert versions == list(range(1, len(versions) + 1))
+    assert store.schema_version(db) == store.SCHEMA_VERSION == versions[-1]
+    assert [r[0] for r in db.execute("SELECT version FROM schema_version ORDER BY version")] == versions
+
+
+def test_migrating_again_changes_nothing(db):
+    assert store.migrate(db) == []
+    assert store.schema_version(db) == store.SCHEMA_VERSION
+
+
+def test_an_empty_database_is_at_version_zero(tmp_path):
+    bare = store.connect(tmp_path / "bare.sqlite", migrate=False)
+    assert store.schema_version(bare) == 0
+    assert store.migrate(bare) == [v for v, _, _ in MIGRATIONS]
+
+
+def test_a_store_newer_than_the_code_is_refused(db):
+    db.execute("INSERT INTO schema_version VALUES (?, 'from the future', 'now')", [store.SCHEMA_VERSION + 1])
+    with pytest.raises(RuntimeError, match="newer than this levelfield"):
+        store.migrate(db)
+
+
+def test_pragmas_wal_busy_timeout_foreign_keys(db):
+    assert db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+    assert db.execute("PRAGMA foreign_keys").fetchone()[0] == 1
+    assert db.execute("PRAGMA busy_timeout").fetchone()[0] >= 1000
+
+
+def test_required_tables_and_views_exist(db):
+    tables = set(db.table_names())
+    assert {"states", "chambers", "cycles", "plans", "loads", "units", "contests", "votes", "measures"} <= tables
+    assert {"district_results", "current_contests", "unit_history"} <= set(db.view_names())
+
+
+def test_district_results_has_exactly_the_contract_columns(db):
+    assert [c.name for c in db["district_results"].columns] == RESULT_VIEW_COLUMNS
+
+
+def test_foreign_keys_are_enforced(db):
+    with pytest.raises(sqlite3.IntegrityError):
+        db.execute("INSERT INTO contests (unit_id, district, status) VALUES (999, '1', 'contested')")
+
+
+def test_a_transaction_rolls_back_on_error(db):
+    with pytest.raises(ZeroDivisionError):
+        with store.transaction(db) as conn:
+            queries.ensure_keys(conn, "states", "code", ["QV"])
+            1 / 0
+    assert db.execute("SELECT COUNT(*) FROM states").fetchone()[0] == 0
+    with store.transaction(db) as conn:
+        queries.ensure_keys(conn, "states", "code", ["QV", "QV", "RX"])
+    assert [r[0] for r in db.execute("SELECT code FROM states ORDER BY code")] == ["QV", "RX"]
+
+
+def _load(conn, name="f.csv", sha="0" * 64) -> int:
+    return queries.insert_load(conn, {"file_name": name, "sha256": sha, "bytes": 1, "format": "native-long",
+                                      "rows_read": 1, "rows_accepted": 1, "rows_rejected": 0,
+                                      "loaded_at": "2024-01-01T00:00:00+00:00", "outcome": "loaded"})
+
+
+def _unit(conn, load_id, previous=None, votes=10) -> int:
+    key = (2024, "QV", "federal")
+    for table, column, value in (("cycles", "year", 2024), ("states", "code", "QV"), ("chambers", "code", "federal")):
+        queries.ensure_keys(conn, table, column, [value])
+    unit_id = queries.insert_unit(conn, key, load_id, "certified", f"hash{votes}", previous)
+    contest_id = queries.next_id(conn, "contests")
+    queries.insert_contests(conn, [(contest_id, unit_id, "1", 1, 0, "uncontested")])
+    queries.insert_votes(conn, [(contest_id, "Harbour", "a", "Maren Olvas", votes, 0, 2)])
+    return unit_id
+
+
+def test_a_new_unit_supersedes_the_current_one_and_both_stay(db):
+    with store.transaction(db) as conn:
+        first = _unit(conn, _load(conn, sha="1" * 64))
+    with store.transaction(db) as conn:
+        second = _unit(conn, _load(conn, sha="2" * 64), previous=first, votes=12)
+    assert db.execute("SELECT id, superseded_by, supersedes FROM units ORDER BY id").fetchall() == [
+        (first, second, None), (second, None, first)]
+    assert db.execute("SELECT votes, load_id FROM district_results").fetchall() == [(12, 2)]
+    assert db.execute("SELECT COUNT(*) FROM votes").fetchone()[0] == 2
+    assert queries.current_units(db.conn, [(2024, "QV", "federal")])[(2024, "QV", "federal")]["id"] == second
+    assert db.execute("SELECT contest_id, total_votes FROM current_contests").fetchall() == [(2, 12)]
+
+
+def test_two_current_units_for_one_key_are_impossible(db):
+    with store.transaction(db) as conn:
+        _unit(conn, _load(conn))
+    with pytest.raises(sqlite3.IntegrityError):
+        with store.transaction(db) as conn:
+            _unit(conn, _load(conn, sha="3" * 64))  # no previous: would be a second current unit
+    assert db.execute("SELECT COUNT(*) FROM units").fetchone()[0] == 1
+
+
+def test_load_by_sha256_tells_native_and_mapped_loads_apart(db):
+    with store.transaction(db) as conn:
+        _load(conn, sha="a" * 64)
+        conn.execute("UPDATE loads SET mapping_sha256 = ? WHERE id = 1", ["m" * 64])
+    assert queries.load_by_sha256(db, "a" * 64) is None
+    assert queries.load_by_sha256(db, "a" * 64, "m" * 64)["id"] == 1
+    assert queries.load_by_sha256(db, "a" * 64, "n" * 64) is None
+
+
+def test_two_connections_see_each_others_commits(tmp_path):
+    one = store.connect(tmp_path / "shared.sqlite")
+    two = store.connect(tmp_path / "shared.sqlite")
+    with store.transaction(one) as conn:
+        queries.ensure_keys(conn, "states", "code", ["QV"])
+    assert two.execute("SELECT code FROM states").fetchall() == [("QV",)]
+    one.close()
+    two.close()
