@@ -150,10 +150,12 @@ def test_a_fully_contested_unit_gives_identical_inputs_under_every_policy():
     assert len(results[0]) == 3 and not any(u for _, _, u in results[0].values())
 
 
-def test_impute_credits_the_party_that_stood_even_with_no_votes():
-    # a's only candidate polled 0 and an independent won: the party that stood is a, not b
-    got = inputs("impute", [(1, "a", "Ann", 0), (1, "other", "Ind", 20)])
-    assert got == {1: (15.0, 5.0, True)}
+def test_a_contest_won_by_an_independent_stays_out_of_the_measures():
+    # a's only candidate polled 0 and an independent won: no two-party share may hand a (or b)
+    # a seat neither won, under every policy
+    lines = [(1, "a", "Ann", 0), (1, "other", "Ind", 20), (2, "a", "Cy", 30), (2, "b", "Dee", 10)]
+    for policy in ("impute", "exclude", "none"):
+        assert inputs(policy, lines) == {2: (30.0, 10.0, False)}
 
 
 def test_an_unknown_policy_is_refused():
