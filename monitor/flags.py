@@ -81,6 +81,11 @@ def _group_seed(seed: int, cycle: int, chamber: str) -> list[int]:
     return [seed, int.from_bytes(digest[:8], "little")]
 
 
+def _state_key(state: str) -> int:
+    """A stable non-negative integer per state: its simulation stream's key."""
+    return int.from_bytes(hashlib.sha256(state.encode()).digest()[:4], "little")
+
+
 def _group_hash(units: pd.DataFrame, config: Config) -> str:
     h = hashlib.sha256(POOL_METHOD_VERSION.encode())
     h.update(json.dumps({k: config[k] for k in (
@@ -110,14 +115,14 @@ def pool_group(arrays, members: np.ndarray, config: Config, cycle: int, chamber:
     if ok.sum() >= 2 and live.any():
         pool = P.national_pool(va[ok], vb[ok], st[ok])
         idx = np.flatnonzero(live)
-        dele = P.simulate_delegations(
-            pool, units["state"].to_numpy()[idx], n[idx], share[idx],
-            rng=np.random.default_rng(_group_seed(config["pool.seed"], cycle, chamber)),
+        states = units["state"].to_numpy()[idx]
+        seats, nulls = P.compare_with_pool(
+            pool, states, n[idx], share[idx], observed["seats"][idx], {k: v[idx] for k, v in observed.items()},
+            rng=np.random.SeedSequence(_group_seed(config["pool.seed"], cycle, chamber)),
+            unit_key=np.array([_state_key(s) for s in states], dtype=np.int64),
             tol=config["pool.tolerance"], accepted=config["pool.draws"],
-            exclude_own=config["pool.exclude_own_state"],
+            exclude_own=config["pool.exclude_own_state"], alpha=config["flags.tail"],
         )
-        seats = P.expected_seats(dele, observed["seats"][idx])
-        nulls = P.null_distributions(dele, {k: v[idx] for k, v in observed.items()}, alpha=config["flags.tail"])
     else:
         idx = np.array([], dtype=int)
     pos = {u: i for i, u in enumerate(idx)}
