@@ -267,3 +267,45 @@ def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
     from monitor.output import to_text, write
 
     write(to_text(measures_export(ws.open_store()), fmt), out)
+
+
+@main.command()
+@click.option("--out", type=click.Path(path_type=Path, file_okay=False),
+              help="Folder to publish into (default the workspace's public/).")
+@click.pass_obj
+@guarded
+def publish(ws: Workspace, out: Path | None) -> None:
+    """Build the static site from the store: pages, charts, downloads and feed.
+
+    The site is built beside the output folder and swapped in at once: a failed build leaves
+    the previous site whole. Pages whose content did not change are not rewritten.
+    """
+    from monitor.publish import build
+
+    for line in build(ws, out=out).lines():
+        click.echo(line)
+
+
+@main.command()
+@click.option("--port", type=click.IntRange(0, 65_535), default=8000, show_default=True, help="Port on 127.0.0.1.")
+@click.option("--dir", "directory", type=click.Path(path_type=Path, file_okay=False),
+              help="Folder to serve (default the workspace's public/).")
+@click.pass_obj
+@guarded
+def serve(ws: Workspace, port: int, directory: Path | None) -> None:
+    """Preview the published site on http://127.0.0.1:PORT/ (this machine only)."""
+    from monitor.publish.serve import make_server
+
+    directory = directory or ws.folder("public")
+    if not (directory / "index.html").is_file():
+        raise UsageError(f"{directory} holds no site yet; run `levelfield publish` first")
+    try:
+        server = make_server(directory, port)
+    except OSError as exc:
+        raise UsageError(f"cannot listen on 127.0.0.1:{port}: {exc.strerror or exc}") from None
+    click.echo(f"serving {directory} at http://127.0.0.1:{server.server_address[1]}/ (Ctrl-C to stop)")
+    with server:
+        try:
+            server.serve_forever()
+        except KeyboardInterrupt:
+            click.echo("stopped")

@@ -80,7 +80,7 @@ OPTIONS: list[Option] = [
     ),
     Option(
         "measures", "competitive_window", 0.05,
-        "a district is competitive when |share - 0.5| is below this (common practice)",
+        "a district is competitive when |share - 0.5| is at most this (common practice)",
         _typed(float, low=0.0, high=0.5),
     ),
     Option(
