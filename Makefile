@@ -21,8 +21,14 @@ demo: $(STAMP)
 	$(LF) init
 	cp sample_history/levelfield.toml $(DEMO)/levelfield.toml
 	$(LF) load sample_history/results/*.csv
+	$(LF) plans sample_history/plans.csv
+	$(LF) compute
+	$(LF) flags --watch
+	$(LF) publish
 	$(LF) status
+	@echo
 	@echo "demo workspace: $(abspath $(DEMO))"
+	@echo "site:           $(abspath $(DEMO))/public/index.html  (or: $(LF) serve)"
 
 test: $(STAMP)
 	$(PY) -m pytest

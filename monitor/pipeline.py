@@ -41,6 +41,6 @@ def refresh(ws: Workspace, *, full: bool = False, publish: bool = True,
         from monitor.publish import build_site
 
         site = build_site(ws, db=db, config=config)
-        out.pages_written = getattr(site, "written", None)
+        out.pages_written = len(site.written)
         out.lines += site.lines()
     return out

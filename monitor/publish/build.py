@@ -1,0 +1,223 @@
+"""Build the site: collect -> render -> write, with an atomic swap.
+
+1. **collect** reads the store into frames (:func:`monitor.publish.collect.collect`);
+2. **render** turns them into every page, download and asset, ``path -> bytes``, in memory;
+3. **write** fills a fresh folder beside the output and swaps it into place in one step
+   (``renameat2(RENAME_EXCHANGE)`` on Linux; elsewhere two renames). A build that fails at any
+   stage leaves the previous site whole.
+
+Incremental: a file whose bytes are unchanged is not rewritten; it is hard-linked from the
+previous build (same inode, same mtime), so the pages of states whose data did not change stay
+byte-identical and untouched. All timestamps on the pages come from the data (the latest load
+behind each page) or ``$SOURCE_DATE_EPOCH``, never from the clock, so the same store gives the
+same bytes.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import ctypes
+import datetime as dt
+import errno
+import os
+import shutil
+import tempfile
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from pathlib import Path, PurePosixPath
+
+import sqlite_utils
+
+from monitor.config import Config
+from monitor.errors import UsageError
+from monitor.publish.collect import collect
+from monitor.publish.pages import render_site, static_assets
+from monitor.publish.runtime import RUNTIME_PATH, vega_runtime
+
+try:
+    import fcntl
+except ImportError:  # pragma: no cover - not on Windows
+    fcntl = None
+
+
+@dataclass
+class BuildReport:
+    """What a build did: paths (site-relative) written, left unchanged and removed."""
+
+    out: Path
+    written: list[str] = field(default_factory=list)
+    unchanged: list[str] = field(default_factory=list)
+    removed: list[str] = field(default_factory=list)
+    total_bytes: int = 0
+    site_time: dt.datetime | None = None
+    swap: str = ""
+
+    @property
+    def files(self) -> int:
+        return len(self.written) + len(self.unchanged)
+
+    @property
+    def pages(self) -> int:
+        return sum(1 for p in [*self.written, *self.unchanged] if p.endswith(".html"))
+
+    def lines(self) -> list[str]:
+        out = [f"published {self.pages} pages ({self.files} files, {self.total_bytes / 2**20:.1f} MiB) to {self.out}",
+               f"  {len(self.written)} written, {len(self.unchanged)} unchanged, {len(self.removed)} removed"]
+        if self.site_time is not None:
+            out.append(f"  data as of {self.site_time.isoformat()}")
+        shown = [p for p in self.written if p != RUNTIME_PATH]
+        if 0 < len(shown) <= 20:
+            out.extend(f"  wrote {p}" for p in shown)
+        return out
+
+
+def build(source, config: Config | None = None, out: str | Path | None = None, *,
+          templates: Sequence[str | Path] = ()) -> BuildReport:
+    """Build the site from ``source`` (a :class:`~monitor.workspace.Workspace` or a store
+    database) into ``out`` (default: the workspace's ``public/``).
+
+    ``templates``: folders searched before the built-in templates (overrides).
+    """
+    db, config, out = _resolve(source, config, out)
+    out = Path(out).absolute()
+    with _lock(out):
+        data = collect(db, config)
+        files = render_site(data, templates)
+        files.update(static_assets())
+        files[RUNTIME_PATH] = vega_runtime(out / RUNTIME_PATH)
+        report = write_site(files, out)
+    report.site_time = data.site_time
+    return report
+
+
+def build_site(ws, *, db: sqlite_utils.Database | None = None, config: Config | None = None,
+               out: str | Path | None = None, templates: Sequence[str | Path] = ()) -> BuildReport:
+    """:func:`build` for a workspace, reusing an open store and config when given (the
+    recompute chain calls this after the flags)."""
+    if db is None:
+        return build(ws, config, out, templates=templates)
+    return build(db, config or ws.config(), out or ws.folder("public"), templates=templates)
+
+
+def _resolve(source, config, out) -> tuple[sqlite_utils.Database, Config, Path]:
+    if isinstance(source, sqlite_utils.Database):
+        if config is None or out is None:
+            raise UsageError("building from a database needs both a config and an output folder")
+        return source, config, Path(out)
+    if hasattr(source, "open_store") and hasattr(source, "folder"):
+        return source.open_store(), config or source.config(), Path(out) if out else source.folder("public")
+    raise TypeError(f"build() needs a Workspace or a sqlite_utils.Database, got {type(source).__name__}")
+
+
+@contextlib.contextmanager
+def _lock(out: Path):
+    """One build at a time per output folder (a lock file beside it)."""
+    out.parent.mkdir(parents=True, exist_ok=True)
+    path = out.parent / f".{out.name}.lock"
+    with path.open("a") as fh:
+        if fcntl is not None:
+            fcntl.flock(fh, fcntl.LOCK_EX)
+        try:
+            yield
+        finally:
+            if fcntl is not None:
+                fcntl.flock(fh, fcntl.LOCK_UN)
+
+
+def _safe(path: str) -> PurePosixPath:
+    p = PurePosixPath(path)
+    if p.is_absolute() or not p.parts or any(part in ("", ".", "..") for part in p.parts):
+        raise ValueError(f"unsafe site path {path!r}")
+    return p
+
+
+def _same(old: Path, content: bytes) -> bool:
+    try:
+        if not old.is_file() or old.is_symlink() or old.stat().st_size != len(content):
+            return False
+        return old.read_bytes() == content
+    except OSError:
+        return False
+
+
+def write_site(files: dict[str, bytes], out: Path) -> BuildReport:
+    """Write ``files`` as the new content of ``out``: into a temp folder beside it, reusing
+    unchanged files of the previous build, then swap. On any error the temp folder is removed
+    and ``out`` is left as it was."""
+    out = Path(out).absolute()
+    if out.exists() and not out.is_dir():
+        raise UsageError(f"{out} exists and is not a folder")
+    out.parent.mkdir(parents=True, exist_ok=True)
+    report = BuildReport(out)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.build-", dir=out.parent))
+    try:
+        os.chmod(tmp, 0o755)
+        for path in sorted(files):
+            rel = _safe(path)
+            content = files[path]
+            dest = tmp.joinpath(*rel.parts)
+            dest.parent.mkdir(parents=True, exist_ok=True)
+            old = out.joinpath(*rel.parts)
+            report.total_bytes += len(content)
+            if _same(old, content):
+                _reuse(old, dest)
+                report.unchanged.append(path)
+            else:
+                dest.write_bytes(content)
+                report.written.append(path)
+        if out.is_dir():
+            report.removed = sorted(
+                p.relative_to(out).as_posix() for p in out.rglob("*")
+                if p.is_file() and p.relative_to(out).as_posix() not in files)
+        report.swap = _swap(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    shutil.rmtree(tmp, ignore_errors=True)  # after the swap: the previous site
+    return report
+
+
+def _reuse(old: Path, dest: Path) -> None:
+    try:
+        os.link(old, dest)
+    except OSError:
+        shutil.copy2(old, dest)
+
+
+_AT_FDCWD = -100
+_RENAME_EXCHANGE = 2
+
+
+def _exchange(a: Path, b: Path) -> bool:
+    """Atomically exchange two paths (Linux renameat2); False when unsupported here."""
+    try:
+        libc = ctypes.CDLL(None, use_errno=True)
+        renameat2 = libc.renameat2
+    except (OSError, AttributeError):
+        return False
+    renameat2.argtypes = [ctypes.c_int, ctypes.c_char_p, ctypes.c_int, ctypes.c_char_p, ctypes.c_uint]
+    if renameat2(_AT_FDCWD, os.fsencode(a), _AT_FDCWD, os.fsencode(b), _RENAME_EXCHANGE) == 0:
+        return True
+    code = ctypes.get_errno()
+    if code in (errno.ENOSYS, errno.EINVAL, errno.ENOTSUP, errno.EOPNOTSUPP):
+        return False
+    raise OSError(code, os.strerror(code), str(b))
+
+
+def _swap(new: Path, out: Path) -> str:
+    """Put ``new`` in place of ``out``; afterwards ``new`` holds the previous site (if any)."""
+    if not out.exists():
+        os.rename(new, out)
+        return "rename"
+    if _exchange(new, out):
+        return "exchange"
+    backup = out.with_name(f".{out.name}.previous")
+    shutil.rmtree(backup, ignore_errors=True)
+    os.rename(out, backup)
+    try:
+        os.rename(new, out)
+    except BaseException:
+        os.rename(backup, out)
+        raise
+    os.rename(backup, new)
+    return "two renames"

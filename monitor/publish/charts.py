@@ -1,0 +1,480 @@
+"""Chart specifications: Vega-Lite dicts, each with a text description and a table of its data
+(the accessible equivalent of the chart).
+
+No rendering here and no chart logic in templates: a page embeds ``Chart.spec`` as JSON and our
+loader script (``site/assets/charts.js``) draws it with the local Vega runtime. The specs follow
+the Vega-Lite schema that Altair bundles (``$schema`` is Altair's); they are written as plain
+dicts because composing layered charts through Altair's objects costs about a fifth of a second
+per chart, minutes for a national history. The tests validate every spec against that schema.
+
+Colours: the two party colours from ``levelfield.toml`` for what belongs to a party; everything
+else uses the neutral palette below. Flagged values are marked by shape as well as colour
+(triangle up: favours party a, triangle down: favours party b), so the charts read in
+greyscale too.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import altair as alt
+import numpy as np
+import pandas as pd
+
+from monitor.config import Party
+from monitor.publish import formats as F
+
+INK = "#2b2a27"
+MUTED = "#6f6b63"
+FAINT = "#b9b4a9"
+GRID = "#e7e3da"
+ERA_FILLS = ("#f3f0e8", "#e6e2d6")
+BAND = "#cdd3d8"
+FONT = "system-ui, -apple-system, 'Segoe UI', Roboto, 'Helvetica Neue', Arial, sans-serif"
+NOT_FLAGGED = "not flagged"
+SCHEMA_URL = alt.SCHEMA_URL
+
+CONFIG = {
+    "font": FONT,
+    "background": "#ffffff",
+    "view": {"stroke": None},
+    "axis": {"labelColor": MUTED, "titleColor": INK, "gridColor": GRID, "domainColor": FAINT,
+             "tickColor": FAINT, "labelFontSize": 11, "titleFontSize": 12, "titleFontWeight": "normal",
+             "titlePadding": 8},
+    "legend": {"orient": "bottom", "labelColor": INK, "titleColor": INK, "labelFontSize": 11,
+               "titleFontSize": 11, "titleFontWeight": "normal", "symbolStrokeWidth": 1.5,
+               "labelLimit": 320},
+    "text": {"color": INK, "fontSize": 11},
+}
+
+#: Digits shown for each measure (three for share-like measures).
+DIGITS = {"efficiency_gap_seats": 2, "lopsided_t": 2, "seats": 2, "mean_median_z": 2, "responsiveness": 2,
+          "seats_at_flipped_vote": 1}
+
+
+def fmt_measure(measure: str, value) -> str:
+    return F.signed(value, DIGITS.get(measure, 3))
+
+
+@dataclass
+class Chart:
+    """One chart: the spec, its accessible text and the table of its data."""
+
+    id: str
+    title: str
+    description: str
+    spec: dict
+    columns: list[str] = field(default_factory=list)
+    rows: list[list[str]] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class Style:
+    a: Party
+    b: Party
+
+    def party(self, code) -> str:
+        return {"a": self.a.name, "b": self.b.name}.get(code, NOT_FLAGGED)
+
+    def flag_domain(self) -> list[str]:
+        return [f"favours {self.a.name}", f"favours {self.b.name}", NOT_FLAGGED]
+
+    def flag_colour(self) -> dict:
+        return {"domain": self.flag_domain(), "range": [self.a.colour, self.b.colour, MUTED]}
+
+    def flag_shape(self) -> dict:
+        return {"domain": self.flag_domain(), "range": ["triangle-up", "triangle-down", "circle"]}
+
+    def flag_label(self, flagged, direction) -> str:
+        if flagged and direction in ("a", "b"):
+            return f"favours {self.party(direction)}"
+        return NOT_FLAGGED
+
+
+# --- spec helpers -------------------------------------------------------------------------------
+def _clean(value):
+    if value is None or value is pd.NA:
+        return None
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return None if math.isnan(value) or math.isinf(value) else round(value, 6)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
+
+
+def records(frame: pd.DataFrame, columns: list[str]) -> list[dict]:
+    """Rows as JSON-ready dicts (NaN -> null, floats rounded to 6 digits)."""
+    cols = [frame[c].tolist() for c in columns]
+    return [{c: _clean(v) for c, v in zip(columns, row)} for row in zip(*cols)]
+
+
+def _q(field_name: str, **extra) -> dict:
+    return {"field": field_name, "type": "quantitative", **extra}
+
+
+def _n(field_name: str, **extra) -> dict:
+    return {"field": field_name, "type": "nominal", **extra}
+
+
+def _tip(field_name: str, kind: str = "quantitative", title: str | None = None, fmt: str | None = None) -> dict:
+    out = {"field": field_name, "type": kind}
+    if title:
+        out["title"] = title
+    if fmt:
+        out["format"] = fmt
+    return out
+
+
+def _spec(layers: list[dict], datasets: dict[str, list], height: int) -> dict:
+    return {"$schema": SCHEMA_URL, "width": "container", "height": height, "autosize": {"type": "fit-x", "contains": "padding"},
+            "config": CONFIG, "datasets": datasets, "layer": layers}
+
+
+def _rule(axis: str, value: float, title: str, colour: str = FAINT, dash: list | None = None) -> dict:
+    """A reference line; ``title`` repeats the axis title so that layers merge to one title."""
+    mark = {"type": "rule", "color": colour}
+    if dash:
+        mark["strokeDash"] = dash
+    return {"data": {"values": [{"v": value}]}, "mark": mark, "encoding": {axis: _q("v", title=title)}}
+
+
+def _cycle_axis(lo: float, hi: float) -> dict:
+    return _q("cycle", title="cycle", scale={"domain": [lo, hi], "nice": False, "zero": False},
+              axis={"format": "d", "tickMinStep": 2})
+
+
+def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[dict]]:
+    """Era rectangles (first - 1 to last + 1, clipped to the shown cycles), alternately shaded
+    (two layers with a constant colour each, so the colour scale stays free for the data), and
+    the era labels: ``[rect_even, rect_odd]`` go under the data, ``[labels]`` over it."""
+    if eras.empty:
+        return [], []
+    e = eras.copy()
+    e["x"] = np.maximum(e["first_cycle"].astype(float) - 1, lo)
+    e["x2"] = np.minimum(e["last_cycle"].astype(float).fillna(hi) + 1, hi)
+    e = e[e["x2"] > e["x"]].sort_values("x").reset_index(drop=True)
+    e["parity"] = [i % 2 for i in range(len(e))]
+    e["label_y"] = e["parity"] * 12.0  # staggered, so that neighbouring labels do not overlap
+    x = _q("x", title="cycle")
+    rects = [{"data": {"name": "eras"}, "transform": [{"filter": {"field": "parity", "equal": k}}],
+              "mark": {"type": "rect", "color": ERA_FILLS[k]},
+              "encoding": {"x": x, "x2": {"field": "x2"}, "tooltip": [_tip("era_label", "nominal", "plan")]}}
+             for k in (0, 1) if (e["parity"] == k).any()]
+    labels = {"data": {"name": "eras"}, "mark": {"type": "text", "align": "left", "baseline": "top", "dx": 3, "dy": 3,
+                                                  "fontSize": 10, "color": MUTED},
+              "encoding": {"x": x, "y": _q("label_y", scale=None), "text": _n("era_label")}}
+    return records(e, ["x", "x2", "parity", "label_y", "era_label"]), rects + [labels]
+
+
+# --- charts -----------------------------------------------------------------------------------------
+def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
+    """District two-party shares of party a nationwide (after the uncontested policy).
+
+    ``hist``: bin_start, bin_end, kind (won by a | won by b | tied | uncontested ...), districts.
+    """
+    kinds = [f"won by {style.a.name}", f"won by {style.b.name}", "tied", "uncontested (imputed share)"]
+    frame = hist.assign(kind=hist["kind"].replace({"won by a": kinds[0], "won by b": kinds[1]}))
+    frame = frame.assign(order=frame["kind"].map({k: i for i, k in enumerate(kinds)}))
+    bars = {"data": {"name": "bins"}, "mark": {"type": "bar", "stroke": "#ffffff", "strokeWidth": 0.5},
+            "encoding": {
+                "x": _q("bin_start", title=f"{style.a.name} share of the two-party vote in the district",
+                        scale={"domain": [0, 1], "nice": False}, axis={"format": ".0%"}),
+                "x2": {"field": "bin_end"},
+                "y": _q("districts", aggregate="sum", title="districts", stack="zero"),
+                "color": _n("kind", title=None, scale={"domain": kinds, "range": [style.a.colour, style.b.colour, MUTED, FAINT]}),
+                "order": _q("order"),
+                "tooltip": [_tip("bin_start", title="from", fmt=".1%"), _tip("bin_end", title="to", fmt=".1%"),
+                            _tip("kind", "nominal"), _tip("districts")]}}
+    spec = _spec([bars, _rule("x", 0.5, bars["encoding"]["x"]["title"], INK, [4, 3])],
+                 {"bins": records(frame, ["bin_start", "bin_end", "kind", "order", "districts"])}, 220)
+    total = int(frame["districts"].sum())
+    a_won = int(frame.loc[frame["kind"] == kinds[0], "districts"].sum())
+    imputed = int(frame.loc[frame["kind"] == kinds[3], "districts"].sum())
+    width = float(hist["bin_end"].iloc[0] - hist["bin_start"].iloc[0]) if len(hist) else 0.0
+    desc = (f"Histogram of the {total} district results of {cycle} ({chamber_label}) by {style.a.name}'s share "
+            f"of the two-party vote, in bins of {F.share(width, 1)}. {a_won} districts lie above 50% (won by "
+            f"{style.a.name}); {imputed} uncontested districts are shown at their imputed share.")
+    rows = [[f"{F.share(r.bin_start)} to {F.share(r.bin_end)}", r.kind, F.count(r.districts)] for r in frame.itertuples()]
+    return Chart(chart_id, f"District shares, {chamber_label}, {cycle}", desc, spec, ["share bin", "kind", "districts"], rows)
+
+
+def _with_flags(frame: pd.DataFrame, style: Style) -> pd.DataFrame:
+    return frame.assign(flag=[style.flag_label(fl, d) for fl, d in zip(frame["flagged"], frame["direction"])])
+
+
+def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style: Style, cycle: int,
+                 chamber_label: str) -> Chart:
+    """One measure across states in a cycle: a strip of values, flagged states marked and named.
+
+    ``frame``: state_label, value, flagged, direction.
+    """
+    f = _with_flags(frame, style).dropna(subset=["value"])
+    flagged_labels = style.flag_domain()[:2]
+    points = {"data": {"name": "states"}, "mark": {"type": "point", "filled": True, "size": 70, "opacity": 0.85},
+              "encoding": {
+                  "x": _q("value", title=f"{label} (positive favours {style.a.name})"),
+                  "y": _n("flag", title=None, sort=style.flag_domain(), axis={"labels": False, "ticks": False, "domain": False}),
+                  "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
+                  "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
+                  "tooltip": [_tip("state_label", "nominal", "state"), _tip("value", fmt="+.3f"), _tip("flag", "nominal")]}}
+    xtitle = points["encoding"]["x"]["title"]
+    names = {"data": {"name": "states"}, "transform": [{"filter": {"field": "flag", "oneOf": flagged_labels}}],
+             "mark": {"type": "text", "dy": -11, "fontSize": 10},
+             "encoding": {"x": _q("value", title=xtitle), "y": _n("flag", title=None, sort=style.flag_domain()),
+                          "text": _n("state_label")}}
+    flagged = f[f["flag"] != NOT_FLAGGED]
+    layers = [_rule("x", 0.0, xtitle), points] + ([names] if len(flagged) else [])
+    spec = _spec(layers, {"states": records(f, ["state_label", "value", "flag"])}, 90)
+    desc = (f"{label} of {len(f)} states in {cycle} ({chamber_label}): median {fmt_measure(measure, f['value'].median())}, "
+            f"from {fmt_measure(measure, f['value'].min())} to {fmt_measure(measure, f['value'].max())}. ")
+    desc += (f"Flagged at the tails: {', '.join(f'{r.state_label} ({r.flag})' for r in flagged.itertuples())}."
+             if len(flagged) else "No state is flagged on this measure.")
+    rows = [[r.state_label, fmt_measure(measure, r.value), r.flag] for r in f.sort_values("value", ascending=False).itertuples()]
+    return Chart(chart_id, f"{label} across states, {cycle}", desc, spec, ["state", label, "flag"], rows)
+
+
+def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, label: str, style: Style,
+          where: str, thresholds: list[dict] | None = None) -> Chart:
+    """A measure of one state over all cycles: its 95% interval, its national-pool null band
+    (where it is judged against one), flagged cycles marked, plan eras shaded and labelled.
+
+    ``frame``: cycle, value, low, high, null_low, null_high, flagged, direction, certification.
+    ``eras``: first_cycle, last_cycle, era_label.
+    """
+    f = _with_flags(frame, style)
+    lo, hi = float(f["cycle"].min()) - 1, float(f["cycle"].max()) + 1
+    x = _cycle_axis(lo, hi)
+    era_rows, era_layers = _eras(eras, lo, hi)
+    layers = era_layers[:-1]
+    if f["null_low"].notna().any():
+        layers.append({"data": {"name": "values"}, "mark": {"type": "area", "color": BAND, "opacity": 0.6},
+                       "encoding": {"x": x, "y": _q("null_low", title=label), "y2": {"field": "null_high"},
+                                    "tooltip": [_tip("cycle"), _tip("null_low", title="null tail from", fmt="+.3f"),
+                                                _tip("null_high", title="null tail to", fmt="+.3f")]}})
+    layers.append(_rule("y", 0.0, label))
+    lines = [{"v": s * float(t["value"]), "text": f"proposed threshold ({t.get('applies_to', '')}), not law"}
+             for t in (thresholds or []) for s in (1, -1)]
+    if lines:
+        layers.append({"data": {"values": lines}, "mark": {"type": "rule", "color": MUTED, "strokeDash": [2, 3]},
+                       "encoding": {"y": _q("v", title=label), "tooltip": [_tip("text", "nominal", "reference")]}})
+    if f["low"].notna().any():
+        layers.append({"data": {"name": "values"}, "mark": {"type": "rule", "color": MUTED, "strokeWidth": 1.5},
+                       "encoding": {"x": x, "y": _q("low", title=label), "y2": {"field": "high"}}})
+    layers.append({"data": {"name": "values"}, "mark": {"type": "line", "color": INK, "strokeWidth": 1},
+                   "encoding": {"x": x, "y": _q("value", title=label)}})
+    layers.append({"data": {"name": "values"}, "mark": {"type": "point", "filled": True, "size": 60, "opacity": 1},
+                   "encoding": {
+                       "x": x, "y": _q("value", title=label),
+                       "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
+                       "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
+                       "tooltip": [_tip("cycle"), _tip("value", fmt="+.3f")]
+                       + ([_tip("low", title="95% low", fmt="+.3f"), _tip("high", title="95% high", fmt="+.3f")]
+                          if f["low"].notna().any() else [])
+                       + [_tip("flag", "nominal"), _tip("certification", "nominal", "results")]}})
+    layers += era_layers[-1:]
+    datasets = {"values": records(f, ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"])}
+    if era_rows:
+        datasets["eras"] = era_rows
+    defined = f.dropna(subset=["value"])
+    flagged = f[f["flag"] != NOT_FLAGGED]
+    desc = f"{label} of {where}: {len(defined)} of {len(f)} cycles defined"
+    if len(defined):
+        last = defined.iloc[-1]
+        desc += f"; latest {int(last['cycle'])}: {fmt_measure(measure, last['value'])}"
+        if not F.missing(last["low"]):
+            desc += f" (95% interval {fmt_measure(measure, last['low'])} to {fmt_measure(measure, last['high'])})"
+    desc += f". Positive values favour {style.a.name}, negative values {style.b.name}. "
+    desc += ("Flagged at the national tails in " + ", ".join(f"{int(r.cycle)} ({r.flag})" for r in flagged.itertuples()) + "."
+             if len(flagged) else "Not flagged in any cycle.")
+    if not eras.empty:
+        desc += " Plan eras: " + "; ".join(f"{int(r.first_cycle)} on, {r.era_label}" for r in eras.itertuples()) + "."
+    if lines:
+        desc += " Dotted lines: thresholds proposed in the literature (proposals, not law)."
+    rows = [[str(int(r.cycle)), fmt_measure(measure, r.value), fmt_measure(measure, r.low), fmt_measure(measure, r.high),
+             (f"{fmt_measure(measure, r.null_low)} to {fmt_measure(measure, r.null_high)}" if not F.missing(r.null_low) else F.DASH),
+             r.flag, r.certification] for r in f.itertuples()]
+    return Chart(chart_id, label, desc, _spec(layers, datasets, 190),
+                 ["cycle", label, "95% low", "95% high", "national-pool null (outer tails)", "flag", "results"], rows)
+
+
+def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, style: Style, where: str) -> Chart:
+    """Party a's vote share, seat share and expected seat share (national pool) over cycles.
+
+    ``frame``: cycle, vote_share, seat_share, expected_share, expected_low, expected_high.
+    """
+    f = frame
+    lo, hi = float(f["cycle"].min()) - 1, float(f["cycle"].max()) + 1
+    x = _cycle_axis(lo, hi)
+    names = {"vote_share": f"{style.a.name} vote share", "seat_share": f"{style.a.name} seat share"}
+    long = f.melt(id_vars=["cycle"], value_vars=["vote_share", "seat_share"], var_name="series", value_name="share")
+    long["series"] = long["series"].map(names)
+    domain = list(names.values())
+    era_rows, era_layers = _eras(eras, lo, hi)
+    layers = era_layers[:-1]
+    if f["expected_share"].notna().any():
+        layers.append({"data": {"name": "seats"}, "mark": {"type": "area", "color": BAND, "opacity": 0.7},
+                       "encoding": {"x": x, "y": _q("expected_low", title=f"{style.a.name} share"), "y2": {"field": "expected_high"},
+                                    "tooltip": [_tip("cycle"), _tip("expected_share", title="expected seat share", fmt=".1%"),
+                                                _tip("expected_low", title="95% low", fmt=".1%"),
+                                                _tip("expected_high", title="95% high", fmt=".1%")]}})
+    layers.append(_rule("y", 0.5, f"{style.a.name} share"))
+    share = _q("share", title=f"{style.a.name} share", scale={"domain": [0, 1], "nice": False}, axis={"format": ".0%"})
+    colour = _n("series", title=None, scale={"domain": domain, "range": [MUTED, INK]})
+    layers.append({"data": {"name": "long"}, "mark": {"type": "line", "strokeWidth": 1.5},
+                   "encoding": {"x": x, "y": share, "color": colour,
+                                "strokeDash": _n("series", title=None, scale={"domain": domain, "range": [[4, 3], [1, 0]]})}})
+    layers.append({"data": {"name": "long"}, "mark": {"type": "point", "filled": True, "size": 45, "opacity": 1},
+                   "encoding": {"x": x, "y": share, "color": colour,
+                                "shape": _n("series", title=None, scale={"domain": domain, "range": ["square", "circle"]}),
+                                "tooltip": [_tip("cycle"), _tip("series", "nominal"), _tip("share", fmt=".1%")]}})
+    layers += era_layers[-1:]
+    datasets = {"seats": records(f, ["cycle", "expected_share", "expected_low", "expected_high"]),
+                "long": records(long, ["cycle", "series", "share"])}
+    if era_rows:
+        datasets["eras"] = era_rows
+    last = f.iloc[-1]
+    desc = (f"{style.a.name}'s share of the two-party vote and of the seats in {where}, {int(f['cycle'].min())} to "
+            f"{int(last['cycle'])}. In {int(last['cycle'])}: {F.share(last['vote_share'])} of the vote, "
+            f"{F.share(last['seat_share'])} of the seats")
+    if not F.missing(last["expected_share"]):
+        desc += (f"; delegations drawn from the national pool at the same vote would expect "
+                 f"{F.share(last['expected_share'])} (95% {F.share(last['expected_low'])} to {F.share(last['expected_high'])})"
+                 ". The grey band is that expectation")
+    desc += "."
+    rows = [[str(int(r.cycle)), F.share(r.vote_share), F.share(r.seat_share), F.share(r.expected_share),
+             (f"{F.share(r.expected_low)} to {F.share(r.expected_high)}" if not F.missing(r.expected_low) else F.DASH)]
+            for r in f.itertuples()]
+    return Chart(chart_id, "Seats and votes over time", desc, _spec(layers, datasets, 200),
+                 ["cycle", "vote share", "seat share", "expected seat share", "expected 95%"], rows)
+
+
+def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style: Style, where: str) -> Chart:
+    """The seats-votes curve of the current plan under uniform swing, with the observed result,
+    the flipped-vote point and the 50% point.
+
+    ``curve``: vote, seat_share (step vertices). ``points``: point, vote, seat_share, seats, districts.
+    """
+    marks = ["observed", "flipped vote", "even vote"]
+    axis = {"format": ".0%"}
+    xt, yt = f"{style.a.name} statewide share of the two-party vote", f"{style.a.name} seat share"
+    layers = [
+        _rule("x", 0.5, xt, GRID), _rule("y", 0.5, yt, GRID),
+        {"data": {"values": [{"vote": 0, "seat_share": 0}, {"vote": 1, "seat_share": 1}]},
+         "mark": {"type": "line", "color": FAINT, "strokeDash": [2, 3]},
+         "encoding": {"x": _q("vote", title=xt), "y": _q("seat_share", title=yt)}},
+        {"data": {"name": "curve"}, "mark": {"type": "line", "interpolate": "step-after", "color": style.a.colour, "strokeWidth": 2},
+         "encoding": {"x": _q("vote", title=xt, scale={"domain": [0, 1], "nice": False}, axis=axis),
+                      "y": _q("seat_share", title=yt, scale={"domain": [0, 1], "nice": False}, axis=axis)}},
+        {"data": {"name": "points"}, "mark": {"type": "point", "filled": True, "size": 90, "opacity": 1},
+         "encoding": {"x": _q("vote", title=xt), "y": _q("seat_share", title=yt),
+                      "shape": _n("point", title=None, scale={"domain": marks, "range": ["circle", "diamond", "square"]}),
+                      "color": _n("point", title=None, scale={"domain": marks, "range": [INK, style.b.colour, MUTED]}),
+                      "tooltip": [_tip("point", "nominal"), _tip("vote", fmt=".1%"), _tip("seat_share", title="seat share", fmt=".1%"),
+                                  _tip("seats", fmt=".1f")]}},
+    ]
+    datasets = {"curve": records(curve, ["vote", "seat_share"]), "points": records(points, ["point", "vote", "seat_share", "seats"])}
+    by = points.set_index("point")
+    obs, flip, even = by.loc["observed"], by.loc["flipped vote"], by.loc["even vote"]
+    n = int(points["districts"].iloc[0])
+    desc = (f"Seats-votes curve of {where} under uniform swing: every district's share shifted by the same amount. "
+            f"Observed: {F.share(obs['vote'])} of the vote gave {style.a.name} {F.number(obs['seats'], 1)} of {n} seats. "
+            f"With the vote flipped to {F.share(flip['vote'])}, {style.a.name} would win {F.number(flip['seats'], 1)} seats "
+            f"(a symmetric plan would give {F.number(n - obs['seats'], 1)}). At 50% of the vote: "
+            f"{F.number(even['seats'], 1)} seats (partisan bias {F.signed(even['seat_share'] - 0.5)}).")
+    rows = [[F.share(r.vote), F.share(r.seat_share)] for r in curve.itertuples()]
+    rows += [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
+             for r in points.itertuples()]
+    return Chart(chart_id, "Seats-votes curve of the current plan", desc, _spec(layers, datasets, 260),
+                 ["statewide vote share", "seat share"], rows)
+
+
+def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style: Style, cycle: int,
+            chamber_label: str) -> Chart:
+    """All states ranked by a measure in one cycle; flagged states coloured by the party favoured.
+
+    ``frame``: state_label, value, flagged, direction.
+    """
+    f = _with_flags(frame, style).dropna(subset=["value"]).sort_values(["value", "state_label"], ascending=[False, True])
+    order = list(dict.fromkeys(f["state_label"]))
+    bars = {"data": {"name": "states"}, "mark": {"type": "bar", "height": {"band": 0.7}},
+            "encoding": {"x": _q("value", title=f"{label} (positive favours {style.a.name})"),
+                         "y": _n("state_label", title=None, sort=order),
+                         "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
+                         "tooltip": [_tip("state_label", "nominal", "state"), _tip("value", fmt="+.3f"), _tip("flag", "nominal")]}}
+    spec = _spec([bars, _rule("x", 0.0, bars["encoding"]["x"]["title"], INK)],
+                 {"states": records(f, ["state_label", "value", "flag"])}, max(60, 16 * len(f)))
+    flagged = f[f["flag"] != NOT_FLAGGED]
+    desc = f"{len(f)} states ranked by {label} in {cycle} ({chamber_label}). "
+    if len(f):
+        desc += (f"Highest: {f.iloc[0]['state_label']} {fmt_measure(measure, f.iloc[0]['value'])}; lowest: "
+                 f"{f.iloc[-1]['state_label']} {fmt_measure(measure, f.iloc[-1]['value'])}. ")
+    desc += (f"Flagged: {', '.join(f'{r.state_label} ({r.flag})' for r in flagged.itertuples())}." if len(flagged)
+             else "None flagged.")
+    rows = [[str(i), r.state_label, fmt_measure(measure, r.value), r.flag] for i, r in enumerate(f.itertuples(), 1)]
+    return Chart(chart_id, f"{label}, {chamber_label}, {cycle}", desc, spec, ["rank", "state", label, "flag"], rows)
+
+
+def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
+    """Expected seats (national pool, with its 95% interval) against the seats actually won.
+
+    ``frame``: state_label, districts, seats_a, expected_seats, low, high, excess_seats.
+    """
+    f = frame.dropna(subset=["expected_seats"]).sort_values(["excess_seats", "state_label"], ascending=[False, True])
+    order = list(dict.fromkeys(f["state_label"]))
+    marks = ["expected (national pool)", f"won by {style.a.name}"]
+    f = f.assign(kind_expected=marks[0], kind_won=marks[1])
+    y = _n("state_label", title=None, sort=order)
+    x_title = f"{style.a.name} seats"
+    colour = {"domain": marks, "range": [INK, style.a.colour]}
+    tips = [_tip("state_label", "nominal", "state"), _tip("seats_a", title="seats won", fmt=".1f"),
+            _tip("expected_seats", title="expected", fmt=".2f"), _tip("low", title="95% low", fmt=".1f"),
+            _tip("high", title="95% high", fmt=".1f"), _tip("excess_seats", title="excess seats", fmt="+.2f")]
+    layers = [
+        {"data": {"name": "units"}, "mark": {"type": "rule", "color": FAINT, "strokeWidth": 3},
+         "encoding": {"x": _q("low", title=x_title, axis={"format": "d", "tickMinStep": 1}), "x2": {"field": "high"}, "y": y}},
+        {"data": {"name": "units"}, "mark": {"type": "tick", "thickness": 2, "size": 14},
+         "encoding": {"x": _q("expected_seats", title=x_title), "y": y, "color": _n("kind_expected", title=None, scale=colour),
+                      "tooltip": tips}},
+        {"data": {"name": "units"}, "mark": {"type": "point", "filled": True, "size": 60, "opacity": 1},
+         "encoding": {"x": _q("seats_a", title=x_title), "y": y, "color": _n("kind_won", title=None, scale=colour),
+                      "tooltip": tips}},
+    ]
+    datasets = {"units": records(f, ["state_label", "low", "high", "expected_seats", "seats_a", "excess_seats",
+                                     "kind_expected", "kind_won"])}
+    desc = (f"Seats {style.a.name} won in each state in {cycle} ({chamber_label}) against the seats expected for "
+            f"delegations of the same size and statewide vote drawn from the national pool (bar: 95% interval). ")
+    if len(f):
+        top, bottom = f.iloc[0], f.iloc[-1]
+        desc += (f"Largest excess for {style.a.name}: {top['state_label']} {F.signed(top['excess_seats'], 2)} seats; "
+                 f"smallest: {bottom['state_label']} {F.signed(bottom['excess_seats'], 2)} seats.")
+    rows = [[r.state_label, F.count(r.districts), F.number(r.seats_a, 1), F.number(r.expected_seats, 2),
+             f"{F.number(r.low, 1)} to {F.number(r.high, 1)}", F.signed(r.excess_seats, 2)] for r in f.itertuples()]
+    return Chart(chart_id, f"Expected and actual seats, {chamber_label}, {cycle}", desc,
+                 _spec(layers, datasets, max(60, 18 * len(f))),
+                 ["state", "districts", "seats won", "expected", "expected 95%", "excess seats"], rows)
+
+
+def excess_by_drawer(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
+    """Sum of excess seats (actual minus expected) by who drew the plan in force.
+
+    ``frame``: drawer (label), excess_seats (sum), units.
+    """
+    sides = [f"towards {style.a.name}", f"towards {style.b.name}"]
+    f = frame.assign(side=np.where(frame["excess_seats"] >= 0, sides[0], sides[1]))
+    bars = {"data": {"name": "drawers"}, "mark": {"type": "bar"},
+            "encoding": {"x": _q("excess_seats", title=f"excess seats (positive: more than expected for {style.a.name})"),
+                         "y": _n("drawer", title=None, sort=list(f["drawer"])),
+                         "color": _n("side", title=None, scale={"domain": sides, "range": [style.a.colour, style.b.colour]}),
+                         "tooltip": [_tip("drawer", "nominal", "drawn by"), _tip("excess_seats", fmt="+.2f"),
+                                     _tip("units", title="states")]}}
+    spec = _spec([bars, _rule("x", 0.0, bars["encoding"]["x"]["title"], INK)], {"drawers": records(f, ["drawer", "excess_seats", "units", "side"])},
+                 max(60, 26 * len(f)))
+    desc = (f"Excess seats summed by who drew the plan in force, {cycle} ({chamber_label}): "
+            + "; ".join(f"{r.drawer}: {F.signed(r.excess_seats, 2)} over {int(r.units)} states" for r in f.itertuples()) + ".")
+    rows = [[r.drawer, F.count(r.units), F.signed(r.excess_seats, 2)] for r in f.itertuples()]
+    return Chart(chart_id, f"Excess seats by who drew the plan, {chamber_label}, {cycle}", desc, spec,
+                 ["drawn by", "states", "excess seats"], rows)

@@ -1,0 +1,252 @@
+"""Downloads: results, measures and flags as CSV and JSON, described by a Frictionless Data
+Package descriptor (``datapackage.json``, Data Package spec v1, https://specs.frictionlessdata.io/).
+
+CSV cells of text fields that begin with ``=``, ``+``, ``-``, ``@`` (or a tab or carriage return)
+get a leading single quote, so that a spreadsheet does not run them as formulas (OWASP, "CSV
+Injection"). Numbers are written as numbers and never quoted that way; a text cell that is a plain
+number (a district code "-1", say) is not a formula either and stays as it is. The JSON files hold
+the original text.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import json
+import re
+
+import pandas as pd
+
+from monitor.publish import formats as F
+from monitor.publish.collect import SiteData
+
+#: Field types of the Table Schema spec (v1) that our schemas may use.
+FRICTIONLESS_TYPES = {"string", "number", "integer", "boolean", "object", "array", "date", "time", "datetime",
+                      "year", "yearmonth", "duration", "geopoint", "geojson", "any"}
+
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+_PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
+
+KEYS = [("cycle", "integer", "election year"), ("state", "string", "state code as loaded"),
+        ("chamber", "string", "chamber code as loaded (federal, state_lower, ...)")]
+
+
+RESOURCES: list[dict] = [
+    {"name": "results", "title": "District results",
+     "description": "Every current vote line (the district_results columns) with its contest's two-party reduction. "
+                    "status is certified or unofficial: unofficial results can change until certified.",
+     "fields": [*KEYS, ("district", "string", "district code (AL: a single at-large seat)"),
+                ("party", "string", "party label as printed"), ("candidate", "string", "candidate name"),
+                ("votes", "integer", "votes of this line"), ("status", "string", "certified | unofficial"),
+                ("load_id", "integer", "the load that delivered this unit (see loads)"),
+                ("special", "boolean", "special election contest"), ("seats", "integer", "seats of the contest"),
+                ("contest_status", "string", "contested | uncontested | same_party | no_major"),
+                ("votes_a", "integer", "contest votes of party a (fusion lines attributed)"),
+                ("votes_b", "integer", "contest votes of party b"),
+                ("share_a", "number", "party a's share of the contest's two-party vote (before any imputation)"),
+                ("winner", "string", "a | b | other | split")]},
+    {"name": "measures", "title": "Measures per state, chamber and cycle",
+     "description": "One row per unit and measure. Signed measures are positive when they favour party a. "
+                    "low/high: 95% interval where given; reason: why a value is undefined.",
+     "fields": [*KEYS, ("measure", "string", "measure name (see the methods page)"), ("value", "number", "value"),
+                ("low", "number", "95% interval, low end"), ("high", "number", "95% interval, high end"),
+                ("p_value", "number", "p-value where the measure has a test"),
+                ("reason", "string", "why the value is undefined"), ("method_version", "string", "method version"),
+                ("policy", "string", "uncontested policy the value was computed under")]},
+    {"name": "expected-seats", "title": "Expected seats from the national pool",
+     "description": "Seats of party a against delegations of the same size and statewide vote drawn from the "
+                    "cycle's districts nationwide. excess_seats = seats_a - expected_seats (positive favours a).",
+     "fields": [*KEYS, ("districts", "integer", "districts of the unit"), ("vote_share", "number", "party a's statewide two-party share"),
+                ("seats_a", "number", "seats won by party a"), ("expected_seats", "number", "expected seats of party a"),
+                ("low", "number", "95% interval of the expected seats, low end"), ("high", "number", "high end"),
+                ("percentile", "number", "percentile (0-1) of the actual seats among the simulated delegations"),
+                ("excess_seats", "number", "actual minus expected seats"), ("draws", "integer", "accepted simulated delegations"),
+                ("ess", "number", "effective sample size"), ("mc_se", "number", "Monte Carlo standard error of the expected seats"),
+                ("reason", "string", "why no expectation could be computed"), ("method_version", "string", "method version")]},
+    {"name": "flagged-units", "title": "National tails: every unit and measure judged",
+     "description": "Each measure of each unit against its national-pool null (percentiles are fractions 0-1). "
+                    "flagged units favour the party in favours.",
+     "fields": [*KEYS, ("measure", "string", "measure judged"), ("value", "number", "the unit's value"),
+                ("null_percentile", "number", "percentile within its national-pool null"),
+                ("null_low", "number", "lower tail bound of the null"), ("null_high", "number", "upper tail bound of the null"),
+                ("p_value", "number", "the measure's own p-value where it is judged by one"),
+                ("cross_percentile", "number", "percentile among the states of the cycle and chamber"),
+                ("robust_z", "number", "robust z (median and MAD) within the cycle and chamber"),
+                ("flagged", "boolean", "flagged at the tails"), ("favours", "string", "a | b when flagged"),
+                ("basis", "string", "null tail | p-value"), ("plan_id", "string", "plan in force"),
+                ("reason", "string", "why the unit was not judged")]},
+    {"name": "flags", "title": "Flag history",
+     "description": "Every flag raised or cleared, and every plan put on or taken off the watch list, with why and "
+                    "the load that caused it.",
+     "fields": [("id", "integer", "event number"), ("scope", "string", "unit | plan"), ("cycle", "integer", "cycle (unit events)"),
+                ("state", "string", "state code"), ("chamber", "string", "chamber code"), ("plan_id", "string", "plan"),
+                ("measure", "string", "measure (unit events)"), ("event", "string", "raised | cleared | on watch | off watch"),
+                ("favours", "string", "a | b"), ("why", "string", "why"), ("at", "string", "when (ISO 8601)"),
+                ("load_id", "integer", "load that caused the change")]},
+    {"name": "watch", "title": "Watch list",
+     "description": "Plans on watch: at least two cycles each flagged by at least two measures agreeing in direction.",
+     "fields": [("state", "string", "state code"), ("chamber", "string", "chamber code"), ("plan_id", "string", "plan"),
+                ("favours", "string", "a | b"), ("severity", "number", "seats at stake (absolute)"),
+                ("cycles", "string", "flagged cycles, space separated"), ("measures", "string", "agreeing measures, space separated"),
+                ("drawn_by", "string", "who drew the plan"), ("inferred", "boolean", "plan era inferred, not loaded"),
+                ("seats_at_stake", "number", "mean excess seats over the agreeing cycles (signed)"),
+                ("concurring", "integer", "most measures agreeing in one cycle"), ("since", "integer", "first flagged cycle")]},
+    {"name": "plans", "title": "Plan eras",
+     "description": "Redistricting plans by state and chamber; inferred eras assume a new plan from each cycle ending in 2.",
+     "fields": [("state", "string", "state code"), ("chamber", "string", "chamber code"), ("plan_id", "string", "plan"),
+                ("first_cycle", "integer", "first cycle"), ("last_cycle", "integer", "last cycle (empty: still in force)"),
+                ("drawn_by", "string", "party_a | party_b | split | commission | court | other"),
+                ("note", "string", "note"), ("source", "string", "source"), ("inferred", "boolean", "era inferred")]},
+    {"name": "loads", "title": "Loads (provenance)",
+     "description": "Every file loaded into the store, with its sha256, when it was loaded and what it changed.",
+     "fields": [("id", "integer", "load number"), ("file_name", "string", "file name"), ("sha256", "string", "sha256 of the file's bytes"),
+                ("bytes", "integer", "file size"), ("format", "string", "file format"), ("source", "string", "where it came from"),
+                ("rows_accepted", "integer", "rows accepted"), ("units_new", "integer", "units new"),
+                ("units_corrected", "integer", "units corrected"), ("units_unchanged", "integer", "units unchanged"),
+                ("loaded_at", "string", "when (ISO 8601)"), ("outcome", "string", "outcome")]},
+]
+
+
+def _frame(data: SiteData, name: str) -> pd.DataFrame:
+    if name == "results":
+        return data.results
+    if name == "measures":
+        return data.measures
+    if name == "expected-seats":
+        return data.pool
+    if name == "flagged-units":
+        return data.tails.rename(columns={"direction": "favours"})
+    if name == "flags":
+        return data.events.rename(columns={"direction": "favours"})
+    if name == "watch":
+        return data.watch
+    if name == "plans":
+        return data.plans
+    if name == "loads":
+        return data.loads
+    raise KeyError(name)
+
+
+def neutralise(text: str) -> str:
+    """Prefix a single quote to text a spreadsheet would run as a formula.
+
+    >>> neutralise("=SUM(A1)"), neutralise("-1"), neutralise("Harbour")
+    ("'=SUM(A1)", '-1', 'Harbour')
+    """
+    if text.startswith(FORMULA_START) and not _PLAIN_NUMBER.match(text):
+        return "'" + text
+    return text
+
+
+def _csv_column(values: list, kind: str) -> list[str]:
+    """One column's CSV cells: numbers as numbers, text neutralised, missing as empty."""
+    miss = F.missing
+    if kind == "integer":
+        return ["" if miss(v) else str(int(v)) for v in values]
+    if kind == "number":
+        out = []
+        for v in values:
+            if miss(v):
+                out.append("")
+                continue
+            v = float(v)
+            out.append(str(int(v)) if v.is_integer() and abs(v) < 1e15 else repr(v))
+        return out
+    if kind == "boolean":
+        return ["" if miss(v) else ("true" if bool(int(v)) else "false") for v in values]
+    return ["" if miss(v) else neutralise(str(v)) for v in values]
+
+
+def _json_column(values: list, kind: str) -> list:
+    miss = F.missing
+    if kind == "integer":
+        return [None if miss(v) else int(v) for v in values]
+    if kind == "number":
+        return [None if miss(v) else float(v) for v in values]
+    if kind == "boolean":
+        return [None if miss(v) else bool(int(v)) for v in values]
+    return [None if miss(v) else str(v) for v in values]
+
+
+def _columns(frame: pd.DataFrame, fields) -> list[list]:
+    return [frame[name].tolist() if name in frame else [None] * len(frame) for name, _, _ in fields]
+
+
+def to_csv(frame: pd.DataFrame, fields) -> bytes:
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow([f[0] for f in fields])
+    cells = [_csv_column(col, kind) for col, (_, kind, _) in zip(_columns(frame, fields), fields)]
+    writer.writerows(zip(*cells))
+    return buf.getvalue().encode("utf-8")
+
+
+def to_json(frame: pd.DataFrame, fields) -> bytes:
+    names = [f[0] for f in fields]
+    cols = [_json_column(col, kind) for col, (_, kind, _) in zip(_columns(frame, fields), fields)]
+    dumps = json.JSONEncoder(ensure_ascii=False, allow_nan=False).encode
+    lines = [dumps(dict(zip(names, row))) for row in zip(*cols)]
+    return ("[\n" + ",\n".join(lines) + ("\n" if lines else "") + "]\n").encode("utf-8")
+
+
+def _sha(content: bytes) -> str:
+    return hashlib.sha256(content).hexdigest()
+
+
+def downloads(data: SiteData, prefix: str = "downloads") -> tuple[dict[str, bytes], list[dict]]:
+    """The download files (path -> bytes, paths under ``prefix``) including ``datapackage.json``,
+    and a listing for the downloads page."""
+    files: dict[str, bytes] = {}
+    resources, listing = [], []
+    for spec in RESOURCES:
+        frame = _frame(data, spec["name"])
+        base = spec["name"].replace("-", "_")
+        csv_bytes, json_bytes = to_csv(frame, spec["fields"]), to_json(frame, spec["fields"])
+        files[f"{prefix}/{base}.csv"] = csv_bytes
+        files[f"{prefix}/{base}.json"] = json_bytes
+        schema = {"fields": [{"name": n, "type": t, "description": d} for n, t, d in spec["fields"]],
+                  "missingValues": [""]}
+        resources.append({
+            "name": spec["name"], "path": f"{base}.csv", "title": spec["title"],
+            "description": spec["description"] + " Text cells beginning with =, +, - or @ carry a leading "
+                                                  "single quote against spreadsheet formula injection.",
+            "profile": "tabular-data-resource", "format": "csv", "mediatype": "text/csv", "encoding": "utf-8",
+            "bytes": len(csv_bytes), "hash": f"sha256:{_sha(csv_bytes)}",
+            "dialect": {"delimiter": ",", "doubleQuote": True, "lineTerminator": "\n", "quoteChar": '"', "header": True},
+            "schema": schema,
+        })
+        resources.append({
+            "name": f"{spec['name']}-json", "path": f"{base}.json", "title": spec["title"] + " (JSON)",
+            "description": f"The rows of {base}.csv as a JSON array of objects (original text, no quote prefix).",
+            "profile": "data-resource", "format": "json", "mediatype": "application/json", "encoding": "utf-8",
+            "bytes": len(json_bytes), "hash": f"sha256:{_sha(json_bytes)}", "schema": schema,
+        })
+        listing.append({"name": spec["name"], "title": spec["title"], "description": spec["description"],
+                        "rows": len(frame), "csv": f"{prefix}/{base}.csv", "json": f"{prefix}/{base}.json",
+                        "csv_bytes": len(csv_bytes), "json_bytes": len(json_bytes), "csv_sha256": _sha(csv_bytes)})
+    package = {
+        "profile": "data-package",
+        "name": "levelfield-published-data",
+        "title": "District results, asymmetry measures and flags",
+        "description": "Published by levelfield. The measures are indicators, not legal findings; results marked "
+                       "unofficial can change until certified; uncontested districts enter the measures under the "
+                       f"stated policy ({data.policy}). Signed measures are positive when they favour party a "
+                       f"({data.parties['a'].name}); party b is {data.parties['b'].name}.",
+        "created": F.rfc3339(data.site_time),
+        "keywords": ["elections", "districts", "partisan asymmetry"],
+        "resources": resources,
+    }
+    files[f"{prefix}/datapackage.json"] = (json.dumps(package, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
+    return files, listing
+
+
+def check_types(fields) -> list[str]:
+    """Problems with a field list: unknown types, duplicate names."""
+    problems = [f"{n}: {t} is not a Table Schema type" for n, t, _ in fields if t not in FRICTIONLESS_TYPES]
+    names = [n for n, _, _ in fields]
+    problems += [f"{n}: listed twice" for n in sorted({n for n in names if names.count(n) > 1})]
+    return problems
+
+
+__all__ = ["RESOURCES", "check_types", "downloads", "neutralise", "to_csv", "to_json"]

@@ -1,0 +1,121 @@
+"""Render: every page of the site into a dict ``path -> bytes``, in memory (nothing is written).
+
+Templates are found along an ordered search path: an optional override folder first, then the
+built-in ``site/templates``; a template can extend a built-in one as ``default:base.html``.
+Autoescape is on for every template. The one filter that returns markup, ``json_script``,
+escapes ``<``, ``>`` and ``&`` inside the JSON it writes, so no data value can close the
+``<script>`` element it sits in.
+"""
+
+from __future__ import annotations
+
+import json
+import posixpath
+from collections.abc import Sequence
+from pathlib import Path
+
+import jinja2
+from markupsafe import Markup
+
+from monitor.publish import formats as F
+from monitor.publish import paths as P
+from monitor.publish.collect import SiteData
+from monitor.publish.downloads import downloads
+from monitor.publish.feed import atom_feed
+from monitor.publish.views import Views
+
+SITE_DIR = Path(__file__).resolve().parents[2] / "site"
+TEMPLATE_DIR = SITE_DIR / "templates"
+ASSET_DIR = SITE_DIR / "assets"
+
+CAUTION = ("Indicators, not legal findings. Unofficial results can change until certified. "
+           "Imputed uncontested districts change the numbers. Defer to counsel and the courts.")
+
+
+def json_script(value) -> Markup:
+    """JSON for a ``<script type="application/json">`` element (sorted keys: stable bytes)."""
+    text = json.dumps(value, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    text = text.replace("&", "\\u0026").replace("<", "\\u003c").replace(">", "\\u003e")
+    text = text.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
+    return Markup(text)
+
+
+def environment(extra_dirs: Sequence[str | Path] = ()) -> jinja2.Environment:
+    """The Jinja environment: override folders, then the built-in templates; autoescape always."""
+    builtin = jinja2.FileSystemLoader(str(TEMPLATE_DIR))
+    loader = jinja2.ChoiceLoader([
+        *(jinja2.FileSystemLoader(str(d)) for d in extra_dirs),
+        builtin,
+        jinja2.PrefixLoader({"default": builtin}, delimiter=":"),
+    ])
+    env = jinja2.Environment(loader=loader, autoescape=True, undefined=jinja2.StrictUndefined,
+                             trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True)
+    register_filters(env)
+    return env
+
+
+def register_filters(env: jinja2.Environment) -> None:
+    """Every filter the templates use, in one place."""
+    env.filters.update({
+        "json_script": json_script,
+        "share": F.share,
+        "signed": F.signed,
+        "number": F.number,
+        "count": F.count,
+        "size": F.size,
+    })
+    env.globals["caution"] = CAUTION
+
+
+def _root(page: str) -> str:
+    depth = page.count("/")
+    return "../" * depth
+
+
+class Renderer:
+    def __init__(self, data: SiteData, env: jinja2.Environment):
+        self.data = data
+        self.env = env
+        self.views = Views(data)
+        self.out: dict[str, bytes] = {}
+
+    def page(self, path: str, template: str, title: str, section: str, **context) -> None:
+        root = _root(path)
+        html = self.env.get_template(template).render(
+            page=path, root=root, title=title, section=section, parties=self.data.parties, **context)
+        self.out[path] = html.encode("utf-8")
+
+    def render(self) -> dict[str, bytes]:
+        d, v = self.data, self.views
+        self.page(P.HOME, "index.html", "Home", "home", **v.home(_root(P.HOME)))
+        self.page(P.WATCH, "watch.html", "Watch list", "watch", **v.watch(_root(P.WATCH)))
+        self.page(P.STATES, "states.html", "States", "states", **v.states(_root(P.STATES)))
+        self.page(P.CYCLES, "cycles.html", "Cycles", "cycles", **v.cycles(_root(P.CYCLES)))
+        for state, chamber in d.pairs():
+            path = v.state_path(state, chamber)
+            ctx = v.state(state, chamber, _root(path))
+            self.page(path, "state.html", ctx["where"], "states", **ctx)
+        for cycle in d.cycles:
+            path = P.cycle_page(cycle)
+            self.page(path, "cycle.html", f"Cycle {cycle}", "cycles", **v.cycle(cycle, _root(path)))
+        self.page(P.METHODS, "methods.html", "Methods", "methods", **v.methods())
+        files, listing = downloads(d, P.DOWNLOAD_DIR)
+        self.out.update(files)
+        self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=listing,
+                  datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
+        self.out[P.FEED] = atom_feed(d, v, P.FEED)
+        return self.out
+
+
+def render_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> dict[str, bytes]:
+    """Every generated page and download (not the static assets) as ``path -> bytes``."""
+    return Renderer(data, environment(extra_template_dirs)).render()
+
+
+def static_assets() -> dict[str, bytes]:
+    """Our own CSS and scripts from ``site/assets``."""
+    out = {}
+    for path in sorted(ASSET_DIR.rglob("*")):
+        if path.is_file():
+            out[posixpath.join(P.ASSET_DIR, path.relative_to(ASSET_DIR).as_posix())] = path.read_bytes()
+    return out

@@ -1,0 +1,660 @@
+"""Tests of the published site (monitor.publish): pages, links, escaping, downloads, feed,
+atomic and incremental builds.
+
+The site is built from ``site_fixture`` (invented results through the real loader, invented
+derived rows): those numbers exercise the rendering only and are not check values. Outside
+references used here: the Frictionless Data Package / Table Schema specs v1
+(https://specs.frictionlessdata.io/: descriptor properties, the field-type list, ``sha256:``
+hashes), RFC 4287 (Atom: required feed and entry elements), RFC 3339 (timestamps), the OWASP
+"CSV Injection" page (the formula-leading characters), and the Vega-Lite JSON schema bundled with
+Altair (every chart spec is validated against it).
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as dt
+import hashlib
+import html.parser
+import io
+import json
+import re
+import threading
+import time
+import urllib.request
+import xml.etree.ElementTree as ET
+from pathlib import Path, PurePosixPath
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import site_fixture as sf
+import store
+from monitor.publish import build, collect
+from monitor.publish import downloads as D
+from monitor.publish import pages as PG
+from monitor.publish import paths as P
+from monitor.publish.collect import seats_votes_curves
+from monitor.publish.serve import make_server
+from monitor.publish.views import Views
+
+ROOT = Path(__file__).resolve().parents[1]
+ATOM = "{http://www.w3.org/2005/Atom}"
+
+
+# --- fixtures -----------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def fx(tmp_path_factory):
+    fixture = sf.build(tmp_path_factory.mktemp("site") / "ws")
+    yield fixture
+    fixture.close()
+
+
+@pytest.fixture(scope="module")
+def site(fx):
+    out = fx.root / "public"
+    report = build(fx.db, fx.config, out)
+    return out, report
+
+
+def snapshot(folder: Path) -> dict[str, bytes]:
+    return {p.relative_to(folder).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def html_pages(folder: Path) -> list[Path]:
+    return sorted(folder.rglob("*.html"))
+
+
+class Links(html.parser.HTMLParser):
+    """Every href/src, every id, and the text of <script> elements of a page."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.links: list[str] = []
+        self.ids: set[str] = set()
+        self.scripts: list[dict] = []
+        self._script = None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        for name in ("href", "src"):
+            if a.get(name) is not None:
+                self.links.append(a[name])
+        if "id" in a:
+            self.ids.add(a["id"])
+        if tag == "script":
+            self._script = {"attrs": a, "text": ""}
+            self.scripts.append(self._script)
+
+    def handle_endtag(self, tag):
+        if tag == "script":
+            self._script = None
+
+    def handle_data(self, data):
+        if self._script is not None:
+            self._script["text"] += data
+
+
+def parse(path: Path) -> Links:
+    parser = Links()
+    parser.feed(path.read_text(encoding="utf-8"))
+    return parser
+
+
+def check_links(out: Path) -> int:
+    """Check every href/src of every page under ``out``; return how many were checked."""
+    parsed = {page.resolve(): parse(page) for page in html_pages(out)}
+    checked = 0
+    for page, links in parsed.items():
+        rel_page = page.relative_to(out.resolve()).as_posix()
+        for link in links.links:
+            if link.startswith("data:"):
+                continue
+            assert not re.match(r"^[a-z][a-z0-9+.-]*:", link, re.I), f"{rel_page}: absolute link {link!r}"
+            assert not link.startswith("/"), f"{rel_page}: root-relative link {link!r}"
+            path, _, fragment = link.partition("#")
+            target = (page.parent / path).resolve() if path else page
+            assert target.is_file(), f"{rel_page}: broken link {link!r}"
+            assert out.resolve() in target.parents, f"{rel_page}: link leaves the site: {link!r}"
+            if fragment and target.suffix == ".html":
+                ids = (parsed.get(target) or parse(target)).ids
+                assert fragment in ids, f"{rel_page}: no id {fragment!r} in {path or rel_page}"
+            checked += 1
+    return checked
+
+
+def chart_specs(folder: Path) -> list[tuple[str, dict]]:
+    out = []
+    for page in html_pages(folder):
+        for script in parse(page).scripts:
+            if script["attrs"].get("type") == "application/json":
+                out.append((f"{page.relative_to(folder)}#{script['attrs']['id']}", json.loads(script["text"])))
+    return out
+
+
+# --- the pages ------------------------------------------------------------------------------------
+def test_every_page_is_built(fx, site):
+    out, report = site
+    data = collect(fx.db, fx.config)
+    v = Views(data)
+    expected = {P.HOME, P.WATCH, P.STATES, P.CYCLES, P.METHODS, P.DOWNLOADS, P.FEED, "downloads/datapackage.json",
+                "assets/style.css", "assets/charts.js", "assets/sort.js", "assets/vega-runtime.js"}
+    expected |= {v.state_path(s, c) for s, c in data.pairs()}
+    expected |= {P.cycle_page(c) for c in sf.CYCLES}
+    assert expected <= set(snapshot(out))
+    assert len(data.pairs()) == len(sf.STATES) + 1  # every state's federal page and KA's lower chamber
+    assert report.pages == len([p for p in expected if p.endswith(".html")])
+    assert set(report.written) == set(snapshot(out))
+
+
+def test_every_internal_link_resolves(site):
+    out, _ = site
+    assert check_links(out) > 200
+
+
+def test_every_page_is_served_with_200(site):
+    out, _ = site
+    server = make_server(out, 0, quiet=True)
+    assert server.server_address[0] == "127.0.0.1"
+    thread = threading.Thread(target=server.serve_forever, daemon=True)
+    thread.start()
+    try:
+        base = f"http://127.0.0.1:{server.server_address[1]}/"
+        for rel in snapshot(out):
+            with urllib.request.urlopen(base + urllib.request.pathname2url(rel)) as response:
+                assert response.status == 200, rel
+                body = response.read()
+                assert body == (out / rel).read_bytes()
+                if rel == P.FEED:
+                    assert response.headers["Content-Type"] == "application/atom+xml"
+    finally:
+        server.shutdown()
+        server.server_close()
+
+
+def test_state_name_with_markup_is_escaped_everywhere(fx, site):
+    out, _ = site
+    data = collect(fx.db, fx.config)
+    xss_page = out / Views(data).state_path(sf.XSS, "federal")
+    escaped = "&lt;script&gt;alert(1)&lt;/script&gt;"
+    for page in html_pages(out):
+        text = page.read_text(encoding="utf-8")
+        assert sf.XSS not in text, page
+        parser = parse(page)
+        for script in parser.scripts:  # only our own scripts: local files or JSON data blocks
+            src, kind = script["attrs"].get("src"), script["attrs"].get("type")
+            assert (src and not script["text"].strip()) or kind == "application/json", (page, script)
+            if kind == "application/json":
+                assert "<" not in script["text"] and ">" not in script["text"]
+    assert escaped in xss_page.read_text(encoding="utf-8")
+    assert escaped in (out / P.HOME).read_text(encoding="utf-8")
+    # inside chart data the name survives intact once the JSON is read
+    specs = [spec for _, spec in chart_specs(out)]
+    assert any(sf.XSS in json.dumps(spec, ensure_ascii=False) for spec in specs)
+
+
+def test_json_script_cannot_close_its_element():
+    value = {"name": "</script><script>alert(1)</script><!--", "amp": "a & b", "sep": "\u2028"}
+    text = str(PG.json_script(value))
+    assert "<" not in text and ">" not in text and "&" not in text and "\u2028" not in text
+    assert json.loads(text) == value
+
+
+def test_autoescape_is_on_for_every_template():
+    env = PG.environment()
+    for name in sorted(p.name for p in PG.TEMPLATE_DIR.glob("*.html")):
+        template = env.get_template(name)
+        assert env.autoescape is True or env.autoescape(name), name
+        assert template is not None
+    assert str(env.from_string("{{ x }}").render(x="<b>")) == "&lt;b&gt;"
+
+
+def test_chart_specs_are_valid_vega_lite_with_party_colours(fx, site):
+    from altair.utils.schemapi import validate_jsonschema
+    from altair.vegalite.v6.schema import load_schema
+
+    out, _ = site
+    schema = load_schema()
+    specs = chart_specs(out)
+    assert len(specs) > 40
+    for where, spec in specs:
+        validate_jsonschema(spec, schema)  # raises on an invalid spec
+        assert spec["$schema"].startswith("https://vega.github.io/schema/vega-lite/"), where
+    text = json.dumps([s for _, s in specs])
+    assert sf.PARTY_A[1] in text and sf.PARTY_B[1] in text
+
+
+def test_every_chart_has_a_description_and_a_data_table(site):
+    out, _ = site
+    for page in html_pages(out):
+        text = page.read_text(encoding="utf-8")
+        figures = re.findall(r'<figure class="chart" id="([^"]+)">(.*?)</figure>', text, re.S)
+        for cid, body in figures:
+            assert f'data-spec="{cid}-spec"' in body and f'aria-describedby="{cid}-desc"' in body
+            desc = re.search(rf'<p class="chart-desc" id="{cid}-desc">(.*?)</p>', body, re.S)
+            assert desc and len(desc.group(1).strip()) > 40, (page, cid)
+            rows = re.findall(r"<tbody>(.*?)</tbody>", body, re.S)
+            assert rows and "<td>" in rows[0], (page, cid)
+
+
+def test_inferred_eras_and_unofficial_results_are_marked(fx, site):
+    out, _ = site
+    v = Views(collect(fx.db, fx.config))
+    lower = (out / v.state_path("KA", "state_lower")).read_text(encoding="utf-8")
+    assert "badge-inferred" in lower and "(inferred)" in lower  # table badge and chart era label
+    federal = (out / v.state_path("KA", "federal")).read_text(encoding="utf-8")
+    assert "badge-inferred" not in federal.split("<main")[1].split("</main>")[0]
+    unofficial = (out / v.state_path(*sf.UNOFFICIAL[1:])).read_text(encoding="utf-8")
+    assert "badge-unofficial" in unofficial
+    assert "badge-unofficial" in (out / P.HOME).read_text(encoding="utf-8")
+    assert "badge-unofficial" in (out / P.cycle_page(sf.UNOFFICIAL[0])).read_text(encoding="utf-8")
+    assert "badge-unofficial" not in (out / P.cycle_page(2016)).read_text(encoding="utf-8").split("<footer")[0]
+
+
+def test_footer_has_caution_and_provenance(fx, site):
+    out, _ = site
+    sha = {r[0]: r[1] for r in fx.db.execute("SELECT file_name, sha256 FROM loads")}
+    for page in html_pages(out):
+        footer = page.read_text(encoding="utf-8").split('<footer class="footer">')[1]
+        assert "Indicators, not legal findings" in footer and "Defer to counsel and the courts" in footer
+        if page.name != P.METHODS:
+            assert any(s in footer for s in sha.values()), page
+    home = (out / P.HOME).read_text(encoding="utf-8").split('<footer class="footer">')[1]
+    assert all(s in home for s in sha.values())
+
+
+def test_methods_page_documents_every_measure_and_setting(fx, site):
+    from monitor.measures import MEASURES
+
+    out, _ = site
+    text = (out / P.METHODS).read_text(encoding="utf-8")
+    for doc in MEASURES:
+        assert f'id="measure-{doc.name}"' in text, doc.name
+    for name in ("uncontested.policy", "measures.competitive_window"):
+        assert f"<code>{name}</code>" in text
+    for caution in ("Indicators, not legal findings", "Unofficial until certified", "Imputations matter",
+                    "Defer to counsel and the courts"):
+        assert caution in text
+    assert "proposals, not law" in text
+
+
+def test_watch_page_lists_every_plan_on_watch(fx, site):
+    out, _ = site
+    text = (out / P.WATCH).read_text(encoding="utf-8")
+    plans = [r[0] for r in fx.db.execute("SELECT plan_id FROM watch")]
+    assert plans and all(re.escape(p) and p.replace("<", "&lt;").replace(">", "&gt;") in text for p in plans)
+    assert 'class="sortable watch"' in text and "assets/sort.js" in text
+
+
+# --- downloads --------------------------------------------------------------------------------------
+def _parse_cell(value: str, kind: str):
+    if value == "":
+        return None
+    if kind == "integer":
+        assert re.fullmatch(r"-?\d+", value), value
+        return int(value)
+    if kind == "number":
+        return float(value)
+    if kind == "boolean":
+        assert value in ("true", "false"), value
+        return value == "true"
+    return value
+
+
+def test_datapackage_descriptor_validates_against_its_field_list(site):
+    out, _ = site
+    folder = out / "downloads"
+    package = json.loads((folder / "datapackage.json").read_text(encoding="utf-8"))
+    assert package["profile"] == "data-package" and re.fullmatch(r"[a-z0-9._-]+", package["name"])
+    dt.datetime.fromisoformat(package["created"].replace("Z", "+00:00"))
+    names = [r["name"] for r in package["resources"]]
+    assert len(names) == len(set(names))
+    assert {"results", "measures", "flags"} <= set(names)
+    for res in package["resources"]:
+        assert re.fullmatch(r"[a-z0-9._-]+", res["name"]), res["name"]
+        path = folder / res["path"]
+        assert path.is_file() and PurePosixPath(res["path"]).parts[0] != ".."
+        content = path.read_bytes()
+        assert res["bytes"] == len(content)
+        assert res["hash"] == "sha256:" + hashlib.sha256(content).hexdigest()
+        fields = res["schema"]["fields"]
+        assert not D.check_types([(f["name"], f["type"], "") for f in fields])
+        assert all(f["type"] in D.FRICTIONLESS_TYPES for f in fields)
+        names = [f["name"] for f in fields]
+        if res["format"] == "csv":
+            assert res["profile"] == "tabular-data-resource" and res["mediatype"] == "text/csv"
+            rows = list(csv.reader(io.StringIO(content.decode("utf-8"))))
+            assert rows[0] == names, res["name"]
+            for row in rows[1:]:
+                assert len(row) == len(names)
+                for value, f in zip(row, fields):
+                    _parse_cell(value, f["type"])
+        else:
+            assert res["format"] == "json" and res["mediatype"] == "application/json"
+            records = json.loads(content)
+            assert all(list(r) == names for r in records), res["name"]
+
+
+def test_csv_cells_are_neutralised_but_numbers_stay_numbers(site):
+    out, _ = site
+    results = list(csv.DictReader(io.StringIO((out / "downloads/results.csv").read_text(encoding="utf-8"))))
+    candidates = {r["candidate"] for r in results}
+    parties = {r["party"] for r in results}
+    assert "'" + sf.INJECTION_CANDIDATE in candidates and sf.INJECTION_CANDIDATE not in candidates
+    assert "'@Minor Circle" in parties
+    for row in results:
+        for value in row.values():
+            assert not value.startswith(D.FORMULA_START) or re.fullmatch(r"-?[\d.]+(e-?\d+)?", value), value
+    measures = list(csv.DictReader(io.StringIO((out / "downloads/measures.csv").read_text(encoding="utf-8"))))
+    negative = [r["value"] for r in measures if r["value"].startswith("-")]
+    assert negative and all(float(v) < 0 for v in negative)
+    # the JSON keeps the original text
+    records = json.loads((out / "downloads/results.json").read_text(encoding="utf-8"))
+    assert sf.INJECTION_CANDIDATE in {r["candidate"] for r in records}
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("=SUM(A1:A2)", "'=SUM(A1:A2)"), ("+cmd|' /C calc'!A0", "'+cmd|' /C calc'!A0"), ("-2+3", "'-2+3"),
+    ("@SUM(1)", "'@SUM(1)"), ("\tx", "'\tx"), ("\rx", "'\rx"), ("-1", "-1"), ("+3.5", "+3.5"), ("-1e-3", "-1e-3"),
+    ("Harbour", "Harbour"), ("a=b", "a=b"), ("", ""),
+])
+def test_neutralise(text, expected):
+    assert D.neutralise(text) == expected
+
+
+def test_csv_writer_keeps_numbers_and_neutralises_text():
+    frame = pd.DataFrame({"n": [-0.5, np.nan, 3.0], "i": [1, -2, None], "s": ["=1+1", "-x", None],
+                          "b": [1, 0, None]})
+    fields = [("n", "number", ""), ("i", "integer", ""), ("s", "string", ""), ("b", "boolean", "")]
+    rows = list(csv.reader(io.StringIO(D.to_csv(frame, fields).decode())))
+    assert rows == [["n", "i", "s", "b"], ["-0.5", "1", "'=1+1", "true"], ["", "-2", "'-x", "false"],
+                    ["3", "", "", ""]]
+
+
+# --- feed ---------------------------------------------------------------------------------------
+def test_atom_feed_follows_rfc_4287(fx, site):
+    out, _ = site
+    root = ET.fromstring((out / P.FEED).read_bytes())
+    assert root.tag == f"{ATOM}feed"
+    for tag in ("id", "title", "updated"):
+        assert root.find(f"{ATOM}{tag}") is not None, tag
+    assert root.find(f"{ATOM}author/{ATOM}name").text
+    entries = root.findall(f"{ATOM}entry")
+    assert len(entries) == fx.db.execute("SELECT COUNT(*) FROM flag_events").fetchone()[0]
+    ids = [e.find(f"{ATOM}id").text for e in entries]
+    assert len(set(ids)) == len(ids) and all(i.startswith("urn:uuid:") for i in ids)
+    stamp = re.compile(r"^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}Z$")  # RFC 3339, UTC
+    assert stamp.match(root.find(f"{ATOM}updated").text)
+    for e in entries:
+        assert e.find(f"{ATOM}title").text and stamp.match(e.find(f"{ATOM}updated").text)
+        link = e.find(f"{ATOM}link")
+        if link is not None:
+            assert (out / link.get("href")).is_file()
+    assert any(sf.XSS in e.find(f"{ATOM}title").text for e in entries)  # text content, escaped by the XML writer
+
+
+# --- the seats-votes curve ------------------------------------------------------------------------
+def test_swing_curve_matches_the_definition(fx):
+    """The step vertices against uniform swing computed directly from its definition: shift
+    every district share by v - V and count the seats (a tie counting half)."""
+    data = collect(fx.db, fx.config)
+    rows = data.contests[np.isfinite(data.contests["share_used"].to_numpy(float))]
+    assert not data.curves.empty
+    for (state, chamber), curve in data.curves.groupby(["state", "chamber"]):
+        cycle = int(curve["cycle"].iloc[0])
+        unit = rows[(rows["state"] == state) & (rows["chamber"] == chamber) & (rows["cycle"] == cycle)]
+        va, vb = unit["votes_a_used"].to_numpy(float), unit["votes_b_used"].to_numpy(float)
+        x, V = va / (va + vb), va.sum() / (va + vb).sum()
+        grid = np.linspace(0.001, 0.999, 499)
+        direct = np.array([np.mean(np.where(x + (v - V) > 0.5, 1.0, np.where(x + (v - V) < 0.5, 0.0, 0.5)))
+                           for v in grid])
+        # the step curve read at v: the value of the last vertex at or before v
+        vert = curve.sort_values("vote")
+        idx = np.searchsorted(vert["vote"].to_numpy(), grid, side="right") - 1
+        stepped = vert["seat_share"].to_numpy()[idx]
+        assert np.array_equal(stepped, direct), (state, chamber)
+        pts = data.curve_points[(data.curve_points["state"] == state) & (data.curve_points["chamber"] == chamber)]
+        obs = pts[pts["point"] == "observed"].iloc[0]
+        assert obs["vote"] == pytest.approx(V)
+        assert obs["seats"] == pytest.approx(float(unit["seats_a"].sum()))  # the seats actually won
+
+
+def test_swing_curve_of_a_hand_built_plan():
+    """Five districts at 30/40/45/47/80% with equal turnout, worked by hand: V = 48.4%; the curve
+    steps where each district reaches 50% (v = V + 1/2 - x_i). At v = 50% every share rises by 1.6
+    points (31.6/41.6/46.6/48.6/81.6): a holds 1 of 5. At the flipped vote 1 - V = 51.6% they rise
+    by 3.2 points and the 47% seat reaches 50.2%: 2 of 5."""
+    shares = [0.30, 0.40, 0.45, 0.47, 0.80]
+    contests = pd.DataFrame({"cycle": 2000, "state": "ZZ", "chamber": "federal", "district": list("abcde"),
+                             "votes_a_used": [1000 * s for s in shares], "votes_b_used": [1000 * (1 - s) for s in shares],
+                             "share_used": shares, "imputed": False})
+    curve, points = seats_votes_curves(contests)
+    V = np.mean(shares)
+    assert curve["vote"].tolist() == pytest.approx([0.0, V + 0.5 - 0.80, V + 0.5 - 0.47, V + 0.5 - 0.45,
+                                                    V + 0.5 - 0.40, V + 0.5 - 0.30, 1.0])
+    assert curve["seat_share"].tolist() == pytest.approx([0.0, 0.2, 0.4, 0.6, 0.8, 1.0, 1.0])
+    by = points.set_index("point")
+    assert by.loc["observed", "seats"] == 1 and by.loc["flipped vote", "seats"] == 2
+    assert by.loc["even vote", "seat_share"] == pytest.approx(0.2)
+
+
+# --- build: atomic, incremental, reproducible ----------------------------------------------------
+def _leftovers(out: Path) -> list[Path]:
+    return [p for p in out.parent.iterdir() if p.name.startswith(f".{out.name}.") and not p.name.endswith(".lock")]
+
+
+def test_failed_render_leaves_the_previous_site_whole(fx, site, monkeypatch):
+    out, _ = site
+    before = snapshot(out)
+    calls = {"n": 0}
+    real = Views.state
+
+    def failing(self, *args, **kwargs):
+        calls["n"] += 1
+        if calls["n"] == 3:
+            raise RuntimeError("render failed midway")
+        return real(self, *args, **kwargs)
+
+    monkeypatch.setattr(Views, "state", failing)
+    with pytest.raises(RuntimeError, match="midway"):
+        build(fx.db, fx.config, out)
+    assert calls["n"] == 3
+    assert snapshot(out) == before
+    assert not _leftovers(out)
+
+
+def test_failed_write_leaves_the_previous_site_whole(fx, tmp_path, monkeypatch):
+    out = tmp_path / "public"
+    build(fx.db, fx.config, out)
+    (out / P.HOME).write_bytes(b"old")  # so that the next build has pages to write
+    (out / P.WATCH).write_bytes(b"old")
+    before = snapshot(out)
+    real = Path.write_bytes
+    calls = {"n": 0}
+
+    def failing(self, data):
+        calls["n"] += 1
+        if calls["n"] == 2:
+            raise OSError(28, "No space left on device")
+        return real(self, data)
+
+    monkeypatch.setattr(Path, "write_bytes", failing)
+    with pytest.raises(OSError, match="No space"):
+        build(fx.db, fx.config, out)
+    assert calls["n"] == 2
+    assert snapshot(out) == before
+    assert not _leftovers(out)
+
+
+def test_rebuild_without_change_rewrites_nothing(fx, tmp_path):
+    out = tmp_path / "public"
+    first = build(fx.db, fx.config, out)
+    stats = {p: (p.stat().st_ino, p.stat().st_mtime_ns) for p in out.rglob("*") if p.is_file()}
+    content = snapshot(out)
+    second = build(fx.db, fx.config, out)
+    assert first.written and not second.written and not second.removed
+    assert sorted(second.unchanged) == sorted(content)
+    assert snapshot(out) == content
+    assert {p: (p.stat().st_ino, p.stat().st_mtime_ns) for p in out.rglob("*") if p.is_file()} == stats
+
+
+def test_stale_files_are_removed(fx, tmp_path):
+    out = tmp_path / "public"
+    build(fx.db, fx.config, out)
+    (out / "state" / "old.html").write_text("stale")
+    report = build(fx.db, fx.config, out)
+    assert report.removed == ["state/old.html"] and not (out / "state" / "old.html").exists()
+
+
+def test_correcting_one_state_rewrites_only_its_pages_and_the_national_ones(tmp_path):
+    fx = sf.build(tmp_path / "ws")
+    try:
+        out = tmp_path / "public"
+        build(fx.db, fx.config, out)
+        v = Views(collect(fx.db, fx.config))
+        before = snapshot(out)
+        sf.correct_state(fx, "LU", 2022)
+        report = build(fx.db, fx.config, out)
+        after = snapshot(out)
+        changed = {p for p in after if before.get(p) != after[p]}
+        assert changed == set(report.written)
+        lu = {v.state_path("LU", "federal")}
+        others = {v.state_path(s, c) for s, c in v.d.pairs()} - lu
+        assert lu <= changed
+        assert not changed & others, changed & others
+        for page in others:
+            assert after[page] == before[page]
+        national = {P.HOME, P.STATES, P.CYCLES, P.WATCH, P.DOWNLOADS, P.FEED, P.cycle_page(2022)}
+        assert changed - lu <= national | {p for p in after if p.startswith("downloads/")}
+        assert P.cycle_page(2016) not in changed and P.METHODS not in changed
+        assert not {p for p in changed if p.startswith("assets/")}
+        assert {P.HOME, P.cycle_page(2022), "downloads/results.csv"} <= changed
+    finally:
+        fx.close()
+
+
+def test_timestamps_come_from_the_data_or_source_date_epoch(fx, tmp_path, monkeypatch):
+    monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
+    a = tmp_path / "a"
+    build(fx.db, fx.config, a)
+    time.sleep(1.1)  # a wall-clock timestamp would now differ
+    b = tmp_path / "b"
+    build(fx.db, fx.config, b)
+    assert snapshot(a) == snapshot(b)
+    latest = fx.db.execute("SELECT MAX(loaded_at) FROM loads").fetchone()[0]
+    package = json.loads((a / "downloads/datapackage.json").read_text())
+    assert dt.datetime.fromisoformat(package["created"].replace("Z", "+00:00")) == dt.datetime.fromisoformat(latest)
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")
+    c = tmp_path / "c"
+    build(fx.db, fx.config, c)
+    package = json.loads((c / "downloads/datapackage.json").read_text())
+    assert package["created"] == "2023-11-14T22:13:20Z"
+
+
+def test_a_fresh_store_publishes_a_valid_empty_site(tmp_path):
+    sf_root = tmp_path / "ws"
+    sf_root.mkdir()
+    (sf_root / "levelfield.toml").write_text(sf.CONFIG, encoding="utf-8")
+    from monitor.config import load_config
+
+    db = store.connect(sf_root / "history.sqlite")
+    out = tmp_path / "public"
+    report = build(db, load_config(sf_root / "levelfield.toml"), out)
+    assert report.pages == 6  # home, watch, states, cycles, methods, downloads
+    assert "Nothing here yet" in (out / P.HOME).read_text(encoding="utf-8")
+    root = ET.fromstring((out / P.FEED).read_bytes())
+    assert not root.findall(f"{ATOM}entry") and root.find(f"{ATOM}updated").text == "1970-01-01T00:00:00Z"
+    rows = list(csv.reader(io.StringIO((out / "downloads/results.csv").read_text())))
+    assert len(rows) == 1 and rows[0][:3] == ["cycle", "state", "chamber"]
+    json.loads((out / "downloads/datapackage.json").read_text())
+    for page in html_pages(out):
+        for link in parse(page).links:
+            if not link.startswith("data:"):
+                assert (page.parent / link.partition("#")[0]).exists(), (page, link)
+    db.conn.close()
+
+
+def test_cli_publish_builds_the_workspace_site(fx, tmp_path):
+    from click.testing import CliRunner
+
+    from monitor.cli import main
+
+    out = tmp_path / "site"
+    result = CliRunner().invoke(main, ["-w", str(fx.root), "publish", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert (out / P.HOME).is_file() and "published" in result.output
+    result = CliRunner().invoke(main, ["-w", str(fx.root), "serve", "--dir", str(tmp_path / "nothing")])
+    assert result.exit_code == 2 and "publish" in result.output
+
+
+def test_slugs_are_safe_and_distinct():
+    codes = ["JS", "js", "a/b", "..", "<script>alert(1)</script>", "state_lower", ""]
+    slugs = P.unique_slugs(codes)
+    assert len(set(slugs.values())) == len(codes)
+    for s in slugs.values():
+        assert re.fullmatch(r"[a-z0-9_-]+", s)
+    assert P.slug("JS") == "js" and P.slug("state_lower") == "state_lower"
+    assert P.relative("assets/style.css", "state/js/federal.html") == "../../assets/style.css"
+
+
+# --- the sample history (switched on when the pipeline can run on it) ------------------------------
+SAMPLE = ROOT / "sample_history"
+
+
+def _pipeline_ready() -> bool:
+    if not (SAMPLE / "results").is_dir() or not (SAMPLE / "plans.csv").is_file():
+        return False
+    try:
+        from monitor.cli import main
+    except ImportError:
+        return False
+    return {"load", "plans", "compute"} <= set(main.commands)
+
+
+@pytest.mark.skipif(not _pipeline_ready(), reason="needs sample_history/results and the load/plans/compute commands")
+def test_sample_history_site(sample_workspace, tmp_path):
+    """The whole sample history through the real pipeline (the shared ``sample_workspace``), then
+    the site, built into a folder of its own (the workspace is only read)."""
+    from monitor.config import load_config
+
+    ws = sample_workspace
+    out = tmp_path / "public"
+    report = build(ws, out=out)
+    assert report.pages > 50 and not report.removed
+    db = store.connect(ws.store_path)
+    try:
+        data = collect(db, load_config(ws.config_path))
+        v = Views(data)
+        for state, chamber in data.pairs():
+            assert (out / v.state_path(state, chamber)).is_file()
+        for cycle in data.cycles:
+            assert (out / P.cycle_page(cycle)).is_file()
+        # the curve's marked points agree with the engine's stored uniform-swing measures
+        m = data.measures.set_index(["cycle", "state", "chamber", "measure"])["value"]
+        checked = 0
+        for p in data.curve_points.itertuples():
+            key = (p.cycle, p.state, p.chamber)
+            if p.point == "flipped vote":
+                assert p.seats == pytest.approx(m[key + ("seats_at_flipped_vote",)], abs=1e-9), key
+                checked += 1
+            if p.point == "even vote":
+                assert p.seat_share - 0.5 == pytest.approx(m[key + ("partisan_bias",)], abs=1e-9), key
+        assert checked >= 30
+        watch = (out / P.WATCH).read_text(encoding="utf-8")
+        for plan in data.watch["plan_id"]:
+            assert plan in watch
+    finally:
+        db.conn.close()
+    assert check_links(out) > 1000
+    test_datapackage_descriptor_validates_against_its_field_list((out, None))
+
+
+def test_docstring_examples_hold():
+    import doctest
+
+    from monitor.publish import downloads, paths
+
+    for module in (paths, downloads):
+        result = doctest.testmod(module)
+        assert result.attempted and not result.failed, module.__name__
