@@ -163,3 +163,29 @@ def run_subprocess(root: Path, *args: str) -> subprocess.CompletedProcess:
     env = {k: v for k, v in os.environ.items() if k != ENV_VAR}
     return subprocess.run([sys.executable, "-m", "monitor", "--workspace", str(root), *args],
                           capture_output=True, text=True, env=env, timeout=120)
+
+
+SAMPLE = Path(__file__).resolve().parent.parent / "sample_history"
+
+
+def build_sample_workspace(root: Path, *, publish: bool = False) -> Workspace:
+    """The whole pipeline on the committed sample history: load, plans, compute, flags."""
+    from monitor.ingest import load_file
+    from monitor.pipeline import refresh
+    from monitor.plans import load_plans
+
+    ws = Workspace(root)
+    ws.ensure()
+    ws.config_path.write_text((SAMPLE / "levelfield.toml").read_text(encoding="utf-8"), encoding="utf-8")
+    db, config = ws.open_store(), ws.config()
+    for path in sorted((SAMPLE / "results").glob("*.csv")):
+        load_file(db, path, config)
+    load_plans(db, SAMPLE / "plans.csv")
+    refresh(ws, publish=publish, db=db, config=config)
+    return ws
+
+
+@pytest.fixture(scope="session")
+def sample_workspace(tmp_path_factory) -> Workspace:
+    """One sample-history workspace for the whole session (read it, do not change it)."""
+    return build_sample_workspace(tmp_path_factory.mktemp("sample") / "ws")
