@@ -123,6 +123,8 @@ class Spec:
     expected: str = ""  # answer key verdict; "" = not in the answer key
     measured: str = ""  # what the measures are expected to show when it differs from the intent
     break_cycle: int | None = None
+    # what the watch list must show for the plan with the default seed: "a", "b" or "" (not on watch)
+    watch: str = ""
 
 
 def _gerry(drawer, note="", kind="gerrymander", **kw):
@@ -131,7 +133,7 @@ def _gerry(drawer, note="", kind="gerrymander", **kw):
     share = round(100 * CRACK_TARGET[kind])
     text = f"{own} packs {other} voters into a few lopsided seats and wins the rest at ~{share}%"
     return Spec(kind, f"party_{drawer}", f"{text}; {note}" if note else text, drawer=drawer,
-                expected=f"favours_{drawer}", **kw)
+                expected=f"favours_{drawer}", watch=drawer, **kw)
 
 
 def _commission(note="independent commission; neutral criteria"):
@@ -177,17 +179,26 @@ for _first in (2002, 2012, 2022):
     ENGINEERED[("YM", FEDERAL, _first)] = _commission()
 for _first in (1972, 1982, 1992, 2002, 2012, 2022):
     ENGINEERED[("OB", FEDERAL, _first)] = Spec("clustered", "split", CLUSTER_NOTE, expected="neutral",
-                                               measured="favours_b")
+                                               measured="favours_b", watch="b")
 
 MID_DECADE = {("HY", FEDERAL): (1986,), ("OV", FEDERAL): (2006,), ("YR", FEDERAL): (2018,)}
 
 # Geometry parameters (two-party share of a unless stated)
-NEUTRAL_SD = 0.55  # neutral partition: district leans spread around the state lean (logit)
+# neutral partition: SD of the district shares around the state's share (share units); state-house
+# districts are smaller, so more homogeneous and more spread out than federal ones
+NEUTRAL_SPREAD = {FEDERAL: 0.13, STATE_LOWER: 0.17}
 PACKED = (0.76, 0.84)  # victim's share in a packed district
 PROTECT_OFFSET = 0.85  # logit distance of a protected seat from the state lean
 CITY_FRACTION, CITY_SHARE = 0.25, (0.76, 0.84)
 REMEDIAL_WEIGHT = 0.25  # remedial plan: this much of a gerrymander's shape, the rest neutral
-INCUMBENCY = {FEDERAL: 0.20, STATE_LOWER: 0.20}
+# Personal vote of a sitting member (logit). Small in the state houses: with 40-120 seats the
+# within-state tests see the majority's incumbency bonus (its incumbent holds the median seat) as
+# asymmetry; see README "Why the state houses are modelled as they are".
+INCUMBENCY = {FEDERAL: 0.20, STATE_LOWER: 0.05}
+# Chance that the weaker major party stays out: top / (1 + exp(-(margin - midpoint) / width)), with
+# margin = |expected share - 1/2|. Set so that uncontested seats would have given their winner 75%
+# on average, the share the sample's levelfield.toml imputes (imputation unbiased on average).
+UNCONTESTED = {FEDERAL: (0.40, 0.21, 0.03), STATE_LOWER: (0.42, 0.20, 0.03)}
 DISTRICT_NOISE = {FEDERAL: 0.10, STATE_LOWER: 0.13}
 STATE_NOISE, SWING_NOISE = 0.02, 0.03
 RETIRE = {FEDERAL: 0.10, STATE_LOWER: 0.12}  # chance a sitting member does not run again
@@ -351,19 +362,23 @@ def plan_schedule(seats: dict[int, dict[str, int]]) -> list[Plan]:
     return plans
 
 
-def neutral_offsets(rng, n):
-    """Stratified draw from a logistic law with SD NEUTRAL_SD: one district in each n-quantile band.
-
-    A realistic spread without the chance skews that an unlucky iid draw of a few districts gives.
-    """
+def neutral_shares(rng, n, v_a, spread):
+    """A neutral partition's district shares: symmetric around the state's share ``v_a`` in share
+    space (so that median = mean and no measure of asymmetry sees a skew by construction), with SD
+    about ``spread``. One district in each n-quantile band of a logistic law (a realistic spread
+    without the chance skews that an unlucky i.i.d. draw of a few districts gives), squashed
+    symmetrically (tanh) to stay inside (0.03, 0.97)."""
     u = (np.arange(n) + rng.uniform(0.05, 0.95, n)) / n
-    return NEUTRAL_SD * np.sqrt(3.0) / np.pi * logit(u)
+    dev = spread * np.sqrt(3.0) / np.pi * logit(u)
+    cap = min(v_a, 1.0 - v_a) - 0.03
+    dev = cap * np.tanh(dev / cap)
+    return v_a + dev - dev.mean()
 
 
-def commission_offsets(rng, n):
-    """A neutral draw made exactly symmetric around the state lean (mirrored pairs)."""
-    half = np.sort(neutral_offsets(rng, n))[n - n // 2:]
-    return np.concatenate([half, -half, np.zeros(n % 2)])
+def commission_shares(rng, n, v_a, spread):
+    """A neutral draw made exactly symmetric around the state's share (mirrored pairs)."""
+    dev = np.sort(neutral_shares(rng, n, v_a, spread) - v_a)[n - n // 2:]
+    return v_a + np.concatenate([dev, -dev, np.zeros(n % 2)])
 
 
 def gerrymander_shares(rng, n, v_a, drawer, target):
@@ -401,15 +416,16 @@ def protect_offsets(rng, n, v_a, holders):
     return sign * PROTECT_OFFSET + rng.normal(0.0, 0.10, n)
 
 
-def plan_offsets(rng, spec: Spec, n: int, lean: float, holders: list[str]) -> np.ndarray:
+def plan_offsets(rng, spec: Spec, n: int, lean: float, holders: list[str], chamber: str) -> np.ndarray:
     v_a = float(expit(lean))
     kind = spec.kind
+    spread = NEUTRAL_SPREAD[chamber]
     if kind == "at_large" or n == 1:
         return np.zeros(n)
     if kind == "neutral":
-        off = neutral_offsets(rng, n)
+        return rng.permutation(logit(neutral_shares(rng, n, v_a, spread)) - lean)
     elif kind == "commission":
-        off = commission_offsets(rng, n)
+        return rng.permutation(logit(commission_shares(rng, n, v_a, spread)) - lean)
     elif kind in CRACK_TARGET:
         off = logit(gerrymander_shares(rng, n, v_a, spec.drawer, CRACK_TARGET[kind])) - lean
     elif kind == "clustered":
@@ -417,7 +433,7 @@ def plan_offsets(rng, spec: Spec, n: int, lean: float, holders: list[str]) -> np
     elif kind == "protect":
         return recentre(protect_offsets(rng, n, v_a, holders), lean)
     elif kind == "remedial":
-        base = np.sort(commission_offsets(rng, n))
+        base = np.sort(logit(commission_shares(rng, n, v_a, spread)) - lean)
         shares = gerrymander_shares(rng, n, v_a, spec.drawer, CRACK_TARGET["gerrymander"])
         tilt = np.sort(logit(shares) - lean)
         off = (1.0 - REMEDIAL_WEIGHT) * base + REMEDIAL_WEIGHT * tilt
@@ -470,7 +486,7 @@ class History:
         for code in codes:
             held = old.get(code)
             holders.append(held[0][0] if held else ("a" if rng.random() < expit(lean) else "b"))
-        offsets = plan_offsets(rng, plan.spec, n, lean, holders)
+        offsets = plan_offsets(rng, plan.spec, n, lean, holders, plan.chamber)
         pop = np.exp(rng.normal(0.0, 0.01, n))
         pop /= pop.sum()
         districts = [District(code, float(off), 1, float(p), float(np.exp(rng.normal(0.0, 0.10))),
@@ -591,10 +607,8 @@ class History:
 
     def single_member(self, rng, chamber, expected, share, votes_cast, sitting, contested, same_party):
         margin = abs(expected - 0.5)
-        if chamber == FEDERAL:
-            p_unc = 0.80 / (1.0 + np.exp(-(margin - 0.27) / 0.025))
-        else:
-            p_unc = 0.85 / (1.0 + np.exp(-(margin - 0.25) / 0.03))
+        top, midpoint, width = UNCONTESTED[chamber]
+        p_unc = top / (1.0 + np.exp(-(margin - midpoint) / width))
         uncontested = (not contested) and (same_party or rng.random() < p_unc)
         extra = self.minor_lines(rng, chamber, uncontested)
         lines = []
@@ -668,7 +682,7 @@ class History:
 # --- output -------------------------------------------------------------------------------------
 RESULT_HEADER = ("cycle", "state", "chamber", "district", "party", "candidate", "votes", "seats", "writein")
 PLAN_HEADER = ("state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "note", "source")
-KEY_HEADER = ("state", "chamber", "plan_id", "expected", "note", "break_cycle", "measured")
+KEY_HEADER = ("state", "chamber", "plan_id", "expected", "note", "break_cycle", "measured", "watch")
 
 
 def row_key(row):
@@ -717,7 +731,7 @@ def answer_key_rows(plans: list[Plan]) -> list[tuple]:
         s = p.spec
         if s.expected:
             rows.append((p.state, p.chamber, p.plan_id, s.expected, s.note,
-                         "" if s.break_cycle is None else s.break_cycle, s.measured))
+                         "" if s.break_cycle is None else s.break_cycle, s.measured, s.watch))
     return sorted(rows, key=lambda r: (r[0], r[1], r[2]))
 
 

@@ -188,6 +188,22 @@ def test_answer_key_columns_and_plans(key, plans):
     assert (plans[plans.drawn_by == "commission"].plan_id.isin(key.plan_id)).all()
 
 
+def test_answer_key_watch_column(key, plans):
+    """``watch`` (last column) is what the watch list must show: the drawer's direction for a
+    gerrymander, nothing for commission, court and incumbent-protection plans, and for a neutral
+    plan whose measures show asymmetry (the clustered cities) the direction they show."""
+    assert key.columns[-1] == "watch"
+    assert set(key.watch) <= {"", "a", "b"}
+    joined = key.merge(plans[["plan_id", "drawn_by"]], on="plan_id", validate="one_to_one")
+    engineered = joined[joined.expected != "neutral"]
+    assert (engineered.watch == engineered.expected.str[-1]).all()
+    kept_off = joined[joined.drawn_by.isin(["commission", "court"]) | joined.note.str.startswith("incumbent protection")]
+    assert len(kept_off) >= 5 and (kept_off.watch == "").all()
+    shown = joined[(joined.expected == "neutral") & (joined.watch != "")]
+    assert len(shown) >= 1 and (shown.watch == shown.measured.str[-1]).all()
+    assert (shown.drawn_by != "court").all()
+
+
 def test_engineered_gerrymanders_have_enough_districts_in_every_cycle(key, plans, contests):
     sizes = contests.groupby(["cycle", "state", "chamber"]).size()
     for row in key[key.expected != "neutral"].merge(plans, on=["plan_id", "state", "chamber"]).itertuples():
