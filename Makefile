@@ -6,7 +6,7 @@ STAMP := $(VENV)/.levelfield-installed
 DEMO ?= demo-workspace
 LF := $(VENV)/bin/levelfield -w $(DEMO)
 
-.PHONY: demo test setup bench clean
+.PHONY: demo test setup bench clean fuzz
 
 setup: $(STAMP)
 
@@ -38,3 +38,7 @@ bench: $(STAMP)
 
 clean:
 	rm -rf $(DEMO) .pytest_cache
+
+# the long reliability profile: 20x the fuzzing budgets, more kill trials, the 1,000,000-row load
+fuzz: $(STAMP)
+	LEVELFIELD_FUZZ=long $(PY) -m pytest tests/reliability

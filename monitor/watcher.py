@@ -20,6 +20,7 @@ recompute is one transaction, so nothing is half-written.
 from __future__ import annotations
 
 import datetime as dt
+import itertools
 import json
 import re
 import shutil
@@ -81,6 +82,7 @@ class Service:
         self.stopping = threading.Event()
         self.state_path = ws.folder("logs") / STATE_FILE
         self._state = self._read_state()
+        self._state_lock = threading.RLock()  # the main loop and the scheduler's jobs both write it
 
     # -- state shown by `levelfield status` -------------------------------------------------
     def _read_state(self) -> dict:
@@ -90,15 +92,17 @@ class Service:
             return {"jobs": {}}
 
     def _write_state(self, **updates) -> None:
-        self._state.update(updates)
-        tmp = self.state_path.with_suffix(".tmp")
-        tmp.write_text(json.dumps(self._state, indent=1, default=str), encoding="utf-8")
-        tmp.replace(self.state_path)
+        with self._state_lock:
+            self._state.update(updates)
+            tmp = self.state_path.with_suffix(".tmp")
+            tmp.write_text(json.dumps(self._state, indent=1, default=str), encoding="utf-8")
+            tmp.replace(self.state_path)
 
     def _job_state(self, job: str, **fields) -> None:
-        jobs = self._state.setdefault("jobs", {})
-        jobs.setdefault(job, {}).update(fields)
-        self._write_state()
+        with self._state_lock:
+            jobs = self._state.setdefault("jobs", {})
+            jobs.setdefault(job, {}).update(fields)
+            self._write_state()
 
     # -- the work -------------------------------------------------------------------------------
     def take(self, path: Path) -> bool:
@@ -128,8 +132,11 @@ class Service:
         folder = self.ws.folder("rejected")
         name = safe_name(path.name)
         target = folder / name
-        if target.exists():
-            target = folder / f"{dt.datetime.now().strftime('%Y%m%dT%H%M%S')}-{name}"
+        stamp = dt.datetime.now().strftime('%Y%m%dT%H%M%S')
+        for n in itertools.count(1):  # never overwrite an earlier rejected file or its report
+            if not target.exists() and not (folder / f"{target.name}.error.txt").exists():
+                break
+            target = folder / (f"{stamp}-{name}" if n == 1 else f"{stamp}-{n}-{name}")
         shutil.move(str(path), target)
         (folder / f"{target.name}.error.txt").write_text("\n".join(messages) + "\n", encoding="utf-8")
         self.log("reject", level="error", message=f"{path.name}: refused ({messages[-1]})", file=path.name,
@@ -138,16 +145,25 @@ class Service:
                                       "message": f"{path.name}: {messages[-1]}"})
 
     def poll(self) -> int:
-        """One poll: take every settled file, then refresh once if anything loaded."""
+        """One poll: take every settled file, then refresh once if anything loaded.
+
+        ``refresh_pending`` in the state file is set before a load can commit and cleared only
+        after the refresh: a refresh that a crash (or an error) cut short runs at the next poll.
+        """
         started = dt.datetime.now(dt.timezone.utc)
         loaded = 0
         try:
+            carried = bool(self._state.get("refresh_pending"))
             for path in self.inbox.settled():
                 if self.stopping.is_set():
                     break
+                self._write_state(refresh_pending=True)
                 loaded += self.take(path)
-            if loaded and not self.stopping.is_set():
+                if not (loaded or carried):
+                    self._write_state(refresh_pending=False)
+            if (loaded or carried) and not self.stopping.is_set():
                 self.refresh()
+                self._write_state(refresh_pending=False)
         except Exception as exc:  # logged, kept in state, the scheduler goes on
             self._fail("poll", exc)
         self._job_state("poll", last_run=started.isoformat(timespec="seconds"))
@@ -218,10 +234,11 @@ class Service:
                      f"{config['schedule.nightly']}", inbox=str(self.inbox.folder), every=every)
             try:
                 while not self.stopping.wait(0.5):
-                    self._write_state(pid=__import__("os").getpid(), jobs={
-                        job.id: {**self._state.get("jobs", {}).get(job.id, {}),
-                                 "next_run": job.next_run_time.isoformat(timespec="seconds") if job.next_run_time else None}
-                        for job in scheduler.get_jobs()})
+                    with self._state_lock:  # read-modify-write: a job may record its last run meanwhile
+                        self._write_state(pid=__import__("os").getpid(), jobs={
+                            job.id: {**self._state.get("jobs", {}).get(job.id, {}),
+                                     "next_run": job.next_run_time.isoformat(timespec="seconds") if job.next_run_time else None}
+                            for job in scheduler.get_jobs()})
             finally:
                 self.log("stop", message="stopping after the job in progress")
                 scheduler.shutdown(wait=True)

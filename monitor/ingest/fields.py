@@ -25,6 +25,9 @@ def parse_votes(cell: str, max_votes: int):
         if _FLOATISH.match(text):
             return None, f"votes {cell.strip()!r} is not a whole number"
         return None, f"votes {cell.strip()!r} is not a number"
+    if len(text.lstrip("+0")) > len(str(max_votes)):  # int() refuses 4,300+ digits; no count is that long
+        return None, (f"votes ({len(text.lstrip('+0'))} digits) is above the sane bound of {max_votes:,} "
+                      "(load.max_votes_per_row)")
     value = int(text)
     if value > max_votes:
         return None, f"votes {value:,} is above the sane bound of {max_votes:,} (load.max_votes_per_row)"
@@ -42,7 +45,7 @@ def parse_seats(cell: str):
     text = cell.strip()
     if not text:
         return 1, None
-    if not _INT.match(text) or int(text) < 1 or int(text) > 1000:
+    if not _INT.match(text) or len(text.lstrip("+0")) > 4 or int(text) < 1 or int(text) > 1000:
         return None, f"seats {text!r} is not a whole number of seats (1 or more)"
     return int(text), None
 
@@ -70,3 +73,9 @@ def parse_text(cell: str, column: str, *, required: bool):
     if required and not text:
         return None, f"{column} is empty"
     return text, None
+
+
+def shown(text: str) -> str:
+    """``text`` safe to print in a message: control and other unprintable characters escaped, so
+    that a header or a code taken from a file cannot move the cursor or recolour a terminal."""
+    return text if text.isprintable() else text.encode("unicode_escape").decode("ascii")

@@ -14,11 +14,13 @@ from collections import Counter, defaultdict
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
 from monitor.errors import DataError, Problem, UsageError
+from monitor.ingest.fields import shown
 from monitor.ingest.mapping import Mapping, parse_mapped, sum_candidate_lines
 from monitor.ingest.native import parse_native
 from monitor.ingest.reader import csv_rows, decode, decompressed, read_raw
@@ -72,7 +74,7 @@ class LoadReport:
                    f"{self.count('unchanged')} unchanged")
         for unit in self.units:
             if unit.action == "corrected":
-                out.append(f"  correction {unit.cycle} {unit.state} {unit.chamber}:")
+                out.append(f"  correction {unit.cycle} {shown(unit.state)} {shown(unit.chamber)}:")
                 out.extend(f"    {c}" for c in unit.changes or ["no change in seats, winners or vote totals"])
         if self.other_labels:
             labels = ", ".join(f"{k!r} ({v})" for k, v in sorted(self.other_labels.items()))
@@ -108,13 +110,7 @@ def load_file(
     except OSError as exc:
         raise UsageError(f"{path}: cannot read ({exc.strerror})") from None
     report = LoadReport(file=raw.name, sha256=raw.sha256, outcome="dry run" if dry_run else "loaded")
-    earlier = queries.load_by_sha256(db, raw.sha256, mapping.sha256 if mapping else None)
-    if earlier is not None:
-        report.outcome = "already loaded"
-        report.load_id = earlier["id"]
-        report.note = (f"the same bytes (sha256 {raw.sha256[:12]}...)"
-                       + (" through the same mapping" if mapping else "")
-                       + f" were loaded as load #{earlier['id']} on {earlier['loaded_at']}; nothing changed")
+    if _already_loaded(db, raw, mapping, report):
         return report
 
     content = decompressed(raw, config["load.max_decompressed_mb"] * 2**20)
@@ -152,14 +148,30 @@ def load_file(
 
     stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
     units = _group_units(records)
+    # the CPU work happens before the write lock is taken: the transaction only writes
+    prepared = _prepare_units(units)
     try:
         with transaction(db) as conn:
-            _write(conn, raw, mapping, source, stamp, units, report)
+            _write(conn, raw, mapping, source, stamp, prepared, report)
             if dry_run:
                 raise _DryRun()
     except _DryRun:
         report.load_id = None
     return report
+
+
+def _already_loaded(db, raw, mapping, report: LoadReport) -> bool:
+    """Mark ``report`` 'already loaded' when these bytes (through this mapping) were loaded before."""
+    earlier = queries.load_by_sha256(db, raw.sha256, mapping.sha256 if mapping else None)
+    if earlier is None:
+        return False
+    report.outcome = "already loaded"
+    report.load_id = earlier["id"]
+    report.units = []
+    report.note = (f"the same bytes (sha256 {raw.sha256[:12]}...)"
+                   + (" through the same mapping" if mapping else "")
+                   + f" were loaded as load #{earlier['id']} on {earlier['loaded_at']}; nothing changed")
+    return True
 
 
 class _DryRun(Exception):
@@ -182,22 +194,42 @@ def _content_hash(records: list[Record]) -> str:
     return hashlib.sha256("\n".join(lines).encode()).hexdigest()
 
 
-def _reduce_records(records: list[Record]) -> tuple[pd.DataFrame, dict[tuple, int]]:
-    """Reduce a unit's records; contest ids are positions in the returned key map."""
-    keys: dict[tuple, int] = {}
-    rows = []
-    for rec in records:
-        cid = keys.setdefault((rec.district, rec.special), len(keys))
-        rows.append((cid, rec.party_code, rec.candidate, rec.votes))
+@dataclass
+class _Unit:
+    """A unit ready to write: its records, content hash, contests and their reduction."""
+
+    records: list[Record]
+    digest: str
+    contest_keys: dict[tuple, int]  # (district, special) -> position in ``reduced``
+    reduced: pd.DataFrame            # one row per contest, indexed by position
+
+
+def _prepare_units(units: dict[tuple, list[Record]]) -> dict[tuple, _Unit]:
+    """Hash every unit and reduce every contest of the file in one vectorised call."""
+    rows, seats, spans = [], [], []
+    for key, records in units.items():
+        keys: dict[tuple, int] = {}
+        base = len(seats)
+        for rec in records:
+            local = keys.setdefault((rec.district, rec.special), len(keys))
+            if local == len(seats) - base:
+                seats.append(rec.seats)
+            rows.append((base + local, rec.party_code, rec.candidate, rec.votes))
+        spans.append((key, records, keys, base))
     votes = pd.DataFrame(rows, columns=["contest_id", "party_code", "candidate", "votes"])
-    seats = {}
-    for rec in records:
-        seats[keys[(rec.district, rec.special)]] = rec.seats
-    contests = pd.DataFrame({"contest_id": list(seats), "seats": list(seats.values())})
-    return reduce_contests(votes, contests).set_index("contest_id"), keys
+    contests = pd.DataFrame({"contest_id": np.arange(len(seats)), "seats": seats})
+    reduced = reduce_contests(votes, contests).set_index("contest_id").sort_index()
+    out = {}
+    for key, records, keys, base in spans:
+        part = reduced.iloc[base:base + len(keys)].copy()
+        part.index = np.arange(len(keys))
+        out[key] = _Unit(records, _content_hash(records), keys, part)
+    return out
 
 
 def _write(conn, raw, mapping, source, stamp, units, report: LoadReport) -> None:
+    if _already_loaded(conn, raw, mapping, report):
+        return  # another process loaded the same bytes while this one was parsing them
     current = queries.current_units(conn, units)
     load_id = queries.insert_load(conn, {
         "file_name": raw.name, "sha256": raw.sha256, "bytes": raw.size, "format": report.format,
@@ -212,10 +244,9 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport) -> None
     queries.ensure_keys(conn, "chambers", "code", sorted({k[2] for k in units}))
     superseded = []
     contest_id = queries.next_id(conn, "contests")
-    for key, records in units.items():
-        digest = _content_hash(records)
+    for key, unit in units.items():
+        records, digest, reduced, contest_keys = unit.records, unit.digest, unit.reduced, unit.contest_keys
         before = current.get(key)
-        reduced, contest_keys = _reduce_records(records)
         change = UnitChange(*key, action="new", contests=len(contest_keys))
         report.units.append(change)
         if before is not None and before["content_sha256"] == digest:
@@ -232,8 +263,9 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport) -> None
         ids = {ck: contest_id + i for ck, i in contest_keys.items()}
         contest_id += len(ids)
         seats = {(r.district, r.special): r.seats for r in records}
+        status = reduced["status"].tolist()
         queries.insert_contests(conn, [
-            (cid, unit_id, ck[0], seats[ck], int(ck[1]), reduced.loc[i, "status"])
+            (cid, unit_id, ck[0], seats[ck], int(ck[1]), status[i])
             for (ck, cid), i in zip(ids.items(), contest_keys.values())
         ])
         queries.insert_votes(conn, [

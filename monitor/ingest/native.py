@@ -11,6 +11,7 @@ import difflib
 from typing import Iterable
 
 from monitor.errors import DataError, Problem
+from monitor.ingest.fields import shown
 from monitor.ingest.records import ParseContext, Record, parse_record
 
 LONG_REQUIRED = ("cycle", "state", "chamber", "district", "party", "candidate", "votes")
@@ -29,7 +30,7 @@ def header_problems(file: str, header: list[str]) -> list[Problem]:
         if not key:
             problems.append(Problem(file, 1, f"#{index + 1}", "column has no name"))
         elif key in seen:
-            problems.append(Problem(file, 1, name.strip(), f"duplicated column (also column {seen[key] + 1})"))
+            problems.append(Problem(file, 1, shown(name.strip()), f"duplicated column (also column {seen[key] + 1})"))
         else:
             seen[key] = index
     return problems
@@ -72,7 +73,7 @@ def parse_native(
         key = name.casefold()
         if key and key not in known and not (parties and key.startswith(VOTES_PREFIX)):
             hint = difflib.get_close_matches(key, sorted(known), n=1)
-            problems.append(Problem(ctx.file, 1, name, "unknown column" + (f" (did you mean {hint[0]!r}?)" if hint else "")))
+            problems.append(Problem(ctx.file, 1, shown(name), "unknown column" + (f" (did you mean {hint[0]!r}?)" if hint else "")))
     if len(names) == 1 and any(sep in names[0] for sep in ";\t|"):
         problems = [Problem(ctx.file, 1, None, "the header is one column: is the file separated by "
                                                "something other than commas? native files use commas")]
@@ -106,6 +107,10 @@ def parse_native(
         # a wide row is one whole contest: a bad cell skips the row, never half of it
         row_records: list[Record] = []
         row_seen: set[Problem] = set()
+        if not any(cells[i].strip() for _, i in parties):
+            row_problems.append(Problem(ctx.file, row, None, "no votes_ column has a count: a district "
+                                                             "with no votes at all"))
+            continue
         for label, i in parties:
             if not cells[i].strip():
                 continue  # party not on the ballot in this district

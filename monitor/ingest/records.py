@@ -66,7 +66,7 @@ def parse_record(
     def take(name: str, parsed):
         value, reason = parsed
         if reason:
-            problems.append(Problem(ctx.file, row, columns.get(name, name), reason))
+            problems.append(Problem(ctx.file, row, F.shown(columns.get(name, name)), reason))
         return value
 
     def cell(name: str) -> str:

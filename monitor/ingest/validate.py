@@ -9,6 +9,7 @@ from __future__ import annotations
 from collections import defaultdict
 
 from monitor.errors import Problem
+from monitor.ingest.fields import shown
 from monitor.ingest.records import Record
 
 
@@ -31,7 +32,7 @@ def check_records(file: str, records: list[Record]) -> tuple[list[Problem], set[
             line = (rec.party.casefold(), rec.candidate.casefold())
             if line in lines:
                 first = records[lines[line]]
-                problems.append(Problem(file, rec.row, rec.columns.get("candidate", "candidate"),
+                problems.append(Problem(file, rec.row, shown(rec.columns.get("candidate", "candidate")),
                                         f"candidate {rec.candidate!r} appears twice on the "
                                         f"{rec.party or '(no party)'!r} line of district "
                                         f"{rec.district!r} (first at row {first.row})"))
@@ -43,14 +44,14 @@ def check_records(file: str, records: list[Record]) -> tuple[list[Problem], set[
             first = records[members[0]]
             for i in members:
                 if records[i].seats != first.seats:
-                    problems.append(Problem(file, records[i].row, records[i].columns.get("seats", "seats"),
+                    problems.append(Problem(file, records[i].row, shown(records[i].columns.get("seats", "seats")),
                                             f"seats {records[i].seats} disagrees with {first.seats} at row "
                                             f"{first.row} for district {first.district!r}"))
             bad.update(members)
         if sum(records[i].votes for i in members) == 0:
             first = records[members[0]]
-            problems.append(Problem(file, first.row, first.columns.get("votes", "votes"),
-                                    f"district {first.district!r} ({first.state} {first.chamber} "
+            problems.append(Problem(file, first.row, shown(first.columns.get("votes", "votes")),
+                                    f"district {first.district!r} ({shown(first.state)} {shown(first.chamber)} "
                                     f"{first.cycle}) has no votes at all"))
             bad.update(members)
 
@@ -59,8 +60,8 @@ def check_records(file: str, records: list[Record]) -> tuple[list[Problem], set[
         if len(statuses) > 1:
             first = records[members[0]]
             other = next(records[i] for i in members if records[i].status != first.status)
-            problems.append(Problem(file, other.row, other.columns.get("status", "status"),
-                                    f"{first.state} {first.chamber} {first.cycle} mixes certified and "
+            problems.append(Problem(file, other.row, shown(other.columns.get("status", "status")),
+                                    f"{shown(first.state)} {shown(first.chamber)} {first.cycle} mixes certified and "
                                     f"unofficial rows (row {first.row} is {first.status}, this row is "
                                     f"{other.status}); a unit is delivered whole, with one status"))
             bad.update(members)
