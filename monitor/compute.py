@@ -18,7 +18,7 @@ import sqlite_utils
 from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.measures import MEASURE_VERSIONS, MeasureSettings, compute_measures
-from store import transaction
+from store import write_from_snapshot
 
 EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value",
                   "method_version", "policy"]
@@ -78,7 +78,16 @@ def compute_frame(config: Config, contests: pd.DataFrame) -> tuple[pd.DataFrame,
 
 def compute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
             now: dt.datetime | None = None) -> ComputeReport:
-    """Bring the ``measures`` table up to date (incrementally unless ``full``)."""
+    """Bring the ``measures`` table up to date (incrementally unless ``full``).
+
+    Reads, computation and write are one consistent step (:func:`store.write_from_snapshot`): a
+    load committed meanwhile makes the step run again, so stale measures never overwrite new ones."""
+    stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
+    return write_from_snapshot(db, lambda: _compute_step(db, config, full, stamp))
+
+
+def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str):
+    """Read the store and compute the stale units' measures; return the writer."""
     report = ComputeReport()
     contests = reduced_contests(db)
     arrays = measure_inputs(contests, config, settings_salt(config))
@@ -102,7 +111,6 @@ def compute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
     gone = {k for k in zip(stored["cycle"], stored["state"], stored["chamber"])} - current
     report.units_removed = len(gone)
 
-    stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
     rows = []
     if len(stale):
         sub = contests[contests["unit_id"].isin(units.loc[stale, "unit_id"])]
@@ -114,7 +122,8 @@ def compute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
             for r in long.itertuples(index=False)
         ]
         report.computed = sorted({(r[0], r[1], r[2]) for r in rows})
-    with transaction(db) as conn:
+
+    def write(conn) -> ComputeReport:
         for key in report.computed + sorted(gone):
             conn.execute("DELETE FROM measures WHERE cycle = ? AND state = ? AND chamber = ?", list(key))
         conn.executemany(
@@ -122,8 +131,10 @@ def compute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
             "method_version, policy, inputs_hash, unit_id, computed_at) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
             rows,
         )
-    report.rows_written = len(rows)
-    return report
+        report.rows_written = len(rows)
+        return report
+
+    return write
 
 
 def measures_export(db: sqlite_utils.Database) -> pd.DataFrame:

@@ -34,8 +34,8 @@ from monitor import pool as P
 from monitor.compute import settings_salt
 from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
-from monitor.plans import assign_plans
-from store import transaction
+from monitor.plans import assign_plans, write_inferred
+from store import write_from_snapshot
 
 POOL_METHOD_VERSION = "pool-1"
 #: measures judged against their national-pool null, by the name they carry in ``tails``
@@ -251,18 +251,31 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
 def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
               now: dt.datetime | None = None) -> FlagsReport:
     """Recompute the national tails of changed cycle/chamber groups, judge every unit, rebuild
-    the watch list, and record every flag that was raised or cleared."""
-    report = FlagsReport()
+    the watch list, and record every flag that was raised or cleared.
+
+    Reads, computation and the write are one consistent step (:func:`store.write_from_snapshot`):
+    when another process commits meanwhile (a load, or a second recompute), the step runs again on
+    the new state, so no event is recorded twice and no newer result is overwritten."""
     stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
+    return write_from_snapshot(db, lambda: _flag_step(db, config, full, stamp))
+
+
+def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str):
+    """Read the store, compute tails, flags, watch list and events; return the writer."""
+    report = FlagsReport()
     contests = reduced_contests(db)
     arrays = measure_inputs(contests, config, settings_salt(config))
     units = arrays.units
     loads = contests.drop_duplicates("unit_id").set_index("unit_id")["load_id"]
-    plans = assign_plans(db, units)
+    plans, inferred = assign_plans(db, units)
     stored_hash = dict(db.execute(
         "SELECT cycle || '|' || chamber, MIN(inputs_hash) FROM pool_seats GROUP BY cycle, chamber").fetchall())
     old_seats = pd.read_sql_query("SELECT * FROM pool_seats", db.conn)
     old_tails = pd.read_sql_query("SELECT * FROM tails", db.conn)
+    old_watch = pd.read_sql_query("SELECT * FROM watch", db.conn)
+    pvals = pd.read_sql_query(
+        "SELECT cycle, state, chamber, measure, value, p_value, reason FROM measures WHERE measure IN (?, ?)",
+        db.conn, params=[P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
     seat_frames, tail_frames = [], []
     for (cycle, chamber), part in units.groupby(["cycle", "chamber"], sort=True):
         report.groups_total += 1
@@ -283,9 +296,6 @@ def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
         tail_frames.append(tails)
     seats = pd.concat(seat_frames, ignore_index=True) if seat_frames else pd.DataFrame(columns=[*UNIT_KEYS, "excess_seats"])
     tails = pd.concat(tail_frames, ignore_index=True) if tail_frames else pd.DataFrame(columns=[*UNIT_KEYS, "measure", "value"])
-    pvals = pd.read_sql_query(
-        "SELECT cycle, state, chamber, measure, value, p_value, reason FROM measures WHERE measure IN (?, ?)",
-        db.conn, params=[P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
     districts = units.set_index(UNIT_KEYS)["districts_eligible"]
     judged = context_stats(judge(tails, pvals, districts, config))
     judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
@@ -294,12 +304,12 @@ def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
     report.on_watch = len(watch)
 
     events = _unit_events(old_tails, judged, units, loads, stamp)
-    old_watch = pd.read_sql_query("SELECT * FROM watch", db.conn)
     last_load = {(r.state, r.chamber): r.load_id for r in contests.groupby(["state", "chamber"])["load_id"].max().reset_index().itertuples()}
     events += _watch_events(old_watch, watch, last_load, stamp)
     report.events = [e["text"] for e in events]
 
-    with transaction(db) as conn:
+    def write(conn) -> None:
+        write_inferred(conn, inferred)
         conn.execute("DELETE FROM pool_seats")
         seat_cols = ["cycle", "state", "chamber", "districts", "vote_share", "seats_a", "expected_seats", "low",
                      "high", "percentile", "excess_seats", "draws", "ess", "mc_se", "reason", "inputs_hash"]
@@ -328,7 +338,9 @@ def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
             [(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
               e["direction"], e["why"], stamp, e["load_id"]) for e in events],
         )
-    return report
+        return report
+
+    return write
 
 
 def _sql(value):

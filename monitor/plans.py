@@ -117,9 +117,9 @@ def census_start(cycle: int) -> int:
     return cycle - ((cycle - 2) % 10)
 
 
-def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> pd.DataFrame:
+def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple]]:
     """For units (cycle, state, chamber): plan_id, drawn_by, inferred. Units outside every loaded
-    era get an inferred decade plan, which is (re)written to the plans table with inferred = 1."""
+    era get an inferred decade plan; those plans are returned as rows for :func:`write_inferred`."""
     plans = pd.read_sql_query(
         "SELECT state, chamber, plan_id, first_cycle, last_cycle, drawn_by FROM plans WHERE inferred = 0",
         db.conn,
@@ -141,14 +141,17 @@ def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> pd.DataFrame
         first, last = inferred.get(key, (u.cycle, u.cycle))
         inferred[key] = (min(first, u.cycle), max(last, u.cycle))
         out.append((plan_id, "other", 1))
-    with transaction(db) as conn:
-        conn.execute("DELETE FROM plans WHERE inferred = 1")
-        conn.executemany(
-            "INSERT OR REPLACE INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
-            "VALUES (?, ?, ?, ?, ?, 'other', 'inferred: a new plan assumed from each cycle ending in 2', NULL, 1)",
-            [(s, c, p, int(f), int(l)) for (s, c, p), (f, l) in inferred.items()],
-        )
     result = units[["cycle", "state", "chamber"]].copy()
     result[["plan_id", "drawn_by", "inferred"]] = pd.DataFrame(out, index=result.index,
                                                                columns=["plan_id", "drawn_by", "inferred"])
-    return result
+    return result, [(s, c, p, int(f), int(l)) for (s, c, p), (f, l) in inferred.items()]
+
+
+def write_inferred(conn, inferred: list[tuple]) -> None:
+    """Replace the inferred plans (rows from :func:`assign_plans`), inside the caller's transaction."""
+    conn.execute("DELETE FROM plans WHERE inferred = 1")
+    conn.executemany(
+        "INSERT OR REPLACE INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
+        "VALUES (?, ?, ?, ?, ?, 'other', 'inferred: a new plan assumed from each cycle ending in 2', NULL, 1)",
+        inferred,
+    )

@@ -4,7 +4,8 @@ This package knows tables, not politics: it stores what the loader hands it and 
 queries; what a party code or a contest status *means* is decided in ``monitor``.
 """
 
-from store.db import connect, transaction
+from store.db import StaleRead, connect, snapshot, transaction, write_from_snapshot
 from store.migrations import SCHEMA_VERSION, migrate, schema_version
 
-__all__ = ["SCHEMA_VERSION", "connect", "migrate", "schema_version", "transaction"]
+__all__ = ["SCHEMA_VERSION", "StaleRead", "connect", "migrate", "schema_version", "snapshot", "transaction",
+           "write_from_snapshot"]

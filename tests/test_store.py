@@ -132,3 +132,51 @@ def test_two_connections_see_each_others_commits(tmp_path):
     assert two.execute("SELECT code FROM states").fetchall() == [("QV",)]
     one.close()
     two.close()
+
+
+def _counter_step(db, other, seen):
+    """A read-compute-write step (increment a counter) that lets ``other`` commit once in between."""
+    value = db.execute("SELECT n FROM counter").fetchone()[0]
+    seen.append(value)
+    if other is not None and len(seen) == 1:
+        other.execute("UPDATE counter SET n = n + 100")  # another process commits after our read
+    return lambda conn: conn.execute("UPDATE counter SET n = ?", [value + 1])
+
+
+def test_write_from_snapshot_reruns_after_another_commit_and_loses_no_update(tmp_path):
+    path = tmp_path / "history.sqlite"
+    db = store.connect(path, migrate=False)
+    db.execute("CREATE TABLE counter (n INTEGER)")
+    db.execute("INSERT INTO counter VALUES (0)")
+    other = sqlite3.connect(str(path), isolation_level=None)
+    seen = []
+    store.write_from_snapshot(db, lambda: _counter_step(db, other, seen))
+    # the first attempt read 0 and was discarded when the other write landed; the rerun read 100
+    assert seen == [0, 100]
+    assert db.execute("SELECT n FROM counter").fetchone()[0] == 101
+    other.close()
+    db.close()
+
+
+def test_write_from_snapshot_last_attempt_holds_the_writer_lock(tmp_path):
+    path = tmp_path / "history.sqlite"
+    db = store.connect(path, migrate=False)
+    db.execute("CREATE TABLE counter (n INTEGER)")
+    db.execute("INSERT INTO counter VALUES (0)")
+    other = sqlite3.connect(str(path), isolation_level=None, timeout=0.1)
+    seen = []
+
+    def step():  # another writer commits after every optimistic read; the last attempt shuts it out
+        value = db.execute("SELECT n FROM counter").fetchone()[0]
+        seen.append(value)
+        try:
+            other.execute("UPDATE counter SET n = n + 100")
+        except sqlite3.OperationalError:
+            seen.append("locked out")
+        return lambda conn: conn.execute("UPDATE counter SET n = ?", [value + 1])
+
+    store.write_from_snapshot(db, step, attempts=3)
+    assert seen == [0, 100, 200, "locked out"]
+    assert db.execute("SELECT n FROM counter").fetchone()[0] == 201
+    other.close()
+    db.close()

@@ -138,9 +138,6 @@ def test_a_watcher_and_two_manual_loads_at_once_land_every_file_exactly_once(wor
     assert overlaps >= 1
 
 
-@pytest.mark.xfail(strict=True, reason="known bug, reported to the lead: monitor/flags.py run_flags reads the "
-                   "old tails and watch list before its write transaction, so two recomputes at once (the "
-                   "watcher's refresh and a manual `levelfield compute`) both record every flag event")
 def test_two_recomputes_at_once_record_each_flag_event_once(workspace, tmp_path):
     data = tmp_path / "results.csv"
     write_results(data, Shape(states=6, districts=30), seed=4)
