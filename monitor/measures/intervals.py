@@ -46,8 +46,11 @@ import numpy as np
 
 from .segments import Segments
 
-#: Upper bound on simulated district rows held in memory at once.
-MAX_ROWS = 1 << 21
+#: Simulated district rows per chunk (at least one antithetic pair of every unit is done at
+#: once): about 1 MB per temporary array, which stays in cache; larger chunks were slower.
+MAX_ROWS = 1 << 17
+#: Cached properties of :class:`Segments` that district-level share noise leaves unchanged.
+FIXED_UNDER_NOISE = ("total", "count", "starts", "_filled", "total_votes", "has_empty_district", "defined")
 
 
 def district_rank(seg: Segments) -> np.ndarray:
@@ -103,18 +106,17 @@ def simulate(
     rank = district_rank(seg)
     x = np.where(seg.total > 0, seg.share, 0.5)
     chunk = max(1, MAX_ROWS // (2 * rows))
-    # simulated election j of a chunk is unit block j: ids j * n_units + unit, non-decreasing
-    sim_unit = (np.arange(2 * min(chunk, pairs))[:, None] * seg.n_units + seg.unit[None, :]).ravel()
     for p0 in range(0, pairs, chunk):
         p1 = min(p0 + chunk, pairs)
         shift = noise_sd * z[p0:p1][:, rank]
         sims = np.clip(np.concatenate([x + shift, x - shift]), 0.0, 1.0)
-        k = sims.shape[0]
-        sim = Segments(sim_unit[: k * rows], (seg.total * sims).ravel(), (seg.total * (1.0 - sims)).ravel(),
-                       k * seg.n_units, validate=False)
+        # row j of the (2k, M) arrays is simulated election j of every unit at once
+        sim = Segments(seg.unit, seg.total * sims, seg.total * (1.0 - sims), seg.n_units, validate=False)
+        # what the noise leaves unchanged (turnout, counts, empty districts) is taken from ``seg``
+        sim.__dict__.update({name: getattr(seg, name) for name in FIXED_UNDER_NOISE}, share=sims)
         slots = np.r_[p0:p1, pairs + p0:pairs + p1]
         for name, f in measures.items():
-            out[name][:, slots] = f(sim).reshape(k, seg.n_units).T
+            out[name][:, slots] = f(sim).T
     return out
 
 

@@ -78,7 +78,10 @@ class Segments:
         Unit id of each district row, non-decreasing, in ``0..n_units-1``.  Units without rows
         are allowed (their measures are NaN).
     votes_a, votes_b : array_like of float, shape (M,)
-        Two-party votes of parties a and b (finite, >= 0).
+        Two-party votes of parties a and b (finite, >= 0).  Unvalidated, they may also have shape
+        (K, M): K elections on the same districts (the interval simulation), and every per-unit
+        result then has shape (K, n_units).  The measures built from ``sum``, ``spread``,
+        ``divide`` and ``mask`` (efficiency gap, declination, uniform swing) work on both.
     n_units : int
     validate : bool, default True
         Check the arrays (:class:`ValueError` listing every problem).  Internal callers that
@@ -132,17 +135,36 @@ class Segments:
 
     # -- per unit -------------------------------------------------------------------------
     def sum(self, values: np.ndarray) -> np.ndarray:
-        """Per-unit sum of a per-district array (0 for empty units)."""
-        return np.bincount(self.unit, weights=values, minlength=self.n_units)
+        """Per-unit sum of a per-district array (0 for empty units).
+
+        Rows are contiguous per unit, so one ``np.add.reduceat`` over the non-empty units' starts
+        does it (about 4x faster than a weighted ``np.bincount``)."""
+        values = np.asarray(values, dtype=np.float64)
+        out = np.zeros((*values.shape[:-1], self.n_units))
+        if not self._filled.size:
+            return out
+        starts = self.starts[self._filled]
+        if values.ndim == 2:  # K elections: one flat reduceat (numpy's axis=-1 path is slower)
+            k, m = values.shape
+            starts = (np.arange(k)[:, None] * m + starts).ravel()
+            out[:, self._filled] = np.add.reduceat(values.ravel(), starts).reshape(k, -1)
+        else:
+            out[self._filled] = np.add.reduceat(values, starts)
+        return out
 
     def spread(self, per_unit: np.ndarray) -> np.ndarray:
-        """A per-unit array repeated onto the unit's district rows."""
-        return np.asarray(per_unit)[self.unit]
+        """A per-unit array repeated onto the unit's district rows (rows are grouped by unit)."""
+        return np.repeat(np.asarray(per_unit), self.count, axis=-1)
 
     @cached_property
     def count(self) -> np.ndarray:
         """N, the number of districts of each unit (int64)."""
         return np.bincount(self.unit, minlength=self.n_units).astype(np.int64)
+
+    @cached_property
+    def _filled(self) -> np.ndarray:
+        """Indices of the units that have at least one district row."""
+        return np.flatnonzero(self.count)
 
     @cached_property
     def starts(self) -> np.ndarray:
@@ -152,7 +174,7 @@ class Segments:
     @cached_property
     def has_empty_district(self) -> np.ndarray:
         """Per unit: some district has a_i = b_i = 0."""
-        return np.bincount(self.unit[self.total <= 0], minlength=self.n_units) > 0
+        return self.sum(self.total <= 0) > 0
 
     @cached_property
     def total_votes(self) -> np.ndarray:
@@ -170,7 +192,7 @@ class Segments:
 
     def divide(self, num: np.ndarray, den: np.ndarray) -> np.ndarray:
         """num / den with NaN where den == 0 (no warnings)."""
-        out = np.full(np.shape(num), np.nan)
+        out = np.full(np.broadcast_shapes(np.shape(num), np.shape(den)), np.nan)
         np.divide(num, den, out=out, where=den != 0)
         return out
 
