@@ -176,21 +176,25 @@ def compute(ws: Workspace, full: bool) -> None:
 @main.command()
 @click.option("--cycle", type=int, help="Only this cycle.")
 @click.option("--chamber", help="Only this chamber.")
-@click.option("--watch", "show", flag_value="watch", help="The plans on watch.")
-@click.option("--changes", "show", flag_value="changes", help="The history of raised and cleared flags.")
+@click.option("--watch", "watch_list", is_flag=True, help="The plans on watch.")
+@click.option("--changes", is_flag=True, help="The history of raised and cleared flags.")
 @click.option("--format", "fmt", type=click.Choice(["table", "csv", "json"]), default="table", show_default=True)
 @click.pass_obj
 @guarded
-def flags(ws: Workspace, cycle, chamber, show, fmt) -> None:
+def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
     """Show the flagged units (default), the watch list (--watch) or the flag history (--changes).
 
     Flags are computed by `levelfield compute`. A flag is an indicator that a unit sits in the
-    tail of the national distribution, not a legal finding.
+    tail of the national distribution, not a legal finding. Inferred plans (no loaded era) are
+    marked in the `inferred` column.
     """
     from monitor.flags import flag_table
     from monitor.output import to_text, write
 
-    write(to_text(flag_table(ws.open_store(), show or "flags", cycle=cycle, chamber=chamber), fmt), None)
+    if watch_list and changes:
+        raise UsageError("--watch and --changes show different tables: give one of them, not both")
+    show = "watch" if watch_list else "changes" if changes else "flags"
+    write(to_text(flag_table(ws.open_store(), show, cycle=cycle, chamber=chamber), fmt), None)
 
 
 @main.command()
@@ -271,14 +275,16 @@ def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
 
 @main.command()
 @click.option("--out", type=click.Path(path_type=Path, file_okay=False),
-              help="Folder to publish into (default the workspace's public/).")
+              help="Folder to publish into (default the workspace's public/). It is replaced "
+                   "entirely, so it must be new, empty or an earlier levelfield site.")
 @click.pass_obj
 @guarded
 def publish(ws: Workspace, out: Path | None) -> None:
     """Build the static site from the store: pages, charts, downloads and feed.
 
     The site is built beside the output folder and swapped in at once: a failed build leaves
-    the previous site whole. Pages whose content did not change are not rewritten.
+    the previous site whole. Pages whose content did not change are not rewritten. A folder
+    holding other files (or the store) is refused rather than emptied.
     """
     from monitor.publish import build
 

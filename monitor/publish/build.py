@@ -1,10 +1,15 @@
 """Build the site: collect -> render -> write, with an atomic swap.
 
 1. **collect** reads the store into frames (:func:`monitor.publish.collect.collect`);
-2. **render** turns them into every page, download and asset, ``path -> bytes``, in memory;
-3. **write** fills a fresh folder beside the output and swaps it into place in one step
-   (``renameat2(RENAME_EXCHANGE)`` on Linux; elsewhere two renames). A build that fails at any
-   stage leaves the previous site whole.
+2. **render** turns them into every page, download and asset, ``(path, bytes)`` one at a time;
+3. **write** puts each file into a fresh folder beside the output as it comes (so a build holds
+   one page in memory, not the site) and, once all are written, swaps the folder into place in
+   one step (``renameat2(RENAME_EXCHANGE)`` on Linux; elsewhere two renames). A build that fails
+   at any stage leaves the previous site whole.
+
+Only a levelfield site is ever replaced: the output folder must be new, empty, or hold the
+marker file :data:`MARKER` that every build writes; anything else is refused (``--out`` pointed
+at the workspace, a home folder or a folder of notes must not be emptied).
 
 Incremental: a file whose bytes are unchanged is not rewritten; it is hard-linked from the
 previous build (same inode, same mtime), so the pages of states whose data did not change stay
@@ -19,10 +24,11 @@ import contextlib
 import ctypes
 import datetime as dt
 import errno
+import itertools
 import os
 import shutil
 import tempfile
-from collections.abc import Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
 
@@ -31,7 +37,7 @@ import sqlite_utils
 from monitor.config import Config
 from monitor.errors import UsageError
 from monitor.publish.collect import collect
-from monitor.publish.pages import render_site, static_assets
+from monitor.publish.pages import iter_site, static_assets
 from monitor.publish.runtime import RUNTIME_PATH, vega_runtime
 
 try:
@@ -72,22 +78,54 @@ class BuildReport:
 
 
 def build(source, config: Config | None = None, out: str | Path | None = None, *,
-          templates: Sequence[str | Path] = ()) -> BuildReport:
+          templates: Sequence[str | Path] = (), _own: bool = False) -> BuildReport:
     """Build the site from ``source`` (a :class:`~monitor.workspace.Workspace` or a store
     database) into ``out`` (default: the workspace's ``public/``).
 
     ``templates``: folders searched before the built-in templates (overrides).
     """
-    db, config, out = _resolve(source, config, out)
+    db, config, out, own = _resolve(source, config, out)
+    own = own or _own
     out = Path(out).absolute()
+    check_output(out, _store_path(db), unmarked_ok=own)
     with _lock(out):
         data = collect(db, config)
-        files = render_site(data, templates)
-        files.update(static_assets())
-        files[RUNTIME_PATH] = vega_runtime(out / RUNTIME_PATH)
-        report = write_site(files, out)
+
+        def files():
+            yield from iter_site(data, templates)
+            yield from static_assets().items()
+            yield RUNTIME_PATH, vega_runtime(out / RUNTIME_PATH)
+
+        report = write_site(files(), out, unmarked_ok=own)
     report.site_time = data.site_time
     return report
+
+
+#: Written at the root of every build; its presence marks a folder as a levelfield site.
+MARKER = ".levelfield-site"
+MARKER_TEXT = b"This folder is a site built by levelfield publish; the next build replaces all of it.\n"
+
+
+def _store_path(db: sqlite_utils.Database) -> Path | None:
+    row = db.execute("PRAGMA database_list").fetchone()
+    return Path(row[2]).absolute() if row and row[2] else None
+
+
+def check_output(out: Path, store: Path | None = None, *, unmarked_ok: bool = False) -> None:
+    """Refuse an output folder that a build would wrongly replace: one holding the store (or
+    inside which the store lies), or a non-empty folder that no build made (``unmarked_ok``:
+    the workspace's own ``public/``, which only builds fill, even those made before the marker)."""
+    out = Path(out).absolute()
+    if out.exists() and not out.is_dir():
+        raise UsageError(f"{out} exists and is not a folder")
+    if store is not None and (store == out or out in store.parents):
+        raise UsageError(f"refusing to publish into {out}: it holds the store {store}; "
+                         "a build replaces its output folder entirely (use the workspace's public/ "
+                         "or a new folder)")
+    if not unmarked_ok and out.is_dir() and not (out / MARKER).is_file() and any(out.iterdir()):
+        raise UsageError(f"refusing to publish into {out}: it is not empty and was not made by "
+                         "levelfield publish, and a build replaces its output folder entirely "
+                         "(choose a new or empty folder)")
 
 
 def build_site(ws, *, db: sqlite_utils.Database | None = None, config: Config | None = None,
@@ -96,16 +134,23 @@ def build_site(ws, *, db: sqlite_utils.Database | None = None, config: Config | 
     recompute chain calls this after the flags)."""
     if db is None:
         return build(ws, config, out, templates=templates)
-    return build(db, config or ws.config(), out or ws.folder("public"), templates=templates)
+    public = ws.folder("public")
+    out = Path(out) if out else public
+    return build(db, config or ws.config(), out, templates=templates,
+                 _own=out.absolute() == public.absolute())
 
 
-def _resolve(source, config, out) -> tuple[sqlite_utils.Database, Config, Path]:
+def _resolve(source, config, out) -> tuple[sqlite_utils.Database, Config, Path, bool]:
+    """The store, config and output folder, and whether that folder is the workspace's own
+    ``public/`` (which needs no marker: only builds ever fill it)."""
     if isinstance(source, sqlite_utils.Database):
         if config is None or out is None:
             raise UsageError("building from a database needs both a config and an output folder")
-        return source, config, Path(out)
+        return source, config, Path(out), False
     if hasattr(source, "open_store") and hasattr(source, "folder"):
-        return source.open_store(), config or source.config(), Path(out) if out else source.folder("public")
+        public = source.folder("public")
+        out = Path(out) if out else public
+        return source.open_store(), config or source.config(), out, out.absolute() == public.absolute()
     raise TypeError(f"build() needs a Workspace or a sqlite_utils.Database, got {type(source).__name__}")
 
 
@@ -140,21 +185,25 @@ def _same(old: Path, content: bytes) -> bool:
         return False
 
 
-def write_site(files: dict[str, bytes], out: Path) -> BuildReport:
-    """Write ``files`` as the new content of ``out``: into a temp folder beside it, reusing
-    unchanged files of the previous build, then swap. On any error the temp folder is removed
-    and ``out`` is left as it was."""
+def write_site(files: Mapping[str, bytes] | Iterable[tuple[str, bytes]], out: Path, *,
+               unmarked_ok: bool = False) -> BuildReport:
+    """Write ``files`` (a mapping, or ``(path, bytes)`` pairs consumed one at a time) as the new
+    content of ``out``: into a temp folder beside it, reusing unchanged files of the previous
+    build, then swap. On any error the temp folder is removed and ``out`` is left as it was."""
     out = Path(out).absolute()
-    if out.exists() and not out.is_dir():
-        raise UsageError(f"{out} exists and is not a folder")
+    check_output(out, unmarked_ok=unmarked_ok)
     out.parent.mkdir(parents=True, exist_ok=True)
     report = BuildReport(out)
+    pairs = files.items() if isinstance(files, Mapping) else files
+    seen: set[str] = set()
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.build-", dir=out.parent))
     try:
         os.chmod(tmp, 0o755)
-        for path in sorted(files):
+        for path, content in itertools.chain(pairs, [(MARKER, MARKER_TEXT)]):
             rel = _safe(path)
-            content = files[path]
+            if path in seen:
+                raise ValueError(f"site path {path!r} produced twice")
+            seen.add(path)
             dest = tmp.joinpath(*rel.parts)
             dest.parent.mkdir(parents=True, exist_ok=True)
             old = out.joinpath(*rel.parts)
@@ -165,10 +214,12 @@ def write_site(files: dict[str, bytes], out: Path) -> BuildReport:
             else:
                 dest.write_bytes(content)
                 report.written.append(path)
+        report.written.sort()
+        report.unchanged.sort()
         if out.is_dir():
             report.removed = sorted(
                 p.relative_to(out).as_posix() for p in out.rglob("*")
-                if p.is_file() and p.relative_to(out).as_posix() not in files)
+                if p.is_file() and p.relative_to(out).as_posix() not in seen)
         report.swap = _swap(tmp, out)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)

@@ -1,4 +1,4 @@
-"""Render: every page of the site into a dict ``path -> bytes``, in memory (nothing is written).
+"""Render: every page of the site as ``(path, bytes)``, one at a time (nothing is written here).
 
 Templates are found along an ordered search path: an optional override folder first, then the
 built-in ``site/templates``; a template can extend a built-in one as ``default:base.html``.
@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import json
 import posixpath
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from pathlib import Path
 
 import jinja2
@@ -77,39 +77,44 @@ class Renderer:
         self.data = data
         self.env = env
         self.views = Views(data)
-        self.out: dict[str, bytes] = {}
 
-    def page(self, path: str, template: str, title: str, section: str, **context) -> None:
+    def page(self, path: str, template: str, title: str, section: str, **context) -> tuple[str, bytes]:
         root = _root(path)
         html = self.env.get_template(template).render(
             page=path, root=root, title=title, section=section, parties=self.data.parties, **context)
-        self.out[path] = html.encode("utf-8")
+        return path, html.encode("utf-8")
 
-    def render(self) -> dict[str, bytes]:
+    def render(self) -> Iterator[tuple[str, bytes]]:
+        """Each file as soon as it is rendered, so that a build holds one page at a time."""
         d, v = self.data, self.views
-        self.page(P.HOME, "index.html", "Home", "home", **v.home(_root(P.HOME)))
-        self.page(P.WATCH, "watch.html", "Watch list", "watch", **v.watch(_root(P.WATCH)))
-        self.page(P.STATES, "states.html", "States", "states", **v.states(_root(P.STATES)))
-        self.page(P.CYCLES, "cycles.html", "Cycles", "cycles", **v.cycles(_root(P.CYCLES)))
+        yield self.page(P.HOME, "index.html", "Home", "home", **v.home(_root(P.HOME)))
+        yield self.page(P.WATCH, "watch.html", "Watch list", "watch", **v.watch(_root(P.WATCH)))
+        yield self.page(P.STATES, "states.html", "States", "states", **v.states(_root(P.STATES)))
+        yield self.page(P.CYCLES, "cycles.html", "Cycles", "cycles", **v.cycles(_root(P.CYCLES)))
         for state, chamber in d.pairs():
             path = v.state_path(state, chamber)
             ctx = v.state(state, chamber, _root(path))
-            self.page(path, "state.html", ctx["where"], "states", **ctx)
+            yield self.page(path, "state.html", ctx["where"], "states", **ctx)
         for cycle in d.cycles:
             path = P.cycle_page(cycle)
-            self.page(path, "cycle.html", f"Cycle {cycle}", "cycles", **v.cycle(cycle, _root(path)))
-        self.page(P.METHODS, "methods.html", "Methods", "methods", **v.methods())
+            yield self.page(path, "cycle.html", f"Cycle {cycle}", "cycles", **v.cycle(cycle, _root(path)))
+        yield self.page(P.METHODS, "methods.html", "Methods", "methods", **v.methods())
         files, listing = downloads(d, P.DOWNLOAD_DIR)
-        self.out.update(files)
-        self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=listing,
-                  datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
-        self.out[P.FEED] = atom_feed(d, v, P.FEED)
-        return self.out
+        yield from files.items()
+        del files
+        yield self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=listing,
+                        datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
+        yield P.FEED, atom_feed(d, v, P.FEED)
+
+
+def iter_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> Iterator[tuple[str, bytes]]:
+    """Every generated page and download (not the static assets) as ``(path, bytes)``, lazily."""
+    return Renderer(data, environment(extra_template_dirs)).render()
 
 
 def render_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> dict[str, bytes]:
     """Every generated page and download (not the static assets) as ``path -> bytes``."""
-    return Renderer(data, environment(extra_template_dirs)).render()
+    return dict(iter_site(data, extra_template_dirs))
 
 
 def static_assets() -> dict[str, bytes]:
