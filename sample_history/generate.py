@@ -719,7 +719,8 @@ colour = "{PARTY_B['colour']}"    # amber
 
 [uncontested]
 # About one seat in ten has one major party absent; under "impute" the measures give its
-# winner this two-party share (a fixed 0.75/0.25 split: common practice).
+# winner this two-party share (a fixed 0.75/0.25 split, the fixed-share convention of the
+# seats-votes literature, e.g. Gelman & King 1994, AJPS 38:514-554; from memory).
 policy = "impute"
 winner_share = 0.75
 """
