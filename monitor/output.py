@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import io
 import json
 import math
@@ -47,6 +48,18 @@ def write(text: str, out: Path | None) -> None:
 
         click.echo(text, nl=False)
         return
+    from monitor.errors import UsageError
+
+    if out.is_dir():
+        raise UsageError(f"{out}: is a folder; give a file name for --out")
+    if not out.parent.is_dir():
+        state = "is not a folder" if out.parent.exists() else "does not exist"
+        raise UsageError(f"{out}: the folder {out.parent} {state}; create it first or choose another --out")
     tmp = out.with_name(out.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    tmp.replace(out)
+    try:
+        tmp.write_text(text, encoding="utf-8")
+        tmp.replace(out)
+    except OSError as exc:
+        with contextlib.suppress(OSError):  # the error below is what the user needs to see
+            tmp.unlink(missing_ok=True)
+        raise UsageError(f"{out}: cannot write ({exc.strerror or exc})") from None

@@ -5,7 +5,7 @@ queries; what a party code or a contest status *means* is decided in ``monitor``
 """
 
 from store.db import StaleRead, connect, snapshot, transaction, write_from_snapshot
-from store.migrations import SCHEMA_VERSION, migrate, schema_version
+from store.migrations import SCHEMA_VERSION, SchemaTooNew, migrate, schema_version
 
-__all__ = ["SCHEMA_VERSION", "StaleRead", "connect", "migrate", "schema_version", "snapshot", "transaction",
+__all__ = ["SCHEMA_VERSION", "SchemaTooNew", "StaleRead", "connect", "migrate", "schema_version", "snapshot", "transaction",
            "write_from_snapshot"]

@@ -229,9 +229,30 @@ MIGRATIONS: list[tuple[int, str, str]] = [
         );
         """,
     ),
+    (
+        3,
+        "where stored party codes come from, the labels they follow, refused loads",
+        """
+        -- config: the codes follow the [parties] labels of levelfield.toml (re-derived when they
+        -- change); mapping: the mapping file's [parties] grouping (kept as loaded)
+        ALTER TABLE loads ADD COLUMN party_codes_from TEXT;
+        UPDATE loads SET party_codes_from = CASE WHEN mapping_sha256 IS NULL THEN 'config' ELSE 'mapping' END;
+        -- the first problem of a refused load (outcome 'refused')
+        ALTER TABLE loads ADD COLUMN error TEXT;
+        -- the labels (normalised) the stored config-derived party codes were derived from
+        CREATE TABLE party_labels (
+            label TEXT PRIMARY KEY,
+            code TEXT NOT NULL
+        );
+        """,
+    ),
 ]
 
 SCHEMA_VERSION = MIGRATIONS[-1][0]
+
+
+class SchemaTooNew(RuntimeError):
+    """The store was written by a newer levelfield (its schema version is above ours)."""
 
 
 def schema_version(db: sqlite_utils.Database) -> int:
@@ -250,7 +271,7 @@ def migrate(db: sqlite_utils.Database) -> list[int]:
     )
     current = schema_version(db)
     if current > SCHEMA_VERSION:
-        raise RuntimeError(
+        raise SchemaTooNew(
             f"the store is at schema version {current}, newer than this levelfield "
             f"({SCHEMA_VERSION}); upgrade levelfield"
         )

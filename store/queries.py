@@ -12,10 +12,11 @@ UnitKey = tuple[int, str, str]
 
 
 def load_by_sha256(db: sqlite_utils.Database, sha256: str, mapping_sha256: str | None = None) -> dict | None:
-    """The first load of these bytes read through this mapping (``None``: read natively)."""
+    """The first successful load of these bytes read through this mapping (``None``: read
+    natively); refused loads do not count."""
     row = db.execute(
         "SELECT id, file_name, loaded_at, outcome FROM loads WHERE sha256 = ? AND mapping_sha256 IS ? "
-        "ORDER BY id LIMIT 1", [sha256, mapping_sha256]
+        "AND outcome = 'loaded' ORDER BY id LIMIT 1", [sha256, mapping_sha256]
     ).fetchone()
     return None if row is None else dict(zip(("id", "file_name", "loaded_at", "outcome"), row))
 
@@ -118,4 +119,67 @@ def current_votes(db: sqlite_utils.Database, where: str = "", params: Sequence =
         f"WHERE u.superseded_by IS NULL {clause} "
         "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, v.id",
         db.conn, params=list(params),
+    )
+
+
+# party codes that follow the configuration -------------------------------------------------------
+
+def party_labels(db) -> dict[str, str]:
+    """The stored ``label -> code`` basis of the config-derived party codes (empty: none stored)."""
+    conn = getattr(db, "conn", db)
+    return dict(conn.execute("SELECT label, code FROM party_labels").fetchall())
+
+
+def replace_party_labels(conn: sqlite3.Connection, labels: dict[str, str]) -> None:
+    conn.execute("DELETE FROM party_labels")
+    conn.executemany("INSERT INTO party_labels (label, code) VALUES (?, ?)", sorted(labels.items()))
+
+
+def has_votes_coded_from(db, origin: str) -> bool:
+    """Whether any vote line was loaded by a load whose party codes came from ``origin``."""
+    conn = getattr(db, "conn", db)
+    return conn.execute(
+        "SELECT 1 FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
+        "JOIN loads l ON l.id = u.load_id WHERE l.party_codes_from = ? LIMIT 1", [origin]
+    ).fetchone() is not None
+
+
+def votes_coded_from(conn: sqlite3.Connection, origin: str) -> pd.DataFrame:
+    """Vote lines (current and superseded) of loads whose party codes came from ``origin``:
+    id, contest_id, unit_id, party, party_code."""
+    return pd.read_sql_query(
+        "SELECT v.id, v.contest_id, c.unit_id, v.party, v.party_code FROM votes v "
+        "JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
+        "JOIN loads l ON l.id = u.load_id WHERE l.party_codes_from = ? ORDER BY v.id",
+        conn, params=[origin],
+    )
+
+
+def set_party_codes(conn: sqlite3.Connection, rows: Sequence[tuple[str, int]]) -> None:
+    """rows: (party_code, vote id)."""
+    conn.executemany("UPDATE votes SET party_code = ? WHERE id = ?", rows)
+
+
+def set_contest_status(conn: sqlite3.Connection, rows: Sequence[tuple[str, int]]) -> None:
+    """rows: (status, contest id)."""
+    conn.executemany("UPDATE contests SET status = ? WHERE id = ?", rows)
+
+
+def set_unit_digest(conn: sqlite3.Connection, rows: Sequence[tuple[str, int]]) -> None:
+    """rows: (content_sha256, unit id)."""
+    conn.executemany("UPDATE units SET content_sha256 = ? WHERE id = ?", rows)
+
+
+def unit_lines(conn: sqlite3.Connection, unit_ids: Sequence[int]) -> pd.DataFrame:
+    """Every stored field of the units' vote lines: unit_id, district, special, seats, party,
+    party_code, candidate, votes, writein, certification."""
+    if not unit_ids:
+        return pd.DataFrame(columns=["unit_id", "district", "special", "seats", "party", "party_code",
+                                     "candidate", "votes", "writein", "certification"])
+    marks = ",".join("?" for _ in unit_ids)
+    return pd.read_sql_query(
+        "SELECT c.unit_id, c.district, c.special, c.seats, v.party, v.party_code, v.candidate, v.votes, "
+        "v.writein, u.certification FROM votes v JOIN contests c ON c.id = v.contest_id "
+        f"JOIN units u ON u.id = c.unit_id WHERE c.unit_id IN ({marks}) ORDER BY c.unit_id, v.id",
+        conn, params=list(unit_ids),
     )

@@ -147,3 +147,102 @@ def test_python_dash_m_monitor_in_a_real_process(lf):
     usage = run_subprocess(lf.root, "no-such-command")
     assert usage.returncode == 2 and "No such command" in usage.stderr and "Traceback" not in usage.stderr
 
+
+
+# --workspace after the command name ---------------------------------------------------------------
+
+def test_the_workspace_option_works_before_and_after_the_command_name(tmp_path, monkeypatch):
+    monkeypatch.delenv(ENV_VAR, raising=False)
+    monkeypatch.chdir(tmp_path)  # a stray ./workspace would show here
+    before, after = tmp_path / "before", tmp_path / "after"
+    data = tmp_path / "d.csv"
+    data.write_text(long_csv(BASE_ROWS), encoding="utf-8")
+    runner = CliRunner()
+    assert runner.invoke(main, ["-w", str(before), "load", str(data)]).exit_code == 0
+    result = runner.invoke(main, ["load", str(data), "-w", str(after)])
+    assert result.exit_code == 0, result.output
+    assert "d.csv: loaded (load #1)" in result.stdout
+    for root in (before, after):
+        status = runner.invoke(main, ["status", "--workspace", str(root)])
+        assert status.exit_code == 0, status.output
+        assert f"workspace {root}" in status.stdout and "#1 " in status.stdout
+        assert f"workspace {root}" in runner.invoke(main, ["-w", str(root), "status"]).stdout
+    for args in (["export", "results", "-w", str(after)], ["export", "-w", str(after), "results"]):
+        exported = runner.invoke(main, args)
+        assert exported.exit_code == 0, exported.output
+        assert len(list(csv.DictReader(io.StringIO(exported.stdout)))) == len(BASE_ROWS)
+    assert not (tmp_path / "workspace").exists()
+
+
+def test_the_workspace_after_the_command_wins_over_the_environment_and_the_group_option(tmp_path, monkeypatch):
+    env, group, here = tmp_path / "env", tmp_path / "group", tmp_path / "here"
+    monkeypatch.setenv(ENV_VAR, str(env))
+    runner = CliRunner()
+    assert f"workspace {env}" in runner.invoke(main, ["status"]).stdout
+    assert f"workspace {here}" in runner.invoke(main, ["status", "-w", str(here)]).stdout
+    assert f"workspace {here}" in runner.invoke(main, ["-w", str(group), "status", "-w", str(here)]).stdout
+    assert f"workspace {group}" in runner.invoke(main, ["-w", str(group), "status"]).stdout
+
+
+@pytest.mark.parametrize("command", [["init"], ["load"], ["status"], ["compute"], ["flags"], ["plans"], ["watch"],
+                                     ["export"], ["export", "results"], ["export", "measures"], ["publish"],
+                                     ["serve"]])
+def test_every_command_shows_the_workspace_option_in_its_help(command):
+    result = CliRunner().invoke(main, [*command, "--help"])
+    assert result.exit_code == 0, result.output
+    assert "-w, --workspace DIRECTORY" in result.stdout
+
+
+# user mistakes are usage errors (exit 2) naming the path ------------------------------------------
+
+def test_export_into_a_missing_folder_is_a_usage_error(loaded, tmp_path):
+    target = tmp_path / "nonexistent" / "dir" / "x.csv"
+    result = loaded("export", "results", "--out", target, code=2)
+    assert f"error: {target}: the folder {target.parent} does not exist" in result.stderr
+    assert not target.parent.exists()
+
+
+def test_a_store_newer_than_the_code_is_a_usage_error(loaded):
+    import sqlite3
+
+    import store
+
+    conn = sqlite3.connect(loaded.store_path)
+    conn.execute("INSERT INTO schema_version VALUES (?, 'from the future', 'now')", [store.SCHEMA_VERSION + 1])
+    conn.commit()
+    conn.close()
+    for args in (["status"], ["export", "results"], ["load", loaded.files / "base.csv"]):
+        result = loaded(*args, code=2)
+        assert f"error: {loaded.store_path}: the store is at schema version {store.SCHEMA_VERSION + 1}, newer " \
+               "than this levelfield" in result.stderr
+
+
+def test_a_folder_in_place_of_the_config_is_a_usage_error(lf):
+    config = lf.root / "levelfield.toml"
+    config.unlink()
+    config.mkdir()
+    for args in (["status"], ["load", lf.write("d.csv", long_csv(BASE_ROWS))], ["compute"]):
+        result = lf(*args, code=2)
+        assert f"error: {config}: is a folder; levelfield.toml must be a file" in result.stderr
+
+
+def test_a_file_in_place_of_the_store_that_is_no_database_is_a_usage_error(lf):
+    lf.store_path.write_bytes(b"not a database at all, just text " * 100)
+    result = lf("status", code=2)
+    assert f"error: {lf.store_path}: cannot open the store" in result.stderr
+
+
+# a same-party general, end to end ----------------------------------------------------------------
+
+def test_a_same_party_general_loads_and_exports_as_same_party(lf):
+    rows = [[2024, "QV", "state_lower", "9", "Harbour", "Rhea Lund", "4,210"],
+            [2024, "QV", "state_lower", "9", "Harbour-Lantern", "Sven Oak", "3,980"],
+            [2024, "QV", "state_lower", "10", "Harbour", "Tam Ivo", 500],
+            [2024, "QV", "state_lower", "10", "Upland", "Uma Pell", 450]]
+    lf("load", lf.write("same.csv", long_csv(rows)))
+    exported = [r for r in lf.export_rows() if r["district"] == "9"]
+    assert len(exported) == 2
+    assert {(r["contest_status"], r["votes_a"], r["votes_b"], r["winner"]) for r in exported} == {
+        ("same_party", "8190", "0", "a")}
+    assert lf.rows("SELECT district, status FROM contests ORDER BY district") == [
+        ("10", "contested"), ("9", "same_party")]

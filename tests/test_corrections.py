@@ -3,7 +3,7 @@ stored one (which stays in history), and --dry-run writes nothing."""
 
 from __future__ import annotations
 
-from conftest import BASE_ROWS, long_csv
+from conftest import BASE_ROWS, csv_text, long_csv
 
 RESULT_VIEW_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id"]
 
@@ -120,4 +120,104 @@ def test_dry_run_of_a_bad_file_is_a_data_error(loaded):
     result = loaded("load", "--dry-run", loaded.write("bad.csv", long_csv([[2022, "QV", "federal", "1",
                                                                             "Harbour", "X", "-3"]])), code=1)
     assert "bad.csv:2:votes: votes '-3' is negative" in result.stderr
+    assert loaded.dump() == before
+
+
+# party codes follow the [parties] labels of levelfield.toml --------------------------------------
+
+LANTERN_ROWS = [
+    [2022, "RX", "federal", "1", "Harbour", "Wil Tay", 10],
+    [2022, "RX", "federal", "1", "Upland", "Yul Moss", 9],
+    [2022, "RX", "federal", "2", "Lantern", "Zed Orr", 8],   # 'other' under the first labels
+    [2022, "RX", "federal", "2", "Upland", "Asa Fell", 7],
+]
+
+
+def relabel(lf, a_labels: list[str]) -> None:
+    """levelfield.toml with other labels for party a (party b keeps 'Upland')."""
+    labels = ", ".join(f'"{label}"' for label in a_labels)
+    (lf.root / "levelfield.toml").write_text(
+        f'[parties.a]\nname = "Harbour Party"\nlabels = [{labels}]\ncolour = "#1b7f79"\n'
+        '[parties.b]\nname = "Upland League"\nlabels = ["Upland"]\ncolour = "#c9861a"\n', encoding="utf-8")
+
+
+def test_edited_party_labels_recode_the_stored_lines_before_anything_reads_them(lf):
+    path = lf.write("rx.csv", long_csv(LANTERN_ROWS))
+    lf("load", path)
+    assert lf.rows("SELECT district, status FROM contests ORDER BY district") == [("1", "contested"), ("2", "uncontested")]
+    digest = lf.rows("SELECT content_sha256 FROM units")
+
+    relabel(lf, ["Harbour", "Lantern"])
+    result = lf("export", "results")
+    assert "party labels changed in levelfield.toml: 1 vote line re-coded" in result.stderr
+    assert "party labels changed" not in result.stdout  # the exported CSV stays clean
+    d2 = [r for r in lf.export_rows() if r["district"] == "2"]
+    assert {(r["contest_status"], r["votes_a"], r["votes_b"], r["winner"]) for r in d2} == {("contested", "8", "7", "a")}
+    # the stored codes, the stored contest status and the unit's content hash all followed
+    assert lf.rows("SELECT party, party_code FROM votes WHERE party = 'Lantern'") == [("Lantern", "a")]
+    assert lf.rows("SELECT district, status FROM contests ORDER BY district") == [("1", "contested"), ("2", "contested")]
+    assert lf.rows("SELECT content_sha256 FROM units") != digest
+    assert lf.rows("SELECT label, code FROM party_labels ORDER BY label") == [
+        ("harbour", "a"), ("lantern", "a"), ("upland", "b")]
+    # once done, it is not done again; the same bytes are still "already loaded", and the same
+    # content in other bytes is an unchanged unit (its hash follows the new codes)
+    again = lf("status")
+    assert "party labels changed" not in again.output
+    assert "already loaded" in lf("load", path).stdout
+    reordered = lf("load", lf.write("rx2.csv", long_csv(list(reversed(LANTERN_ROWS)))))
+    assert "units: 0 new, 0 corrected, 1 unchanged" in reordered.stdout
+
+    # and back: the labels of the first load give the first codes again
+    relabel(lf, ["Harbour", "Harbour-Lantern"])
+    back = lf("status")
+    assert "party labels changed in levelfield.toml: 1 vote line re-coded" in back.stderr
+    assert lf.rows("SELECT district, status FROM contests WHERE unit_id = 1 ORDER BY district") == [
+        ("1", "contested"), ("2", "uncontested")]
+    assert lf.rows("SELECT content_sha256 FROM units WHERE id = 1") == digest
+
+
+def test_the_measures_read_the_recoded_lines(lf):
+    """compute, flags and publish read contests through ``reduced_contests`` on a store opened by
+    the workspace: the re-coding happens before that read."""
+    from monitor.inputs import reduced_contests
+    from monitor.workspace import Workspace
+
+    lf("load", lf.write("rx.csv", long_csv(LANTERN_ROWS)))
+    relabel(lf, ["Harbour", "Lantern"])
+    notices: list[str] = []
+    db = Workspace(lf.root, notices.append).open_store()
+    contests = reduced_contests(db).sort_values("district")
+    assert contests[["district", "status", "votes_a", "votes_b"]].values.tolist() == [
+        ["1", "contested", 10, 9], ["2", "contested", 8, 7]]
+    assert notices == ["party labels changed in levelfield.toml: 1 vote line re-coded"]
+    db.close()
+
+
+def test_mapped_lines_keep_the_mapping_grouping(lf):
+    """A mapping's own [parties] grouping is kept; a mapping without [parties] used the
+    workspace labels, and follows them like a native file."""
+    header = ["yr", "st", "seat", "label", "name", "n"]
+    rows = [[2022, "QQ", "1", "Lantern", "Ann Aro", 5], [2022, "QQ", "1", "Upland", "Bob Bex", 4]]
+    own = ('chamber = "federal"\n[columns]\ncycle = "yr"\nstate = "st"\ndistrict = "seat"\nparty = "label"\n'
+           'candidate = "name"\nvotes = "n"\n')
+    lf("load", lf.write("own.csv", csv_text(header, rows)), "--mapping",
+       lf.write("own.toml", own + '[parties]\na = ["Upland"]\nb = ["Lantern"]\n'))
+    lf("load", lf.write("ws.csv", csv_text(header, [[2024] + r[1:] for r in rows])), "--mapping",
+       lf.write("ws.toml", own))
+    assert lf.rows("SELECT party_codes_from FROM loads ORDER BY id") == [("mapping",), ("config",)]
+    relabel(lf, ["Harbour", "Lantern"])
+    assert "1 vote line re-coded" in lf("status").stderr
+    assert lf.rows("SELECT u.cycle, v.party, v.party_code FROM votes v JOIN contests c ON c.id = v.contest_id "
+                   "JOIN units u ON u.id = c.unit_id ORDER BY u.cycle, v.party") == [
+        (2022, "Lantern", "b"), (2022, "Upland", "a"),      # the mapping's grouping, as loaded
+        (2024, "Lantern", "a"), (2024, "Upland", "b")]      # the workspace labels, now with Lantern
+
+
+def test_a_dry_run_after_a_label_change_writes_nothing_and_says_what_would_change(loaded):
+    loaded("load", loaded.write("rx.csv", long_csv(LANTERN_ROWS)))
+    relabel(loaded, ["Harbour", "Lantern"])
+    before = loaded.dump()
+    rows = [[2024] + r[1:] for r in BASE_ROWS]
+    result = loaded("load", "--dry-run", loaded.write("next.csv", long_csv(rows)))
+    assert "warning: party labels changed in levelfield.toml: 1 vote line would be re-coded" in result.stdout
     assert loaded.dump() == before

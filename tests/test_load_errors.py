@@ -11,6 +11,17 @@ import pytest
 from conftest import LONG_HEADER, long_csv, run_subprocess
 
 H = ",".join(LONG_HEADER)
+
+
+def only_the_refusal_was_recorded(lf, before: list[str], file_name: str) -> None:
+    """A refused load writes none of its rows: the store holds what it held before plus one
+    provenance row in ``loads`` (outcome refused, nothing accepted)."""
+    after = lf.dump()
+    assert [line for line in before if line not in after] == []
+    added = [line for line in after if line not in before]
+    assert len(added) == 1 and added[0].startswith('INSERT INTO "loads"'), added
+    assert lf.rows("SELECT file_name, outcome, rows_accepted FROM loads ORDER BY id DESC LIMIT 1") == [
+        (file_name, "refused", 0)]
 OK = "2024,QV,federal,1,Harbour,Maren Olvas,10\n2024,QV,federal,1,Upland,Tobin Resk,9\n"
 
 # (case, file text, the message expected on stderr)
@@ -56,7 +67,9 @@ DATA_ERRORS = [
     ("wrong delimiter", H.replace(",", ";") + "\n2024;QV;federal;1;Harbour;Maren Olvas;10\n",
      "bad.csv:1: the header is one column: is the file separated by something other than commas?"),
     ("unquoted thousands separator", H + "\n2024,QV,federal,1,Harbour,Maren Olvas,12,345\n",
-     "bad.csv:2: has 8 cells but the header has 7 columns"),
+     "bad.csv:2:#8: has 8 cells but the header has 7 columns: cell #8 onwards fall under no column"),
+    ("a cell missing", H + "\n2024,QV,federal,1,Harbour,Maren Olvas\n",
+     "bad.csv:2:#7: has 6 cells but the header has 7 columns: column #7 (votes) onwards missing"),
     ("header only", H + "\n", "bad.csv: no result rows to load"),
     ("empty file", "", "bad.csv:1: the file is empty: no header row"),
     ("wide file with a votes_ column naming no party", "cycle,state,chamber,district,votes_,votes_Upland\n"
@@ -73,7 +86,7 @@ def test_each_validation_error_names_its_place_and_leaves_the_store_as_it_was(lo
     assert message in result.stderr
     assert "nothing was loaded" in result.stderr
     assert result.stdout == ""
-    assert loaded.dump() == before
+    only_the_refusal_was_recorded(loaded, before, "bad.csv")
 
 
 def test_every_problem_of_a_file_is_reported_at_once(loaded):
@@ -90,9 +103,10 @@ def test_a_non_utf8_file_needs_an_explicit_encoding(loaded):
     path = loaded.write("latin.csv", text, encoding="cp1252")
     before = loaded.dump()
     result = loaded("load", path, code=1)
-    assert "latin.csv:2: byte 0xe9 is not valid utf-8; if the file is in another encoding, pass --encoding" \
-        in result.stderr
-    assert loaded.dump() == before
+    # the bad byte's place: row 2, field #6 (the candidate column)
+    assert ("latin.csv:2:#6: byte 0xe9 (in column 'candidate') is not valid utf-8; if the file is in another "
+            "encoding, pass --encoding") in result.stderr
+    only_the_refusal_was_recorded(loaded, before, "latin.csv")
     loaded("load", path, "--encoding", "cp1252")
     assert loaded.rows("SELECT candidate FROM district_results WHERE cycle = 2024 AND party = 'Harbour'") == [
         ("Jérôme Vask",)]
@@ -112,7 +126,7 @@ def test_gzip_over_the_decompressed_cap_is_refused(loaded):
     before = loaded.dump()
     result = loaded("load", loaded.write_gz("big.csv.gz", text), code=1)
     assert "big.csv.gz: gzip content is larger than the 1 MB cap (load.max_decompressed_mb); refused" in result.stderr
-    assert loaded.dump() == before
+    only_the_refusal_was_recorded(loaded, before, "big.csv.gz")
     # the same content under the cap loads
     loaded("load", loaded.write_gz("small.csv.gz", long_csv(rows[:1000])))
     assert loaded.rows("SELECT COUNT(*) FROM district_results WHERE chamber = 'state_lower'") == [(1000,)]
@@ -123,14 +137,16 @@ def test_a_truncated_gzip_is_a_data_error(loaded):
     before = loaded.dump()
     result = loaded("load", loaded.write("cut.csv.gz", data[: len(data) // 2]), code=1)
     assert "cut.csv.gz: gzip file is truncated" in result.stderr
-    assert loaded.dump() == before
+    only_the_refusal_was_recorded(loaded, before, "cut.csv.gz")
 
 
 def test_a_bad_file_does_not_stop_the_next_one(loaded):
     bad = loaded.write("bad.csv", H + "\n2024,QV,federal,1,Harbour,Maren Olvas,-1\n")
     good = loaded.write("good.csv", H + "\n" + OK)
     result = loaded("load", bad, good, code=1)
-    assert "good.csv: loaded (load #2)" in result.stdout
+    assert "good.csv: loaded (load #3)" in result.stdout  # load #2 is the refusal of bad.csv
+    assert loaded.rows("SELECT id, file_name, outcome FROM loads WHERE id > 1 ORDER BY id") == [
+        (2, "bad.csv", "refused"), (3, "good.csv", "loaded")]
     assert loaded.rows("SELECT COUNT(*) FROM district_results WHERE cycle = 2024") == [(2,)]
 
 
@@ -140,7 +156,7 @@ def test_skip_bad_rows_loads_the_rest_and_reports_each_skipped_row(loaded):
     text = (H + ",status\n"
             "2024,QV,federal,1,Harbour,Maren Olvas,10,\n"
             "2024,QV,federal,1,Upland,Tobin Resk,9,\n"
-            "2024,QV,federal,2,Harbour,Ilse Varro,-5,\n"        # bad votes: this row only
+            "2024,QV,federal,2,Harbour,Ilse Varro,-5,\n"        # bad votes: the whole contest goes
             "2024,QV,federal,2,Upland,Piet Amsel,7,\n"
             # a unit mixing statuses: every row of the unit goes, and each is listed
             "2024,RX,federal,1,Harbour,Wil Tay,3,certified\n"
@@ -148,16 +164,49 @@ def test_skip_bad_rows_loads_the_rest_and_reports_each_skipped_row(loaded):
             "2024,RX,federal,3,Upland,Zed Orr,5,unofficial\n")
     result = loaded("load", loaded.write("mixed.csv", text), "--skip-bad-rows")
     out = result.stdout
-    assert "rows read 7, accepted 3, rejected 4" in out
-    assert "skipped 4 row(s):" in out
+    assert "rows read 7, accepted 2, rejected 5" in out
+    assert "skipped 5 row(s):" in out
     assert "mixed.csv:4:votes: votes '-5' is negative" in out
+    assert ("mixed.csv:5:district: skipped with the rest of its contest (district '2', QV federal 2024): "
+            "row 4 has a problem") in out
     assert "mixed.csv:8:status: RX federal 2024 mixes certified and unofficial rows" in out
     for row in (6, 7):
-        assert f"mixed.csv:{row}: skipped with the rest of its district or unit" in out
+        assert (f"mixed.csv:{row}:state: skipped with the rest of its unit (RX federal 2024): "
+                "row 8 has a problem") in out
     assert loaded.rows("SELECT state, district, candidate FROM district_results WHERE cycle = 2024 "
-                       "ORDER BY district, candidate") == [
-        ("QV", "1", "Maren Olvas"), ("QV", "1", "Tobin Resk"), ("QV", "2", "Piet Amsel")]
-    assert loaded.rows("SELECT rows_read, rows_accepted, rows_rejected FROM loads WHERE id = 2") == [(7, 3, 4)]
+                       "ORDER BY district, candidate") == [("QV", "1", "Maren Olvas"), ("QV", "1", "Tobin Resk")]
+    assert loaded.rows("SELECT rows_read, rows_accepted, rows_rejected FROM loads WHERE id = 2") == [(7, 2, 5)]
+
+
+def test_skip_bad_rows_never_stores_half_a_long_contest(lf):
+    """A bad party-b row must not leave its district as an uncontested party-a win (which the
+    measures would then impute)."""
+    text = (H + "\n"
+            "2024,QV,federal,1,Harbour,Maren Olvas,10\n"
+            "2024,QV,federal,1,Upland,Tobin Resk,-9\n"          # party b's row is bad
+            "2024,QV,federal,1,Lantern,Asa Fell,2\n"
+            "2024,QV,federal,2,Harbour,Ilse Varro,5\n"
+            "2024,QV,federal,2,Upland,Piet Amsel,7\n"
+            "2024,QV,federal,3,Harbour,Ode Brask,6\n"
+            "2024,QV,federal,3,Upland,Nils Hame,6,extra\n"      # a cell too many: its contest goes
+            "2024,QV,federal,3,Lantern,Ola Pim,1\n"
+            "2024,QV,federal,4,Harbour,Rhea Lund,8\n"
+            "20x4,QV,federal,4,Upland,Sven Oak,3\n"             # cycle unreadable: district 4 goes too
+            "2024,QV,federal,5,Harbour,Tam Ivo,4\n"
+            "2024,QV,federal,5,Upland,Uma Pell,3\n")
+    result = lf("load", lf.write("half.csv", text), "--skip-bad-rows")
+    out = result.stdout
+    assert "rows read 12, accepted 4, rejected 8" in out
+    assert "half.csv:3:votes: votes '-9' is negative" in out
+    for row in (2, 4):
+        assert f"half.csv:{row}:district: skipped with the rest of its contest (district '1', " in out
+    assert "half.csv:8:#8: has 8 cells but the header has 7 columns" in out
+    for row in (7, 9):
+        assert f"half.csv:{row}:district: skipped with the rest of its contest (district '3', " in out
+    assert "half.csv:11:cycle: cycle '20x4' is not a year" in out
+    assert "half.csv:10:district: skipped with the rest of its contest (district '4', " in out
+    assert lf.rows("SELECT DISTINCT district FROM district_results ORDER BY district") == [("2",), ("5",)]
+    assert {r["contest_status"] for r in lf.export_rows()} == {"contested"}
 
 
 def test_skip_bad_rows_never_loads_half_a_wide_row(lf):
@@ -176,7 +225,7 @@ def test_skip_bad_rows_with_nothing_left_is_still_an_error(loaded):
                     "--skip-bad-rows", code=1)
     assert "bad.csv:2:votes: votes '-1' is negative" in result.stderr
     assert "no rows left to load" in result.stderr
-    assert loaded.dump() == before
+    only_the_refusal_was_recorded(loaded, before, "bad.csv")
 
 
 def test_skip_bad_rows_does_not_skip_a_bad_header(loaded):
@@ -278,3 +327,64 @@ def test_exit_codes_and_messages_in_a_real_process(loaded):
     assert "missing.csv: no such file" in usage.stderr
     for proc in (done, data, usage):
         assert "Traceback" not in proc.stdout + proc.stderr
+
+
+# a refused load is kept as provenance --------------------------------------------------------------
+
+def test_a_refused_load_is_recorded_shown_by_status_and_refused_again_until_fixed(loaded):
+    bad_text = H + "\n" + OK + "2024,QV,federal,2,Harbour,Ilse Varro,-12\n"
+    path = loaded.write("late.csv", bad_text)
+    before = loaded.dump()
+    loaded("load", path, code=1)
+    only_the_refusal_was_recorded(loaded, before, "late.csv")
+    assert loaded.rows("SELECT id, outcome, rows_read, rows_accepted, rows_rejected, error FROM loads "
+                       "WHERE id = 2") == [(2, "refused", 3, 0, 1, "late.csv:4:votes: votes '-12' is negative")]
+    status = loaded("status").stdout
+    line = next(s for s in status.splitlines() if s.strip().startswith("#2 "))
+    assert "refused: late.csv" in line and "3 rows read, 1 rejected; nothing loaded" in line
+    assert "late.csv:4:votes: votes '-12' is negative" in line
+
+    # the same bytes again: refused again (a refusal is not "already loaded")
+    again = loaded("load", path, code=1)
+    assert "already loaded" not in again.output
+    assert "late.csv:4:votes: votes '-12' is negative" in again.stderr
+    assert loaded.rows("SELECT id, outcome FROM loads WHERE id > 1 ORDER BY id") == [(2, "refused"), (3, "refused")]
+    # fixed: it loads
+    path.write_text(bad_text.replace("-12", "12"), encoding="utf-8")
+    assert "late.csv: loaded (load #4)" in loaded("load", path).stdout
+    assert loaded.rows("SELECT COUNT(*) FROM district_results WHERE cycle = 2024") == [(3,)]
+
+
+def test_a_refused_dry_run_records_nothing(loaded):
+    before = loaded.dump()
+    loaded("load", "--dry-run", loaded.write("bad.csv", H + "\n2024,QV,federal,1,Harbour,Maren Olvas,-1\n"), code=1)
+    assert loaded.dump() == before
+
+
+# the report --------------------------------------------------------------------------------------
+
+def test_other_label_counts_leave_out_skipped_rows(lf):
+    text = (H + "\n"
+            "2024,QV,federal,1,Harbour,Maren Olvas,10\n"
+            "2024,QV,federal,1,Lantern,Asa Fell,3\n"
+            "2024,QV,federal,2,Harbour,Ilse Varro,x\n"           # bad: district 2 is skipped whole ...
+            "2024,QV,federal,2,Lantern,Bo Fell,4\n"              # ... with its Lantern and Quay lines
+            "2024,QV,federal,2,Quay Group,Cai Moor,5\n"
+            "2024,QV,federal,3,Upland,Ode Brask,6\n"
+            "2024,QV,federal,3,Lantern,Tam Ivo,bad\n")          # a bad Lantern line: not counted either
+    out = lf("load", lf.write("other.csv", text), "--skip-bad-rows").stdout
+    assert "  party labels counted as 'other': 'Lantern' (1)" in out.splitlines()
+
+
+def test_a_file_where_no_line_is_party_a_or_b_warns_and_still_loads(lf):
+    rows = [[2024, "QV", "federal", "1", "Harbour Party", "Maren Olvas", 10],
+            [2024, "QV", "federal", "1", "Upland League", "Tobin Resk", 9],
+            [2024, "QV", "federal", "2", "Harbour Party", "Ilse Varro", 8]]
+    result = lf("load", lf.write("names.csv", long_csv(rows)))
+    assert ("warning: no line matched party a or party b; labels seen: 'Harbour Party' (2), 'Upland League' (1)"
+            in result.stdout)
+    assert "check the labels under [parties.a] and [parties.b] in levelfield.toml" in result.stdout
+    assert lf.rows("SELECT DISTINCT party_code FROM votes") == [("other",)]
+    # a file with a party a or b line does not warn
+    ok = lf("load", lf.write("ok.csv", H + "\n" + OK))
+    assert "warning" not in ok.stdout

@@ -139,8 +139,11 @@ def test_the_same_bytes_through_another_mapping_are_a_new_load(lf):
 def test_a_column_named_in_the_mapping_but_absent_from_the_file(lf):
     data, mapping = write_example(lf, MAPPING.replace('votes = "cand_votes"', 'votes = "total_votes"'))
     result = lf("load", data, "--mapping", mapping, code=1)
-    assert "office.csv:1:total_votes: missing column (the mapping's [columns] votes = 'total_votes')" in result.stderr
-    assert lf.rows("SELECT COUNT(*) FROM loads") == [(0,)]
+    message = "office.csv:1:total_votes: missing column (the mapping's [columns] votes = 'total_votes')"
+    assert message in result.stderr
+    # nothing loaded; the refusal is kept as provenance, with its first problem
+    assert lf.rows("SELECT COUNT(*) FROM votes") == [(0,)]
+    assert lf.rows("SELECT outcome, rows_read, rows_accepted, error FROM loads") == [("refused", 0, 0, message)]
 
 
 def test_errors_in_mapped_files_name_their_own_column(lf):
@@ -156,3 +159,57 @@ def test_filtered_rows_are_not_validated(lf):
     data, mapping = write_example(lf, rows=rows)
     result = lf("load", data, "--mapping", mapping)
     assert "filtered out 4" in result.stdout
+
+
+def test_duplicated_or_blank_columns_the_mapping_does_not_use_are_ignored(lf):
+    header = FOREIGN_HEADER + ["office_note", "", "  "]
+    rows = [r + ["y", "", ""] for r in FOREIGN_ROWS]
+    data = lf.write("office.csv", csv_text(header, rows))
+    result = lf("load", data, "--mapping", lf.write("map.toml", MAPPING))
+    assert "office.csv: loaded (load #1)" in result.stdout
+    assert len(lf.results()) == 6
+
+
+def test_a_duplicated_column_the_mapping_uses_is_refused_with_its_place(lf):
+    header = FOREIGN_HEADER + ["cand_votes"]
+    rows = [r + ["1"] for r in FOREIGN_ROWS]
+    data = lf.write("office.csv", csv_text(header, rows))
+    result = lf("load", data, "--mapping", lf.write("map.toml", MAPPING), code=1)
+    assert "office.csv:1:cand_votes: duplicated column, used by the mapping (columns #8, #10)" in result.stderr
+    assert lf.rows("SELECT COUNT(*) FROM votes") == [(0,)]
+
+
+def test_keep_and_exclude_match_whatever_the_case_and_surrounding_spaces(lf):
+    mapping = MAPPING.replace('round = ["GENERAL"]', 'round = [" general "]').replace('states = ["ZZ"]', 'states = ["zz "]')
+    rows = [r[:] for r in FOREIGN_ROWS]
+    rows[0][3] = "General"      # kept: the same text in another case
+    rows[2][3] = " GENERAL  "   # kept: surrounding spaces
+    rows[10][1] = " zz"         # excluded
+    data, mapping = write_example(lf, mapping, rows)
+    result = lf("load", data, "--mapping", mapping)
+    assert "rows read 11, accepted 8, rejected 0, filtered out 3" in result.stdout
+    assert lf.rows("SELECT code FROM states ORDER BY code") == [("QQ",), ("RR",)]
+
+
+def test_state_codes_and_chamber_names_are_normalised(lf):
+    mapping = MAPPING.replace('chamber = "federal"', 'chamber = "Federal"')
+    rows = [r[:] for r in FOREIGN_ROWS]
+    for r in rows:
+        if r[1] == "RR":
+            r[1] = "rr"
+    data, mapping = write_example(lf, mapping, rows)
+    lf("load", data, "--mapping", mapping)
+    assert lf.rows("SELECT code FROM states ORDER BY code") == [("QQ",), ("RR",)]
+    assert lf.rows("SELECT DISTINCT chamber FROM district_results") == [("federal",)]
+
+
+def test_skip_bad_rows_in_a_mapped_file_skips_the_whole_contest(lf):
+    rows = [r[:] for r in FOREIGN_ROWS]
+    rows[2][7] = "-110"  # Bob Bex, party b of QQ district 1
+    data, mapping = write_example(lf, rows=rows)
+    result = lf("load", data, "--mapping", mapping, "--skip-bad-rows")
+    assert "office.csv:4:cand_votes: votes '-110' is negative" in result.stdout
+    for row in (2, 3):
+        assert f"office.csv:{row}:dist_no: skipped with the rest of its contest (district '1', QQ federal 2022)" \
+            in result.stdout
+    assert lf.rows("SELECT DISTINCT state, district FROM district_results ORDER BY 1, 2") == [("QQ", "2"), ("RR", "AL")]

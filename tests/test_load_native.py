@@ -155,3 +155,31 @@ def test_a_candidate_on_two_party_lines_is_fusion_not_an_error(lf):
     # ... and the reduction counts the candidate once, for her major party: 72,133 beats 70,344
     assert lf.rows("SELECT status FROM contests") == [("contested",)]
     assert {(r["votes_a"], r["votes_b"], r["winner"]) for r in lf.export_rows()} == {("72133", "70344", "a")}
+
+
+def test_space_and_no_break_space_thousands_separators(lf):
+    rows = [[2022, "QV", "federal", "1", "Harbour", "Maren Olvas", "1 234"],
+            [2022, "QV", "federal", "1", "Upland", "Tobin Resk", "12\u00a0345\u00a0678"],
+            [2022, "QV", "federal", "1", "Lantern", "Asa Fell", "9\u202f999"]]
+    lf("load", lf.write("sep.csv", long_csv(rows)))
+    assert lf.rows("SELECT candidate, votes FROM votes ORDER BY candidate") == [
+        ("Asa Fell", 9999), ("Maren Olvas", 1234), ("Tobin Resk", 12345678)]
+
+
+def test_a_separator_that_does_not_group_thousands_is_refused(lf):
+    rows = [[2022, "QV", "federal", "1", "Harbour", "Maren Olvas", "12 34"]]
+    result = lf("load", lf.write("sep.csv", long_csv(rows)), code=1)
+    assert "sep.csv:2:votes: votes '12 34' is not a number" in result.stderr
+
+
+def test_state_codes_are_upper_case_and_chamber_names_lower_case(lf):
+    lf("load", lf.write("a.csv", long_csv(BASE_ROWS)))
+    rows = [[2022, "qv", "Federal", "4", "Harbour", "Ola Pim", 50],
+            [2024, " Qv ", "FEDERAL", "1", "Upland", "Tobin Resk", 5]]
+    result = lf("load", lf.write("b.csv", long_csv(rows)))
+    # "qv"/"Federal" is the stored QV federal unit, re-delivered (a correction), not a second unit
+    assert "correction 2022 QV federal:" in result.stdout
+    assert lf.rows("SELECT code FROM states") == [("QV",)]
+    assert lf.rows("SELECT code FROM chambers") == [("federal",)]
+    assert lf.rows("SELECT DISTINCT cycle, state, chamber FROM district_results ORDER BY cycle") == [
+        (2022, "QV", "federal"), (2024, "QV", "federal")]

@@ -40,7 +40,7 @@ def test_an_empty_database_is_at_version_zero(tmp_path):
 
 def test_a_store_newer_than_the_code_is_refused(db):
     db.execute("INSERT INTO schema_version VALUES (?, 'from the future', 'now')", [store.SCHEMA_VERSION + 1])
-    with pytest.raises(RuntimeError, match="newer than this levelfield"):
+    with pytest.raises(store.SchemaTooNew, match="newer than this levelfield"):
         store.migrate(db)
 
 
@@ -122,6 +122,38 @@ def test_load_by_sha256_tells_native_and_mapped_loads_apart(db):
     assert queries.load_by_sha256(db, "a" * 64) is None
     assert queries.load_by_sha256(db, "a" * 64, "m" * 64)["id"] == 1
     assert queries.load_by_sha256(db, "a" * 64, "n" * 64) is None
+
+
+def test_load_by_sha256_ignores_refused_loads(db):
+    with store.transaction(db) as conn:
+        refused = _load(conn, sha="b" * 64)
+        conn.execute("UPDATE loads SET outcome = 'refused' WHERE id = ?", [refused])
+    assert queries.load_by_sha256(db, "b" * 64) is None
+    with store.transaction(db) as conn:
+        loaded = _load(conn, sha="b" * 64)
+    assert queries.load_by_sha256(db, "b" * 64)["id"] == loaded
+
+
+def test_migration_3_records_where_the_party_codes_of_earlier_loads_came_from(tmp_path, monkeypatch):
+    from store import migrations
+
+    path = tmp_path / "old.sqlite"
+    monkeypatch.setattr(migrations, "MIGRATIONS", MIGRATIONS[:2])
+    monkeypatch.setattr(migrations, "SCHEMA_VERSION", 2)
+    old = store.connect(path)
+    assert store.schema_version(old) == 2
+    with store.transaction(old) as conn:
+        _load(conn, sha="c" * 64)
+        mapped = _load(conn, sha="d" * 64)
+        conn.execute("UPDATE loads SET mapping_sha256 = 'm' WHERE id = ?", [mapped])
+    old.close()
+    monkeypatch.undo()
+    new = store.connect(path)
+    assert store.schema_version(new) == 3
+    assert new.execute("SELECT id, party_codes_from, error FROM loads ORDER BY id").fetchall() == [
+        (1, "config", None), (2, "mapping", None)]
+    assert new.execute("SELECT COUNT(*) FROM party_labels").fetchone() == (0,)
+    new.close()
 
 
 def test_two_connections_see_each_others_commits(tmp_path):

@@ -5,7 +5,9 @@ from __future__ import annotations
 import re
 
 _INT = re.compile(r"^[+]?\d+$")
-_GROUPED = re.compile(r"^\d{1,3}(,\d{3})+$")
+# thousands separators: a comma, a space, a no-break space or a narrow no-break space, the same
+# one throughout the number ("1,234,567", "1 234 567")
+_GROUPED = re.compile(r"^\d{1,3}(?P<sep>[, \u00a0\u202f])\d{3}(?:(?P=sep)\d{3})*$")
 _FLOATISH = re.compile(r"^[+-]?(\d+\.\d*|\.\d+|\d+(\.\d*)?[eE][+-]?\d+)$")
 YEAR_RANGE = (1789, 2200)
 TRUE = {"1", "true", "yes", "y", "t"}
@@ -14,11 +16,12 @@ CERTIFICATION = ("certified", "unofficial")
 
 
 def parse_votes(cell: str, max_votes: int):
-    text = cell.strip().replace("\u00a0", "")
+    text = cell.strip()
     if not text:
         return None, "votes is empty"
-    if _GROUPED.match(text):
-        text = text.replace(",", "")
+    grouped = _GROUPED.match(text)
+    if grouped:
+        text = text.replace(grouped["sep"], "")
     if text.startswith("-") and (_INT.match(text[1:]) or _FLOATISH.match(text)):
         return None, f"votes {cell.strip()!r} is negative"
     if not _INT.match(text):

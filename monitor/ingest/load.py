@@ -8,8 +8,8 @@ the old ones stay in history (``units.superseded_by``), and the report says what
 from __future__ import annotations
 
 import datetime as dt
-import hashlib
 import json
+import sqlite3
 from collections import Counter, defaultdict
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -18,13 +18,14 @@ import numpy as np
 import pandas as pd
 import sqlite_utils
 
-from monitor.config import Config
+from monitor.config import Config, normalise_label
 from monitor.errors import DataError, Problem, UsageError
+from monitor.ingest import labels as L
 from monitor.ingest.fields import shown
-from monitor.ingest.mapping import Mapping, parse_mapped, sum_candidate_lines
-from monitor.ingest.native import parse_native
+from monitor.ingest.mapping import Mapping, parse_mapped, quiet_labels, sum_candidate_lines
+from monitor.ingest.native import detect_format, parse_native
 from monitor.ingest.reader import csv_rows, decode, decompressed, read_raw
-from monitor.ingest.records import ParseContext, Record
+from monitor.ingest.records import ParseContext, Record, content_hash, key_matches
 from monitor.ingest.validate import check_records
 from monitor.reduce import reduce_contests
 from store import queries, transaction
@@ -44,7 +45,7 @@ class UnitChange:
 class LoadReport:
     file: str
     sha256: str
-    outcome: str  # loaded | already loaded | dry run
+    outcome: str  # loaded | already loaded | dry run (a refused load raises DataError)
     format: str = ""
     load_id: int | None = None
     rows_read: int = 0
@@ -55,6 +56,7 @@ class LoadReport:
     other_labels: dict[str, int] = field(default_factory=dict)
     skipped: list[str] = field(default_factory=list)
     note: str = ""
+    warnings: list[str] = field(default_factory=list)
 
     def count(self, action: str) -> int:
         return sum(1 for u in self.units if u.action == action)
@@ -68,6 +70,7 @@ class LoadReport:
             out.append(f"  {self.note}")
         if self.outcome == "already loaded":
             return out
+        out.extend(f"  warning: {w}" for w in self.warnings)
         out.append(f"  format {self.format}; rows read {self.rows_read}, accepted {self.rows_accepted}, "
                    f"rejected {self.rows_rejected}" + (f", filtered out {self.rows_filtered}" if self.rows_filtered else ""))
         out.append(f"  units: {self.count('new')} new, {self.count('corrected')} corrected, "
@@ -99,8 +102,13 @@ def load_file(
     skip_bad_rows: bool = False,
     encoding: str | None = None,
     now: dt.datetime | None = None,
+    record_refusal: bool = True,
 ) -> LoadReport:
-    """Load ``path``; raise :class:`DataError` (nothing written) when it cannot load whole."""
+    """Load ``path``; raise :class:`DataError` when it cannot load whole.
+
+    A refused file writes none of its rows: the store only gains a provenance row in ``loads``
+    (outcome ``refused``, rows read and rejected, the first problem), in its own transaction after
+    the load's own one rolled back (not for a dry run, or with ``record_refusal=False``)."""
     try:
         raw = read_raw(path)
     except FileNotFoundError:
@@ -110,16 +118,30 @@ def load_file(
     except OSError as exc:
         raise UsageError(f"{path}: cannot read ({exc.strerror})") from None
     report = LoadReport(file=raw.name, sha256=raw.sha256, outcome="dry run" if dry_run else "loaded")
+    stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
+    try:
+        return _load(db, raw, config, report, stamp, mapping=mapping, source=source, dry_run=dry_run,
+                     skip_bad_rows=skip_bad_rows, encoding=encoding)
+    except DataError as exc:
+        if not dry_run and record_refusal:
+            _record_refusal(db, raw, mapping, source, stamp, report, exc)
+        raise
+
+
+def _load(db, raw, config: Config, report: LoadReport, stamp: str, *, mapping, source, dry_run,
+          skip_bad_rows, encoding) -> LoadReport:
     if _already_loaded(db, raw, mapping, report):
         return report
 
     content = decompressed(raw, config["load.max_decompressed_mb"] * 2**20)
-    text = decode(raw.name, content, encoding or (mapping.encoding if mapping else None))
-    rows = csv_rows(raw.name, text, mapping.delimiter if mapping else ",")
+    delimiter = mapping.delimiter if mapping else ","
+    text = decode(raw.name, content, encoding or (mapping.encoding if mapping else None), delimiter)
+    rows = csv_rows(raw.name, text, delimiter)
     header = next(rows, None)
     if header is None or not any(c.strip() for c in header[1]):
         raise DataError([Problem(raw.name, 1, None, "the file is empty: no header row")])
     ctx = ParseContext(raw.name, config["load.max_votes_per_row"], config.label_codes())
+    report.format = "mapped" if mapping is not None else detect_format(header[1])
     if mapping is None:
         report.format, records, problems, report.rows_read = parse_native(ctx, header[1], rows)
     else:
@@ -128,36 +150,115 @@ def load_file(
     cross, bad = check_records(raw.name, records)
     problems = sorted(problems + cross, key=lambda p: p.row or 0)
     if problems and not skip_bad_rows:
+        report.rows_rejected = len({p.row for p in problems if p.row is not None})
         raise DataError(problems, f"{len(problems)} problem(s) in {raw.name}; nothing was loaded "
                                   "(fix the file, or pass --skip-bad-rows to load the rest)")
-    # every skipped row is listed: rows with a problem, then rows dropped with their district or unit
+    # a row that cannot be read takes its whole contest with it (never half a contest)
+    skipped_with = _skipped_with_bad_rows(ctx, records, bad)
+    # every skipped row is listed: rows with a problem, then rows dropped with their contest or unit
     named = {p.row for p in problems}
     report.skipped = [str(p) for p in problems] + [
-        f"{raw.name}:{row}: skipped with the rest of its district or unit"
-        for row in sorted({records[i].row for i in bad} - named)]
-    if bad:
-        records = [r for i, r in enumerate(records) if i not in bad]
+        why for row, why in sorted({records[i].row: why for i, why in skipped_with.items()}.items())
+        if row not in named]
+    if skipped_with:
+        records = [r for i, r in enumerate(records) if i not in skipped_with]
     report.rows_accepted = len({r.row for r in records})
     report.rows_rejected = report.rows_read - report.rows_filtered - report.rows_accepted
-    if mapping is not None and mapping.candidate_lines == "sum":
-        records = sum_candidate_lines(records)
     if not records:
         raise DataError(problems or [Problem(raw.name, None, None, "no result rows to load")],
                         f"{raw.name}: no rows left to load; nothing was loaded")
-    report.other_labels = dict(ctx.other_labels)
+    report.other_labels = _other_labels(records, mapping)
+    _warn_without_major_parties(report, records, mapping)
+    if mapping is not None and mapping.candidate_lines == "sum":
+        records = sum_candidate_lines(records)
 
-    stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
     units = _group_units(records)
     # the CPU work happens before the write lock is taken: the transaction only writes
     prepared = _prepare_units(units)
+    codes_from = L.MAPPING if mapping is not None and mapping.parties else L.CONFIG
     try:
         with transaction(db) as conn:
-            _write(conn, raw, mapping, source, stamp, prepared, report)
+            _write(conn, raw, mapping, source, stamp, prepared, report, codes_from, config.label_codes(), dry_run)
             if dry_run:
                 raise _DryRun()
     except _DryRun:
         report.load_id = None
     return report
+
+
+def _skipped_with_bad_rows(ctx: ParseContext, records: list[Record],
+                           bad: dict[int, tuple[Problem, str]]) -> dict[int, str]:
+    """Record indexes to skip, each with why: its contest or unit has a row with a problem."""
+    out: dict[int, str] = {}
+    for i, (problem, scope) in bad.items():
+        rec = records[i]
+        if scope == "unit":
+            out[i] = (f"{ctx.file}:{rec.row}:{shown(rec.columns.get('state', 'state'))}: skipped with the rest of "
+                      f"its unit ({shown(rec.state)} {shown(rec.chamber)} {rec.cycle}): row {problem.row} has a problem")
+        else:
+            out[i] = _with_contest(ctx.file, rec, problem.row)
+    # what each bad row says about its contest; an unreadable key cell matches any value, and a
+    # row that names no contest at all (cycle, state, chamber and district unreadable) is skipped alone
+    exact: dict[tuple, int] = {}
+    partial: list[tuple[int, tuple]] = []
+    for row, key in ctx.bad_rows:
+        if None not in key:
+            exact.setdefault(key, row)
+        elif any(k is not None for k in key[:4]):
+            partial.append((row, key))
+    if exact or partial:
+        for i, rec in enumerate(records):
+            if i in out:
+                continue
+            row = exact.get(rec.contest)
+            if row is None:
+                row = next((r for r, key in partial if key_matches(key, rec.contest)), None)
+            if row is not None:
+                out[i] = _with_contest(ctx.file, rec, row)
+    return out
+
+
+def _with_contest(file: str, rec: Record, bad_row: int | None) -> str:
+    special = " (special)" if rec.special else ""
+    return (f"{file}:{rec.row}:{shown(rec.columns.get('district', 'district'))}: skipped with the rest of its "
+            f"contest (district {shown(rec.district)!r}{special}, {shown(rec.state)} {shown(rec.chamber)} "
+            f"{rec.cycle}): row {bad_row} has a problem")
+
+
+def _other_labels(records: list[Record], mapping: Mapping | None) -> dict[str, int]:
+    """Labels counted as 'other' among the rows that are loaded (skipped rows do not count)."""
+    quiet = quiet_labels(mapping)
+    counts = Counter(r.party for r in records if r.party_code == "other" and normalise_label(r.party) not in quiet)
+    return dict(counts)
+
+
+def _warn_without_major_parties(report: LoadReport, records: list[Record], mapping: Mapping | None) -> None:
+    """A file where no line matched party a or party b is almost always a label mismatch."""
+    if any(r.party_code in ("a", "b") for r in records):
+        return
+    seen = Counter(r.party for r in records)
+    labels = ", ".join(f"{shown(k)!r} ({v})" for k, v in sorted(seen.items(), key=lambda kv: (-kv[1], kv[0]))[:10])
+    more = f" and {len(seen) - 10} more" if len(seen) > 10 else ""
+    where = ("the mapping's [parties] (or, without it, [parties.a]/[parties.b] labels in levelfield.toml)"
+             if mapping is not None else "the labels under [parties.a] and [parties.b] in levelfield.toml")
+    report.warnings.append(f"no line matched party a or party b; labels seen: {labels}{more}. "
+                           f"Every line counts as 'other': check {where}")
+
+
+def _record_refusal(db, raw, mapping, source, stamp: str, report: LoadReport, exc: DataError) -> None:
+    """Provenance of a refused load: one ``loads`` row, in its own small transaction."""
+    first = str(exc.problems[0]) if exc.problems else exc.summary
+    try:
+        with transaction(db) as conn:
+            queries.insert_load(conn, {
+                "file_name": raw.name, "sha256": raw.sha256, "bytes": raw.size,
+                "format": report.format or "unknown", "mapping_sha256": mapping.sha256 if mapping else None,
+                "source": source or (mapping.source if mapping else None),
+                "rows_read": report.rows_read, "rows_accepted": 0, "rows_rejected": report.rows_rejected,
+                "loaded_at": stamp, "outcome": "refused", "error": first[:2000],
+            })
+    except sqlite3.Error as err:  # the refusal stands; say that its record is missing
+        exc.summary += f" (the refusal could not be recorded in the store's loads: {err})"
 
 
 def _already_loaded(db, raw, mapping, report: LoadReport) -> bool:
@@ -186,12 +287,8 @@ def _group_units(records: list[Record]) -> dict[tuple, list[Record]]:
 
 
 def _content_hash(records: list[Record]) -> str:
-    lines = sorted(
-        f"{r.district}\x1f{int(r.special)}\x1f{r.seats}\x1f{r.party}\x1f{r.party_code}\x1f{r.candidate}"
-        f"\x1f{r.votes}\x1f{int(r.writein)}\x1f{r.status}"
-        for r in records
-    )
-    return hashlib.sha256("\n".join(lines).encode()).hexdigest()
+    return content_hash((r.district, r.special, r.seats, r.party, r.party_code, r.candidate, r.votes,
+                         r.writein, r.status) for r in records)
 
 
 @dataclass
@@ -227,9 +324,15 @@ def _prepare_units(units: dict[tuple, list[Record]]) -> dict[tuple, _Unit]:
     return out
 
 
-def _write(conn, raw, mapping, source, stamp, units, report: LoadReport) -> None:
+def _write(conn, raw, mapping, source, stamp, units, report: LoadReport, codes_from: str,
+           labels: dict[str, str], dry_run: bool) -> None:
     if _already_loaded(conn, raw, mapping, report):
         return  # another process loaded the same bytes while this one was parsing them
+    if codes_from == L.CONFIG:
+        # the stored config-derived codes and this file's codes follow the same labels
+        recoded = L.recode(conn, labels)
+        if recoded is not None:
+            report.warnings.append(L.recode_message(recoded, dry_run=dry_run))
     current = queries.current_units(conn, units)
     load_id = queries.insert_load(conn, {
         "file_name": raw.name, "sha256": raw.sha256, "bytes": raw.size, "format": report.format,
@@ -237,6 +340,7 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport) -> None
         "source": source or (mapping.source if mapping else None),
         "rows_read": report.rows_read, "rows_accepted": report.rows_accepted,
         "rows_rejected": report.rows_rejected, "loaded_at": stamp, "outcome": "loading",
+        "party_codes_from": codes_from,
     })
     report.load_id = load_id
     queries.ensure_keys(conn, "cycles", "year", sorted({k[0] for k in units}))

@@ -16,8 +16,9 @@ from typing import Iterable
 
 from monitor.config import normalise_label
 from monitor.errors import ConfigError, DataError, Problem
-from monitor.ingest.native import header_problems
-from monitor.ingest.records import FIELDS, ParseContext, Record, parse_record
+from monitor.ingest.fields import shown
+from monitor.ingest.native import cells_getter, width_problem
+from monitor.ingest.records import FIELDS, ParseContext, Record, contest_key, parse_record
 
 REQUIRED_FIELDS = ("cycle", "state", "district", "party", "votes")
 TOP_KEYS = {"chamber", "candidate_lines", "encoding", "delimiter", "source",
@@ -86,7 +87,7 @@ def load_mapping(path: Path) -> Mapping:
         if not isinstance(values, list) or not all(isinstance(v, str) for v in values):
             problems.append(f"[keep] {column!r} must be a list of texts")
             continue
-        keep[column] = {v.strip() for v in values}
+        keep[column] = {keep_value(v) for v in values}
     parties: dict[str, str] = {}
     for code, labels in raw.get("parties", {}).items():
         if code not in ("a", "b", "other"):
@@ -113,23 +114,52 @@ def load_mapping(path: Path) -> Mapping:
         path=path, sha256=hashlib.sha256(data).hexdigest(), columns=dict(columns),
         chamber=chamber.strip() if chamber else None, candidate_lines=lines,
         encoding=raw.get("encoding"), delimiter=delimiter, source=raw.get("source"), keep=keep,
-        parties=parties, exclude_states={s.strip() for s in exclude}, at_large=at_large,
+        parties=parties, exclude_states={exclude_value(s) for s in exclude}, at_large=at_large,
     )
+
+
+def keep_value(text: str) -> str:
+    """``[keep]`` values match whatever the case and surrounding spaces."""
+    return text.strip().casefold()
+
+
+def exclude_value(text: str) -> str:
+    """``[exclude] states`` match whatever the case and surrounding spaces."""
+    return text.strip().casefold()
+
+
+def used_header_problems(file: str, header: list[str], used: Iterable[str]) -> list[Problem]:
+    """Duplicated or blank names among the columns the mapping uses; other columns do not matter."""
+    problems = []
+    names = [h.strip() for h in header]
+    for theirs in dict.fromkeys(used):
+        if not theirs.strip():
+            problems.append(Problem(file, 1, None, "the mapping names a column with no name (a blank text)"))
+            continue
+        where = [i + 1 for i, n in enumerate(names) if n == theirs.strip()]
+        if len(where) > 1:
+            problems.append(Problem(file, 1, shown(theirs.strip()),
+                                    f"duplicated column, used by the mapping (columns "
+                                    f"{', '.join(f'#{i}' for i in where)}): which one is meant?"))
+    return problems
 
 
 def parse_mapped(
     ctx: ParseContext, mapping: Mapping, header: list[str], rows: Iterable[tuple[int, list[str]]]
 ) -> tuple[list[Record], list[Problem], int, int]:
     """Parse a foreign file through ``mapping``; returns (records, row problems, rows read, rows filtered)."""
-    problems = header_problems(ctx.file, header)
+    problems = used_header_problems(ctx.file, header, [*mapping.columns.values(), *mapping.keep])
     names = [h.strip() for h in header]
-    index = {n: i for i, n in enumerate(names)}
+    index: dict[str, int] = {}
+    for i, n in enumerate(names):
+        index.setdefault(n, i)
     for ours, theirs in mapping.columns.items():
-        if theirs not in index:
-            problems.append(Problem(ctx.file, 1, theirs, f"missing column (the mapping's [columns] {ours} = {theirs!r})"))
+        if theirs.strip() and theirs.strip() not in index:
+            problems.append(Problem(ctx.file, 1, shown(theirs),
+                                    f"missing column (the mapping's [columns] {ours} = {theirs!r})"))
     for theirs in mapping.keep:
-        if theirs not in index:
-            problems.append(Problem(ctx.file, 1, theirs, "missing column (named in the mapping's [keep])"))
+        if theirs.strip() and theirs.strip() not in index:
+            problems.append(Problem(ctx.file, 1, shown(theirs), "missing column (named in the mapping's [keep])"))
     if problems:
         raise DataError(problems, f"{len(problems)} problem(s) in the header; nothing was loaded")
     if mapping.chamber:
@@ -137,12 +167,9 @@ def parse_mapped(
     ctx.at_large = mapping.at_large
     if mapping.parties:
         ctx.label_codes = {k: v for k, v in mapping.parties.items() if v in ("a", "b")}
-        quiet_other = {k for k, v in mapping.parties.items() if v == "other"}
-    else:
-        quiet_other = set()
-    field_index = {ours: index[theirs] for ours, theirs in mapping.columns.items()}
+    field_index = {ours: index[theirs.strip()] for ours, theirs in mapping.columns.items()}
     columns = dict(mapping.columns)
-    keep = [(index[c], values) for c, values in mapping.keep.items()]
+    keep = [(index[c.strip()], values) for c, values in mapping.keep.items()]
     state_i = field_index["state"]
     records: list[Record] = []
     row_problems: list[Problem] = []
@@ -152,27 +179,29 @@ def parse_mapped(
         if not cells or (len(cells) == 1 and not cells[0].strip()):
             continue
         read += 1
+        get = cells_getter(cells, field_index)
         if len(cells) != width:
-            row_problems.append(Problem(ctx.file, row, None,
-                                        f"has {len(cells)} cells but the header has {width} columns"))
+            row_problems.append(width_problem(ctx.file, row, cells, names))
+            ctx.bad_rows.append((row, contest_key(ctx, get)))
             continue
-        if any(cells[i].strip() not in values for i, values in keep) or cells[state_i].strip() in mapping.exclude_states:
+        if (any(keep_value(cells[i]) not in values for i, values in keep)
+                or exclude_value(cells[state_i]) in mapping.exclude_states):
             filtered += 1
             continue
-
-        def get(name, cells=cells):
-            i = field_index.get(name)
-            return None if i is None else cells[i]
-
         record, problems = parse_record(ctx, row, get, columns)
         row_problems.extend(problems)
         if record:
-            if record.party_code == "other" and normalise_label(record.party) in quiet_other:
-                ctx.other_labels[record.party] -= 1
-                if ctx.other_labels[record.party] <= 0:
-                    del ctx.other_labels[record.party]
             records.append(record)
+        else:
+            ctx.bad_rows.append((row, contest_key(ctx, get)))
     return records, row_problems, read, filtered
+
+
+def quiet_labels(mapping: Mapping | None) -> set[str]:
+    """Normalised labels the mapping lists under ``other``: not reported as unknown."""
+    if mapping is None:
+        return set()
+    return {k for k, v in mapping.parties.items() if v == "other"}
 
 
 def sum_candidate_lines(records: list[Record]) -> list[Record]:

@@ -12,7 +12,7 @@ from typing import Iterable
 
 from monitor.errors import DataError, Problem
 from monitor.ingest.fields import shown
-from monitor.ingest.records import ParseContext, Record, parse_record
+from monitor.ingest.records import ParseContext, Record, contest_key, parse_record
 
 LONG_REQUIRED = ("cycle", "state", "chamber", "district", "party", "candidate", "votes")
 LONG_OPTIONAL = ("seats", "special", "writein", "status")
@@ -34,6 +34,31 @@ def header_problems(file: str, header: list[str]) -> list[Problem]:
         else:
             seen[key] = index
     return problems
+
+
+def width_problem(file: str, row: int, cells: list[str], names: list[str]) -> Problem:
+    """A row with more or fewer cells than the header has columns, located at the first column
+    (``#n``, 1-based) that does not line up."""
+    width = len(names)
+    if len(cells) > width:
+        return Problem(file, row, f"#{width + 1}",
+                       f"has {len(cells)} cells but the header has {width} columns: cell #{width + 1} onwards "
+                       "fall under no column (an unquoted comma inside a cell, such as a thousands "
+                       "separator or a name? quote that cell)")
+    missing = names[len(cells)]
+    return Problem(file, row, f"#{len(cells) + 1}",
+                   f"has {len(cells)} cells but the header has {width} columns: column #{len(cells) + 1}"
+                   + (f" ({shown(missing)})" if missing else "") + " onwards missing")
+
+
+def cells_getter(cells: list[str], index: dict[str, int]):
+    """``get(field)`` over a row's cells, ``None`` for a field without a column (or a cell)."""
+
+    def get(name: str) -> str | None:
+        i = index.get(name)
+        return None if i is None or i >= len(cells) else cells[i]
+
+    return get
 
 
 def detect_format(header: list[str]) -> str:
@@ -89,20 +114,19 @@ def parse_native(
         if not cells or (len(cells) == 1 and not cells[0].strip()):
             continue  # blank line
         read += 1
+        get = cells_getter(cells, index)
         if len(cells) != width:
-            row_problems.append(Problem(ctx.file, row, None,
-                                        f"has {len(cells)} cells but the header has {width} columns"))
+            row_problems.append(width_problem(ctx.file, row, cells, names))
+            ctx.bad_rows.append((row, contest_key(ctx, get)))
             continue
-
-        def get(name, cells=cells):
-            i = index.get(name)
-            return None if i is None else cells[i]
 
         if fmt == "native-long":
             record, problems = parse_record(ctx, row, get, columns)
             row_problems.extend(problems)
             if record:
                 records.append(record)
+            else:
+                ctx.bad_rows.append((row, contest_key(ctx, get)))
             continue
         # a wide row is one whole contest: a bad cell skips the row, never half of it
         row_records: list[Record] = []
@@ -110,6 +134,7 @@ def parse_native(
         if not any(cells[i].strip() for _, i in parties):
             row_problems.append(Problem(ctx.file, row, None, "no votes_ column has a count: a district "
                                                              "with no votes at all"))
+            ctx.bad_rows.append((row, contest_key(ctx, get)))
             continue
         for label, i in parties:
             if not cells[i].strip():
@@ -129,4 +154,6 @@ def parse_native(
                 row_records.append(record)
         if not row_seen:
             records.extend(row_records)
+        else:
+            ctx.bad_rows.append((row, contest_key(ctx, get)))
     return fmt, records, row_problems, read

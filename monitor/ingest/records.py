@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from collections import Counter
+import hashlib
 from dataclasses import dataclass, field
-from typing import Callable
+from typing import Callable, Iterable
 
 from monitor.config import normalise_label
 from monitor.errors import Problem
@@ -47,14 +47,63 @@ class ParseContext:
     label_codes: dict[str, str]          # normalised label -> a | b
     at_large: str | None = None           # the file's code for an at-large seat
     fixed: dict[str, str] = field(default_factory=dict)  # field -> value for every row
-    other_labels: Counter = field(default_factory=Counter)
+    # rows that could not be read whole, with what they say about their contest (see contest_key):
+    # a bad row takes every row of its contest with it under --skip-bad-rows
+    bad_rows: list[tuple[int, tuple]] = field(default_factory=list)
 
     def code(self, label: str) -> str:
-        code = self.label_codes.get(normalise_label(label))
-        if code is None:
-            self.other_labels[label] += 1
-            return "other"
-        return code
+        return self.label_codes.get(normalise_label(label), "other")
+
+
+def normalise_state(text: str) -> str:
+    """State codes are stored in upper case (``qv`` and ``QV`` are one state)."""
+    return text.upper()
+
+
+def normalise_chamber(text: str) -> str:
+    """Chamber names are stored in lower case (``Federal`` and ``federal`` are one chamber)."""
+    return text.lower()
+
+
+KEY_FIELDS = ("cycle", "state", "chamber", "district", "special")
+
+
+def contest_key(ctx: ParseContext, get: Callable[[str], str | None]) -> tuple:
+    """What a row's cells say about its contest, parsed and normalised as :func:`parse_record`
+    does: ``(cycle, state, chamber, district, special)``, each ``None`` when its cell is unreadable
+    (so that a bad row can take every row that may belong to its contest with it)."""
+
+    def cell(name: str) -> str:
+        if name in ctx.fixed:
+            return ctx.fixed[name]
+        value = get(name)
+        return "" if value is None else value
+
+    cycle = F.parse_cycle(cell("cycle"))[0]
+    state = F.parse_text(cell("state"), "state", required=True)[0]
+    chamber = F.parse_text(cell("chamber"), "chamber", required=True)[0]
+    district = F.parse_text(cell("district"), "district", required=True)[0]
+    if district is not None and ctx.at_large is not None and district == ctx.at_large:
+        district = "AL"
+    special = F.parse_flag(cell("special"), "special")[0]
+    return (cycle, None if state is None else normalise_state(state),
+            None if chamber is None else normalise_chamber(chamber), district, special)
+
+
+def key_matches(pattern: tuple, key: tuple) -> bool:
+    """Whether a full contest key fits a pattern from :func:`contest_key` (``None`` fits anything)."""
+    return all(p is None or p == k for p, k in zip(pattern, key))
+
+
+def content_hash(lines: Iterable[tuple]) -> str:
+    """The content hash of a unit: lines of (district, special, seats, party, party_code,
+    candidate, votes, writein, status), in any order."""
+    text = sorted(
+        f"{district}\x1f{int(special)}\x1f{seats}\x1f{party}\x1f{code}\x1f{candidate}"
+        f"\x1f{votes}\x1f{int(writein)}\x1f{status}"
+        for district, special, seats, party, code, candidate, votes, writein, status in lines
+    )
+    return hashlib.sha256("\n".join(text).encode()).hexdigest()
 
 
 def parse_record(
@@ -78,6 +127,8 @@ def parse_record(
     cycle = take("cycle", F.parse_cycle(cell("cycle")))
     state = take("state", F.parse_text(cell("state"), "state", required=True))
     chamber = take("chamber", F.parse_text(cell("chamber"), "chamber", required=True))
+    state = None if state is None else normalise_state(state)
+    chamber = None if chamber is None else normalise_chamber(chamber)
     district = take("district", F.parse_text(cell("district"), "district", required=True))
     if district is not None and ctx.at_large is not None and district == ctx.at_large:
         district = "AL"

@@ -286,7 +286,9 @@ def expected_rows(data: bytes, encoding: str | None = None, *, lenient: bool = F
             continue
         try:
             row = dict(zip(header, cells, strict=True))
-            key = (int(row["cycle"].strip()), _text(row["state"]), _text(row["chamber"]), _text(row["district"]))
+            # README: state codes are stored in upper case, chamber names in lower case
+            key = (int(row["cycle"].strip()), _text(row["state"]).upper(), _text(row["chamber"]).lower(),
+                   _text(row["district"]))
             if "party" in header:
                 lines = [(row["party"], row["candidate"], row["votes"])]
             else:
@@ -300,6 +302,13 @@ def expected_rows(data: bytes, encoding: str | None = None, *, lenient: bool = F
             raise
         out.update(parsed)
     return out
+
+
+def refusal_only(after: list[str], before: list[str]) -> bool:
+    """A refused load writes none of its rows; the store only gains one provenance row in
+    ``loads`` (outcome 'refused'). ``after`` (a dump) is ``before`` plus that one row."""
+    extra = [line for line in after if line.startswith('INSERT INTO "loads"') and "'refused'" in line]
+    return len(extra) == 1 and [line for line in after if line not in extra] == before
 
 
 def stored_rows(conn, units) -> Counter:

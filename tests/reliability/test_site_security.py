@@ -171,7 +171,8 @@ def test_markup_in_every_field_renders_as_text_on_every_page_in_chromium(site, s
                 assert page.evaluate("() => window.__pwned === undefined"), (rel, page.evaluate("window.__pwned"))
                 assert page.evaluate("() => document.querySelectorAll('[data-pwn], [onerror], [onload]').length") == 0, rel
                 text = page.evaluate("() => document.body.innerText")
-                seen_as_text |= {f for f in P if f"data-pwn={f}>{f}<" in text}
+                # state codes are stored in upper case (README): compare whatever the case
+                seen_as_text |= {f for f in P if f"data-pwn={f}>{f}<".casefold() in text.casefold()}
                 assert not dialogs, (rel, dialogs)
                 assert not errors, (rel, errors)
         finally:
