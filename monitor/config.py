@@ -55,6 +55,14 @@ def _labels(value):
     return None
 
 
+def _base_url(value):
+    if not isinstance(value, str):
+        return f"must be a string, got {type(value).__name__} {value!r}"
+    if value and not re.match(r"^https?://[^\s/?#]+(/[^\s?#]*)?$", value):
+        return f'must be empty or an http(s) address like "https://example.org/watch/", got {value!r}'
+    return None
+
+
 def _colour(value):
     if not isinstance(value, str) or not _COLOUR.match(value):
         return f'must be a colour like "#1b7f79", got {value!r}'
@@ -89,7 +97,9 @@ OPTIONS: list[Option] = [
     ),
     Option(
         "measures", "symmetry_band", 0.05,
-        "symmetry_bias averages S(v) - (1 - S(1 - v)) over 0.5 +- this band",
+        "symmetry_bias averages [S(v) - (1 - S(1 - v))] / 2 over 0.5 +- this band: the halved form of "
+        "Gelman & King (1994, from memory), not the undivided difference, so that it equals partisan_bias "
+        "as the band shrinks to 0 (the undivided average would be twice the value)",
         _typed(float, low=0.0, high=0.5),
     ),
     Option(
@@ -125,16 +135,20 @@ OPTIONS: list[Option] = [
     Option("pool", "seed", 19720101, "random seed of the national-pool simulation", _typed(int, low=0)),
     Option(
         "flags", "tail", 0.025,
-        "a measure is flagged when it lies in this outer tail of its null, on either side",
+        "a measure is flagged when it lies in this outer tail of its null, on either side (default 2.5% "
+        "each side, a two-sided 5% test: common practice; no source proposes it for these measures)",
         _typed(float, low=0.0001, high=0.25),
     ),
     Option(
         "flags", "p_threshold", 0.05,
-        "the lopsided-margins t-test and the mean-median z-test flag below this p",
+        "the lopsided-margins t-test and the mean-median z-test flag below this p (default 0.05: common "
+        "practice, the conventional significance level)",
         _typed(float, low=0.0001, high=0.5),
     ),
     Option(
-        "flags", "min_districts", 6, "units with fewer districts are never flagged",
+        "flags", "min_districts", 6,
+        "units with fewer districts are never flagged (default 6: project choice; the literature skips "
+        "very small delegations but no verified cut-off was found)",
         _typed(int, low=2, high=10_000),
     ),
     Option(
@@ -163,6 +177,13 @@ OPTIONS: list[Option] = [
         "schedule", "nightly", "03:00", "local time (HH:MM) of the nightly full verification",
         lambda v: None if isinstance(v, str) and re.match(r"^([01]\d|2[0-3]):[0-5]\d$", v)
         else f'must be a time like "03:00", got {v!r}',
+    ),
+    Option(
+        "site", "base_url", "",
+        "absolute address the published site is served from, e.g. \"https://example.org/watch/\" (optional); "
+        "when set, the Atom feed's rel=\"self\" link is absolute, as RFC 4287 recommends; when empty it is "
+        "relative, so the site works from any folder or address",
+        _base_url,
     ),
 ]
 

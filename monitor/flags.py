@@ -15,7 +15,13 @@ stake: the mean of the excess seats over the plan's agreeing cycles (absolute, i
 ``concurring`` is the largest number of measures agreeing in one cycle.
 
 Every raise and clear of a unit flag or of a watch entry is written to ``flag_events`` with
-what, when, why and the load that caused it.
+what, when, why and the load that caused it: the newest load among the units of the (cycle,
+chamber) group whose pool the null is drawn from (over the plan's cycles, for a watch entry), since
+a correction in one state moves every other state's null in that group.
+
+Observed values and their undefined cases are the measures engine's (:func:`engine_values`): a
+measure stored as null in ``measures`` is null in ``tails`` with the same reason, never flagged and
+left out of the cross-state context.
 """
 
 from __future__ import annotations
@@ -23,7 +29,7 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import json
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -31,13 +37,13 @@ import sqlite_utils
 
 from monitor import measures as M
 from monitor import pool as P
-from monitor.compute import settings_salt
+from monitor.compute import measure_settings, settings_salt
 from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.plans import assign_plans, write_inferred
 from store import write_from_snapshot
 
-POOL_METHOD_VERSION = "pool-1"
+POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
 #: measures judged against their national-pool null, by the name they carry in ``tails``
 NULL_FLAGGED = ("efficiency_gap", "mean_median", "declination", "partisan_bias", "seats")
 #: measures judged by their own p-value (stored in ``measures.p_value``)
@@ -96,18 +102,54 @@ def _group_hash(units: pd.DataFrame, config: Config) -> str:
     return h.hexdigest()
 
 
+#: the engine measure whose stored value (and null reason) each tails measure takes
+ENGINE_NAME = {"efficiency_gap": "efficiency_gap", "mean_median": "mean_median", "declination": "declination",
+               "partisan_bias": "partisan_bias", "seats": "seats_a"}
+#: ``seats`` is judged as an asymmetry measure: besides the engine's own rule for seats_a it is
+#: null wherever the engine's rule for the asymmetry measures makes the seat-form efficiency gap null
+#: (fewer than 2 districts, every district uncontested, ...)
+SEATS_GATE = "efficiency_gap_seats"
+
+
+def engine_values(arrays, members: np.ndarray, config: Config) -> tuple[dict, dict]:
+    """The observed value and null reason of every tails measure for the units ``members``, as the
+    measures engine stores them (same inputs, same settings, same undefined rules): name ->
+    array of values (NaN where null) and name -> array of reasons ("" where defined)."""
+    rows = np.isin(arrays.unit, members)
+    local = np.searchsorted(members, arrays.unit[rows])
+    settings = replace(measure_settings(config), interval_draws=0)
+    long = M.compute_measures(local, arrays.votes_a[rows], arrays.votes_b[rows], arrays.uncontested[rows],
+                              len(members), settings, None)
+    wide_value = long.pivot(index="unit", columns="measure", values="value").reindex(np.arange(len(members)))
+    wide_reason = long.pivot(index="unit", columns="measure", values="reason").reindex(np.arange(len(members)))
+    values, reasons = {}, {}
+    for name, engine in ENGINE_NAME.items():
+        values[name] = wide_value[engine].to_numpy(float)
+        reasons[name] = wide_reason[engine].fillna("").to_numpy(object)
+    gate = wide_reason[SEATS_GATE].fillna("").to_numpy(object)
+    take = (reasons["seats"] == "") & (gate != "")
+    reasons["seats"] = np.where(take, gate, reasons["seats"])
+    values["seats"] = np.where(reasons["seats"] != "", np.nan, values["seats"])
+    return values, reasons
+
+
 def pool_group(arrays, members: np.ndarray, config: Config, cycle: int, chamber: str) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Expected seats and null percentiles for the units ``members`` (indexes into arrays.units),
-    all of one cycle and chamber. Pure: arrays in, frames out."""
+    all of one cycle and chamber. Pure: arrays in, frames out.
+
+    The observed values follow the measures engine exactly (:func:`engine_values`): a measure the
+    engine stores as null is null here too, with the engine's reason, has no null percentile (so
+    it is never flagged) and stays out of the cross-state context. The null distributions are
+    the measures on the simulated delegations (``monitor.pool``)."""
     units = arrays.units.loc[members]
     rows = np.isin(arrays.unit, members)
     va, vb, st = arrays.votes_a[rows], arrays.votes_b[rows], arrays.state[rows]
     ok = (va + vb) > 0
     seats_rows, tail_rows = [], []
     n = units["districts_eligible"].to_numpy()
-    # local unit arrays for the observed measures
     local = np.searchsorted(members, arrays.unit[rows])
-    observed = {name: getattr(M, fn)(local, va, vb, len(members)) for name, fn in P.NULL_MEASURES.items()}
+    observed, undefined = engine_values(arrays, members, config)
+    actual_seats = M.seats_a(local, va, vb, len(members))  # the expectation compares every unit's seats
     tot = np.bincount(local, va + vb, len(members))
     with np.errstate(invalid="ignore", divide="ignore"):
         share = np.bincount(local, va, len(members)) / tot
@@ -117,7 +159,7 @@ def pool_group(arrays, members: np.ndarray, config: Config, cycle: int, chamber:
         idx = np.flatnonzero(live)
         states = units["state"].to_numpy()[idx]
         seats, nulls = P.compare_with_pool(
-            pool, states, n[idx], share[idx], observed["seats"][idx], {k: v[idx] for k, v in observed.items()},
+            pool, states, n[idx], share[idx], actual_seats[idx], {k: v[idx] for k, v in observed.items()},
             rng=np.random.SeedSequence(_group_seed(config["pool.seed"], cycle, chamber)),
             unit_key=np.array([_state_key(s) for s in states], dtype=np.int64),
             tol=config["pool.tolerance"], accepted=config["pool.draws"],
@@ -134,23 +176,28 @@ def pool_group(arrays, members: np.ndarray, config: Config, cycle: int, chamber:
                       "no simulated delegation reached the state's vote share" if i is not None else
                       "no two-party votes")
             seats_rows.append({**base, "districts": int(n[j]), "vote_share": _f(share[j]),
-                               "seats_a": _f(observed["seats"][j]), "reason": reason})
+                               "seats_a": _f(actual_seats[j]), "reason": reason})
             for name in NULL_FLAGGED:
-                tail_rows.append({**base, "measure": name, "value": _f(observed[name][j]), "reason": reason})
+                tail_rows.append({**base, "measure": name, "value": _f(observed[name][j]),
+                                  "reason": undefined[name][j] or reason})
             continue
         seats_rows.append({**base, "districts": int(n[j]), "vote_share": _f(share[j]),
-                           "seats_a": _f(observed["seats"][j]), "expected_seats": _f(seats.expected_seats[i]),
+                           "seats_a": _f(actual_seats[j]), "expected_seats": _f(seats.expected_seats[i]),
                            "low": _f(seats.low[i]), "high": _f(seats.high[i]), "percentile": _f(seats.percentile[i]),
                            "excess_seats": _f(seats.excess_seats[i]), "draws": int(seats.n_accepted[i]),
                            "ess": _f(seats.ess[i]), "mc_se": _f(seats.mc_se[i]), "reason": None})
         for name in NULL_FLAGGED:
             r = nulls[name]
             value = observed[name][j]
+            if undefined[name][j]:  # null in the measures table: null here, with the engine's reason
+                tail_rows.append({**base, "measure": name, "value": None, "null_low": _f(r.null_low[i]),
+                                  "null_high": _f(r.null_high[i]), "null_dropped": _f(r.nan_fraction[i]),
+                                  "reason": undefined[name][j]})
+                continue
             tail_rows.append({**base, "measure": name, "value": _f(value), "null_percentile": _f(r.percentile[i]),
                               "null_low": _f(r.null_low[i]), "null_high": _f(r.null_high[i]),
                               "null_dropped": _f(r.nan_fraction[i]),
-                              "reason": None if np.isfinite(value) and np.isfinite(r.percentile[i])
-                              else "undefined for this unit" if not np.isfinite(value)
+                              "reason": None if np.isfinite(r.percentile[i])
                               else "undefined on every simulated delegation"})
     return pd.DataFrame(seats_rows), pd.DataFrame(tail_rows)
 
@@ -218,7 +265,9 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
            .agg(lambda m: sorted(set(m))).reset_index())
     per = per[per["measure"].map(len) >= need_measures]
     per = per.merge(plans, on=UNIT_KEYS, how="left")
-    per = per.merge(seats[[*UNIT_KEYS, "excess_seats"]], on=UNIT_KEYS, how="left") if not seats.empty else per.assign(excess_seats=np.nan)
+    # no unit of the pool may have an expected seat count (no two-party votes anywhere): no column
+    has_excess = not seats.empty and "excess_seats" in seats.columns
+    per = per.merge(seats[[*UNIT_KEYS, "excess_seats"]], on=UNIT_KEYS, how="left") if has_excess else per.assign(excess_seats=np.nan)
     rows = []
     for (state, chamber, plan_id), group in per.groupby(["state", "chamber", "plan_id"], sort=True):
         counts = group.groupby("direction")["cycle"].nunique()
@@ -237,7 +286,7 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
             "state": state, "chamber": chamber, "plan_id": plan_id,
             "drawn_by": first["drawn_by"], "inferred": int(first["inferred"]), "favours": favours,
             "severity": round(abs(stake), 2) if stake is not None else 0.0,
-            "seats_at_stake": None if stake is None else round(stake, 3),
+            "seats_at_stake": None if stake is None else round(stake, 2),  # as severity: one rounding
             "concurring": int(agree["measure"].map(len).max()),
             "cycles": " ".join(str(c) for c in agree["cycle"]),
             "measures": " ".join(measures), "since": int(agree["cycle"].min()),
@@ -249,18 +298,22 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
 
 
 def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
-              now: dt.datetime | None = None) -> FlagsReport:
+              now: dt.datetime | None = None, progress=None) -> FlagsReport:
     """Recompute the national tails of changed cycle/chamber groups, judge every unit, rebuild
     the watch list, and record every flag that was raised or cleared.
 
     Reads, computation and the write are one consistent step (:func:`store.write_from_snapshot`):
     when another process commits meanwhile (a load, or a second recompute), the step runs again on
-    the new state, so no event is recorded twice and no newer result is overwritten."""
+    the new state, so no event is recorded twice and no newer result is overwritten.
+    ``progress``: an optional callback (:mod:`monitor.progress`) told each cycle/chamber group."""
     stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
-    return write_from_snapshot(db, lambda: _flag_step(db, config, full, stamp))
+    report = write_from_snapshot(db, lambda: _flag_step(db, config, full, stamp, progress))
+    if progress is not None:
+        progress("flags", report.groups_total, report.groups_total, f"{report.groups_computed} group(s) recomputed")
+    return report
 
 
-def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str):
+def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str, progress=None):
     """Read the store, compute tails, flags, watch list and events; return the writer."""
     report = FlagsReport()
     contests = reduced_contests(db)
@@ -277,7 +330,10 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
         "SELECT cycle, state, chamber, measure, value, p_value, reason FROM measures WHERE measure IN (?, ?)",
         db.conn, params=[P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
     seat_frames, tail_frames = [], []
-    for (cycle, chamber), part in units.groupby(["cycle", "chamber"], sort=True):
+    groups = units.groupby(["cycle", "chamber"], sort=True)
+    for done, ((cycle, chamber), part) in enumerate(groups):
+        if progress is not None:
+            progress("flags", done, groups.ngroups, f"{cycle} {chamber}")
         report.groups_total += 1
         group_hash = _group_hash(part, config)
         key = f"{cycle}|{chamber}"
@@ -303,9 +359,9 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     report.flags = int(judged["flagged"].sum())
     report.on_watch = len(watch)
 
-    events = _unit_events(old_tails, judged, units, loads, stamp)
-    last_load = {(r.state, r.chamber): r.load_id for r in contests.groupby(["state", "chamber"])["load_id"].max().reset_index().itertuples()}
-    events += _watch_events(old_watch, watch, last_load, stamp)
+    group_load = _group_loads(units, loads)
+    events = _unit_events(old_tails, judged, group_load, stamp)
+    events += _watch_events(old_watch, watch, _plan_cycles(plans), group_load, stamp)
     report.events = [e["text"] for e in events]
 
     def write(conn) -> None:
@@ -359,26 +415,45 @@ def _sql(value):
 
 def _why(r) -> str:
     if r.get("basis") == "p-value":
-        return f"{r['measure']} {r['value']:+.3f} with p = {r['p_value']:.3g} below the threshold"
+        return f"{_measure_text(r['measure'], r['value'])} with p = {r['p_value']:.3g} below the threshold"
     pct = r.get("null_percentile")
-    text = f"{r['measure']} {r['value']:+.3f} at percentile {pct:.3f} of its national-pool null"
+    text = f"{_measure_text(r['measure'], r['value'])} at percentile {pct:.3f} of its national-pool null"
     if r.get("basis") == "null tail and p-value":
         text += f" (and p = {r['p_value']:.3g})"
     return text
 
 
-def _unit_events(old: pd.DataFrame, new: pd.DataFrame, units, loads, stamp) -> list[dict]:
+def _group_loads(units: pd.DataFrame, loads: pd.Series) -> dict[tuple, int]:
+    """The newest load among the current units of each (cycle, chamber) group.
+
+    A unit's null is drawn from its whole group's districts, so a load of any state in the group
+    (a new cycle, a correction) can raise or clear another state's flag: that load is the one a
+    change is credited to."""
+    load = pd.to_numeric(units["unit_id"].map(loads), errors="coerce")
+    frame = pd.DataFrame({"cycle": units["cycle"].astype(int), "chamber": units["chamber"], "load": load})
+    newest = frame.dropna(subset=["load"]).groupby(["cycle", "chamber"])["load"].max()
+    return {(int(c), ch): int(v) for (c, ch), v in newest.items()}
+
+
+def _plan_cycles(plans: pd.DataFrame) -> dict[tuple, set]:
+    """(state, chamber, plan_id) -> the cycles of the plan's current units."""
+    out: dict[tuple, set] = {}
+    for r in plans[["cycle", "state", "chamber", "plan_id"]].itertuples(index=False):
+        out.setdefault((r.state, r.chamber, r.plan_id), set()).add(int(r.cycle))
+    return out
+
+
+def _unit_events(old: pd.DataFrame, new: pd.DataFrame, group_load: dict[tuple, int], stamp) -> list[dict]:
+    """Raised and cleared unit flags, each credited to the newest load of its (cycle, chamber)
+    group (:func:`_group_loads`)."""
     key = [*UNIT_KEYS, "measure"]
     before = {tuple(r[k] for k in key): r for r in old[old["flagged"] == 1].to_dict("records")} if not old.empty else {}
     after = {tuple(r[k] for k in key): r for r in new[new["flagged"] == 1].to_dict("records")}
-    unit_load = {(int(c), s, ch): loads.get(uid) for c, s, ch, uid in
-                 zip(units["cycle"], units["state"], units["chamber"], units["unit_id"])}
     current = {tuple(r[k] for k in key): r for r in new.to_dict("records")}
     events = []
     for k in sorted(set(before) | set(after), key=lambda k: (k[0], k[1], k[2], k[3])):
         b, a = before.get(k), after.get(k)
-        load = unit_load.get((int(k[0]), k[1], k[2]))
-        load = None if load is None or pd.isna(load) else int(load)
+        load = group_load.get((int(k[0]), k[2]))
         if a is not None and (b is None or b["direction"] != a["direction"]):
             event, direction, why = "raised", a["direction"], _why(a)
         elif b is not None and a is None:
@@ -389,9 +464,9 @@ def _unit_events(old: pd.DataFrame, new: pd.DataFrame, units, loads, stamp) -> l
             elif now.get("value") is None or not np.isfinite(now.get("value") or np.nan):
                 why = f"{k[3]} is now undefined ({now.get('reason') or 'no value'})"
             elif now.get("null_percentile") is not None and np.isfinite(now.get("null_percentile") or np.nan):
-                why = f"{k[3]} now {now['value']:+.3f} at percentile {now['null_percentile']:.3f} of its null"
+                why = f"{_measure_text(k[3], now['value'])} now, at percentile {now['null_percentile']:.3f} of its null"
             else:
-                why = f"{k[3]} now {now['value']:+.3f}" + (f" with p = {now['p_value']:.3g}" if now.get('p_value') is not None and np.isfinite(now['p_value']) else "")
+                why = f"{_measure_text(k[3], now['value'])} now" + (f" with p = {now['p_value']:.3g}" if now.get('p_value') is not None and np.isfinite(now['p_value']) else "")
         else:
             continue
         events.append({"scope": "unit", "cycle": int(k[0]), "state": k[1], "chamber": k[2],
@@ -401,7 +476,10 @@ def _unit_events(old: pd.DataFrame, new: pd.DataFrame, units, loads, stamp) -> l
     return events
 
 
-def _watch_events(old: pd.DataFrame, new: pd.DataFrame, last_load, stamp) -> list[dict]:
+def _watch_events(old: pd.DataFrame, new: pd.DataFrame, plan_cycles: dict[tuple, set],
+                  group_load: dict[tuple, int], stamp) -> list[dict]:
+    """Plans put on or taken off the watch list, each credited to the newest load among the
+    (cycle, chamber) groups of the plan's cycles (:func:`_group_loads`)."""
     key = ["state", "chamber", "plan_id"]
     before = {tuple(r[k] for k in key): r for r in old.to_dict("records")}
     after = {tuple(r[k] for k in key): r for r in new.to_dict("records")}
@@ -411,18 +489,43 @@ def _watch_events(old: pd.DataFrame, new: pd.DataFrame, last_load, stamp) -> lis
         if a is not None and (b is None or b["favours"] != a["favours"]):
             event, direction = "on watch", a["favours"]
             why = (f"cycles {a['cycles']} each flagged by at least two measures favouring {a['favours']} "
-                   f"({a['measures']}); seats at stake {a['seats_at_stake']}")
+                   f"({a['measures']}); {_stake_text(a['seats_at_stake'])}")
         elif b is not None and a is None:
             event, direction = "off watch", b["favours"]
             why = "fewer than two cycles of the plan are now flagged by two agreeing measures"
         else:
             continue
-        load = last_load.get((k[0], k[1]))
+        cycles = set(plan_cycles.get(k, ()))
+        for entry in (a, b):
+            if entry is not None:
+                cycles |= {int(c) for c in str(entry["cycles"]).split()}
+        credited = [group_load[(c, k[1])] for c in cycles if (c, k[1]) in group_load]
+        inferred = bool((a or b).get("inferred"))
+        plan = f"{k[2]} (inferred)" if inferred else k[2]
         events.append({"scope": "plan", "cycle": None, "state": k[0], "chamber": k[1], "plan_id": k[2],
                        "measure": None, "event": event, "direction": direction, "why": why,
-                       "load_id": None if load is None or pd.isna(load) else int(load),
-                       "text": f"{event}: {k[0]} {k[1]} plan {k[2]} (favours {direction}): {why}"})
+                       "load_id": max(credited) if credited else None,
+                       "text": f"{event}: {k[0]} {k[1]} plan {plan} (favours {direction}): {why}"})
     return events
+
+
+def _measure_text(measure: str, value: float) -> str:
+    """A measure's value as change texts write it: seats as a count of seats, signed measures with
+    their sign (positive favours a)."""
+    if measure == "seats":
+        return f"seats won by a {_seats(value)}"
+    return f"{measure} {value:+.3f}"
+
+
+def _seats(value: float) -> str:
+    """A seat count: whole seats without decimals, a tie's half seat as .5."""
+    return f"{value:.0f}" if float(value).is_integer() else f"{value:.1f}"
+
+
+def _stake_text(stake) -> str:
+    if stake is None or (isinstance(stake, float) and not np.isfinite(stake)):
+        return "seats at stake unknown"
+    return f"seats at stake {stake:+.1f} (positive favours a)"
 
 
 WATCH_CSV_COLUMNS = ["state", "chamber", "plan_id", "favours", "severity", "cycles", "measures",
@@ -431,29 +534,41 @@ WATCH_CSV_COLUMNS = ["state", "chamber", "plan_id", "favours", "severity", "cycl
 
 def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None,
                chamber: str | None = None) -> pd.DataFrame:
-    """What ``levelfield flags`` prints: flagged units, the watch list or the flag history."""
+    """What ``levelfield flags`` prints: flagged units, the watch list or the flag history.
+
+    Every view says whether the plan is inferred (``inferred`` = 1: no loaded era covers it, a
+    plan per decade was assumed). Cycles are integers (empty for plan-level events)."""
+    if show not in ("flags", "watch", "changes"):
+        raise ValueError(f"show must be flags, watch or changes, got {show!r}")
     where, params = [], []
     if chamber is not None:
-        where.append("chamber = ?")
+        where.append("x.chamber = ?")
         params.append(chamber)
     if show == "watch":
         if cycle is not None:
-            where.append("(' ' || cycles || ' ') LIKE ?")
+            where.append("(' ' || x.cycles || ' ') LIKE ?")
             params.append(f"% {cycle} %")
         clause = f"WHERE {' AND '.join(where)}" if where else ""
         return pd.read_sql_query(
-            f"SELECT {', '.join(WATCH_CSV_COLUMNS)} FROM watch {clause} "
-            "ORDER BY severity DESC, concurring DESC, state, chamber, plan_id", db.conn, params=params)
+            f"SELECT {', '.join('x.' + c for c in WATCH_CSV_COLUMNS)} FROM watch x {clause} "
+            "ORDER BY x.severity DESC, x.concurring DESC, x.state, x.chamber, x.plan_id", db.conn, params=params)
     if cycle is not None:
-        where.append("cycle = ?")
+        where.append("x.cycle = ?")
         params.append(cycle)
+    plan = ("LEFT JOIN plans p ON p.state = x.state AND p.chamber = x.chamber AND p.plan_id = x.plan_id")
     if show == "changes":
         clause = f"WHERE {' AND '.join(where)}" if where else ""
-        return pd.read_sql_query(
-            "SELECT id, at, scope, event, cycle, state, chamber, plan_id, measure, direction AS favours, why, load_id "
-            f"FROM flag_events {clause} ORDER BY id", db.conn, params=params)
-    where.append("flagged = 1")
-    return pd.read_sql_query(
-        "SELECT cycle, state, chamber, plan_id, measure, direction AS favours, basis, value, null_percentile, "
-        f"p_value FROM tails WHERE {' AND '.join(where)} ORDER BY cycle, state, chamber, measure",
-        db.conn, params=params)
+        frame = pd.read_sql_query(
+            "SELECT x.id, x.at, x.scope, x.event, x.cycle, x.state, x.chamber, x.plan_id, p.inferred, x.measure, "
+            f"x.direction AS favours, x.why, x.load_id FROM flag_events x {plan} {clause} ORDER BY x.id",
+            db.conn, params=params)
+        for col in ("cycle", "load_id", "inferred"):
+            frame[col] = frame[col].astype("Int64")
+        return frame
+    where.append("x.flagged = 1")
+    frame = pd.read_sql_query(
+        "SELECT x.cycle, x.state, x.chamber, x.plan_id, p.inferred, x.measure, x.direction AS favours, x.basis, "
+        f"x.value, x.null_percentile, x.p_value FROM tails x {plan} WHERE {' AND '.join(where)} "
+        "ORDER BY x.cycle, x.state, x.chamber, x.measure", db.conn, params=params)
+    frame["inferred"] = frame["inferred"].astype("Int64")
+    return frame

@@ -4,7 +4,8 @@
 ``state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source`` (``last_cycle`` may be
 empty for a plan still in force). Units not covered by a loaded era get an *inferred* plan: a new
 plan from each cycle ending in 2 (the first cycle after a decennial census), drawn by ``other``,
-marked ``inferred`` everywhere it shows.
+marked ``inferred`` everywhere it shows, with the id ``{state}-{chamber}-{start}`` unless a loaded
+plan of that state and chamber has that id (then ``...-inferred``): loaded plans are never replaced.
 """
 
 from __future__ import annotations
@@ -19,6 +20,7 @@ from monitor.errors import DataError, Problem, UsageError
 from monitor.ingest.fields import parse_cycle
 from monitor.ingest.native import header_problems
 from monitor.ingest.reader import csv_rows, decode, read_raw
+from monitor.ingest.records import normalise_chamber, normalise_state
 from store import transaction
 
 DRAWN_BY = ("party_a", "party_b", "split", "commission", "court", "other")
@@ -50,6 +52,8 @@ def read_plans(path: Path) -> pd.DataFrame:
             problems.append(Problem(raw.name, row, None, f"has {len(cells)} cells but the header has {len(names)} columns"))
             continue
         rec = {c: " ".join(v.split()) for c, v in zip(names, cells)}
+        # the same case rules as results files, so `qv` here matches results stored as `QV`
+        rec["state"], rec["chamber"] = normalise_state(rec["state"]), normalise_chamber(rec["chamber"])
         for col in ("state", "chamber", "plan_id"):
             if not rec[col]:
                 problems.append(Problem(raw.name, row, col, f"{col} is empty"))
@@ -127,6 +131,7 @@ def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.Dat
     eras = defaultdict(list)
     for p in plans.itertuples():
         eras[(p.state, p.chamber)].append(p)
+    loaded_ids = {key: {p.plan_id for p in ps} for key, ps in eras.items()}
     out = []
     inferred: dict[tuple, tuple] = {}
     for u in units[["cycle", "state", "chamber"]].itertuples(index=False):
@@ -136,7 +141,7 @@ def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.Dat
             out.append((match.plan_id, match.drawn_by, 0))
             continue
         start = census_start(int(u.cycle))
-        plan_id = f"{u.state}-{u.chamber}-{start}"
+        plan_id = inferred_plan_id(u.state, u.chamber, start, loaded_ids.get((u.state, u.chamber), set()))
         key = (u.state, u.chamber, plan_id)
         first, last = inferred.get(key, (u.cycle, u.cycle))
         inferred[key] = (min(first, u.cycle), max(last, u.cycle))
@@ -147,11 +152,30 @@ def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.Dat
     return result, [(s, c, p, int(f), int(l)) for (s, c, p), (f, l) in inferred.items()]
 
 
+def inferred_plan_id(state: str, chamber: str, start: int, loaded: set[str]) -> str:
+    """The id of the inferred plan starting in ``start``: ``{state}-{chamber}-{start}``, or, when a
+    loaded plan of the same state and chamber already has that id (a loaded era that does not
+    cover every cycle of its decade), ``{state}-{chamber}-{start}-inferred`` (then ``-inferred-2``,
+    ...): an inferred plan never takes a loaded plan's id."""
+    plan_id = f"{state}-{chamber}-{start}"
+    if plan_id not in loaded:
+        return plan_id
+    plan_id, k = f"{plan_id}-inferred", 2
+    while plan_id in loaded:
+        plan_id = f"{state}-{chamber}-{start}-inferred-{k}"
+        k += 1
+    return plan_id
+
+
 def write_inferred(conn, inferred: list[tuple]) -> None:
-    """Replace the inferred plans (rows from :func:`assign_plans`), inside the caller's transaction."""
+    """Replace the inferred plans (rows from :func:`assign_plans`), inside the caller's transaction.
+
+    Loaded plans are never touched: only ``inferred = 1`` rows are deleted, and the new rows are
+    plain inserts (their ids never equal a loaded plan's, see :func:`inferred_plan_id`; were one
+    to, the insert fails and the whole transaction rolls back rather than replace a loaded era)."""
     conn.execute("DELETE FROM plans WHERE inferred = 1")
     conn.executemany(
-        "INSERT OR REPLACE INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
+        "INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
         "VALUES (?, ?, ?, ?, ?, 'other', 'inferred: a new plan assumed from each cycle ending in 2', NULL, 1)",
         inferred,
     )

@@ -191,3 +191,132 @@ def test_a_correction_clears_flags_and_records_why_and_which_load(packed_federat
     after = pd.read_sql_query(
         "SELECT COUNT(*) AS n FROM tails WHERE state = ? AND cycle = 1992 AND flagged = 1", db.conn, params=[state])
     assert after["n"].iloc[0] < len(before)
+
+
+# -- tails follow the engine's undefined rules -------------------------------------------------
+
+def _hand_built_arrays():
+    """A hand-built pool of one cycle and chamber: eight ordinary states of 8 districts, plus
+    units the measures engine leaves (partly) undefined: QA every district uncontested (shares
+    imputed at 0.75 / 0.25), QB a single district, QC a sweep by party a (declination has no
+    angle), QZ two districts (mean-median identically 0). Invented data, not a check value."""
+    from monitor.inputs import UnitArrays
+
+    rng = np.random.default_rng(5)
+    spec = [(f"Q{chr(68 + k)}", np.clip(0.5 + rng.normal(0, 0.1, 8), 0.1, 0.9), False) for k in range(8)]
+    spec += [("QA", np.array([0.75] * 6 + [0.25] * 2), True),
+             ("QB", np.array([0.58]), False),
+             ("QC", np.array([0.55, 0.57, 0.6, 0.62, 0.66, 0.7, 0.56]), False),
+             ("QZ", np.array([0.4, 0.65]), False)]
+    spec.sort(key=lambda s: s[0])
+    units = pd.DataFrame({"cycle": 2012, "state": [s for s, _, _ in spec], "chamber": "federal",
+                          "unit_id": np.arange(1, len(spec) + 1),
+                          "districts_eligible": [len(x) for _, x, _ in spec],
+                          "inputs_hash": [f"h{k}" for k in range(len(spec))]})
+    unit = np.concatenate([np.full(len(x), k) for k, (_, x, _) in enumerate(spec)]).astype(np.int64)
+    shares = np.concatenate([x for _, x, _ in spec])
+    unc = np.concatenate([np.full(len(x), u) for _, x, u in spec])
+    state = np.concatenate([np.full(len(x), s, dtype=object) for s, x, _ in spec])
+    district = np.concatenate([np.arange(1, len(x) + 1).astype(str).astype(object) for _, x, _ in spec])
+    votes_a = np.round(shares * 1000.0)
+    return UnitArrays(units, unit, votes_a, 1000.0 - votes_a, unc, district, state)
+
+
+def test_tails_are_null_exactly_where_the_engine_stores_null_with_its_reason(config):
+    from monitor import measures as M
+    from monitor.flags import context_stats, pool_group
+
+    arrays = _hand_built_arrays()
+    members = arrays.units.index.to_numpy()
+    _, tails = pool_group(arrays, members, config, 2012, "federal")
+    engine = M.compute_measures(arrays.unit, arrays.votes_a, arrays.votes_b, arrays.uncontested, len(members),
+                                M.MeasureSettings(interval_draws=0), None)
+    engine = engine.assign(state=arrays.units["state"].to_numpy()[engine["unit"]]).set_index(["state", "measure"])
+    t = tails.set_index(["state", "measure"])
+    for state in arrays.units["state"]:
+        for name, engine_name in (("efficiency_gap", "efficiency_gap"), ("mean_median", "mean_median"),
+                                  ("declination", "declination"), ("partisan_bias", "partisan_bias")):
+            want, row = engine.loc[(state, engine_name)], t.loc[(state, name)]
+            if np.isnan(want["value"]):
+                assert pd.isna(row["value"]) and row["reason"] == want["reason"], (state, name, row.to_dict())
+                assert pd.isna(row.get("null_percentile")), (state, name)
+            else:
+                assert row["value"] == pytest.approx(want["value"], abs=1e-12), (state, name)
+    # the cases built in: every district uncontested, one district, a sweep, two districts
+    assert t.loc[("QA", "efficiency_gap"), "reason"].startswith("every district uncontested")
+    assert t.loc[("QB", "partisan_bias"), "reason"] == "fewer than 2 districts"
+    assert t.loc[("QC", "declination"), "reason"] == "party b won no seat"
+    assert t.loc[("QZ", "mean_median"), "reason"] == "identically 0 with fewer than 3 districts"
+    # seats are judged as an asymmetry measure: null for the all-uncontested and one-district units
+    assert pd.isna(t.loc[("QA", "seats"), "value"]) and t.loc[("QA", "seats"), "reason"].startswith("every district")
+    assert pd.isna(t.loc[("QB", "seats"), "value"])
+    assert t.loc[("QD", "seats"), "value"] == engine.loc[("QD", "seats_a"), "value"]
+
+    pvals = pd.DataFrame(columns=[*KEYS, "measure", "value", "p_value", "reason"])
+    districts = arrays.units.set_index(KEYS)["districts_eligible"]
+    judged_ = context_stats(judge(tails, pvals, districts, config))
+    null = judged_[judged_["value"].isna()]
+    assert len(null) >= 8
+    assert (null["flagged"] == 0).all()
+    assert null[["null_percentile", "cross_percentile", "robust_z", "robust_z_all"]].isna().all().all()
+    assert judged_.loc[judged_["state"] == "QA", "flagged"].sum() == 0  # the all-uncontested unit
+    # the cross-state context is taken over the defined values only
+    from monitor.pool import cross_state_percentile
+    eg = judged_[(judged_["measure"] == "efficiency_gap") & judged_["value"].notna()]
+    np.testing.assert_allclose(eg["cross_percentile"], cross_state_percentile(eg["value"], np.zeros(len(eg))))
+
+
+def test_sample_history_tails_are_null_where_the_measures_are(sample_workspace):
+    db = sample_workspace.open_store()
+    rows = pd.read_sql_query(
+        "SELECT t.measure, t.value, t.null_percentile, t.cross_percentile, t.robust_z, t.flagged, "
+        "t.reason AS tail_reason, m.value AS measure_value, m.reason AS measure_reason "
+        "FROM tails t JOIN measures m ON m.cycle = t.cycle AND m.state = t.state AND m.chamber = t.chamber "
+        "AND m.measure = CASE t.measure WHEN 'seats' THEN 'seats_a' WHEN 'lopsided' THEN 'lopsided_t' "
+        "ELSE t.measure END", db.conn)
+    undefined = rows[rows["measure_value"].isna()]
+    assert len(undefined) > 100  # the sample history has small states, sweeps and short delegations
+    assert undefined[["value", "null_percentile", "cross_percentile", "robust_z"]].isna().all().all()
+    assert (undefined["flagged"] == 0).all()
+    assert (undefined["tail_reason"] == undefined["measure_reason"]).all()
+
+
+# -- flag history credits the load that caused the change ---------------------------------------
+
+def _two_state_rows(state, shares, cycles=(2012, 2014), chamber="federal"):
+    """Native rows of one invented state, 1,000 two-party votes per district (Harbour = a)."""
+    rows = []
+    for cycle in cycles:
+        for d, x in enumerate(shares, 1):
+            rows.append([cycle, state, chamber, str(d), "Harbour", f"H{state}{d}", int(round(1000 * x))])
+            rows.append([cycle, state, chamber, str(d), "Upland", f"U{state}{d}", int(round(1000 * (1 - x)))])
+    return rows
+
+
+#: QY: a wins five districts narrowly and loses one badly (statewide 50%); QX before the
+#: correction: spread 30-70% (a delegation drawn from it at 50% cannot give a five seats), after:
+#: QY's own pattern (every delegation at 50% gives a five seats). Invented data.
+QY = [0.53] * 5 + [0.35]
+QX_BEFORE = [0.30, 0.40, 0.45, 0.55, 0.60, 0.70]
+QX_AFTER = [0.55] * 5 + [0.25]
+
+
+def test_a_correction_in_one_state_is_credited_for_the_flag_changes_it_causes_elsewhere(lf):
+    from tests.conftest import long_csv
+
+    lf.configure("[pool]\ndraws = 500\n[measures]\ninterval_draws = 20\n")
+    lf("load", lf.write("first.csv", long_csv(_two_state_rows("QY", QY) + _two_state_rows("QX", QX_BEFORE))))
+    lf("compute")
+    assert lf.rows("SELECT favours FROM watch WHERE state = 'QY'") == [("a",)]
+    assert lf.rows("SELECT COUNT(*) FROM tails WHERE state = 'QY' AND measure = 'seats' AND flagged = 1") == [(2,)]
+    lf("load", lf.write("fix.csv", long_csv(_two_state_rows("QX", QX_AFTER))))  # load #2: QX only
+    lf("compute")
+    assert lf.rows("SELECT DISTINCT load_id FROM units WHERE state = 'QY' AND superseded_by IS NULL") == [(1,)]
+    # QY's districts did not change; the correction of QX moved QY's null and cleared its seats flag
+    cleared = lf.rows("SELECT cycle, load_id FROM flag_events WHERE state = 'QY' AND measure = 'seats' "
+                      "AND event = 'cleared' ORDER BY cycle")
+    assert cleared == [(2012, 2), (2014, 2)]
+    later = lf.rows("SELECT scope, load_id FROM flag_events WHERE state = 'QY' AND id > "
+                    "(SELECT MAX(id) FROM flag_events WHERE load_id = 1)")
+    assert later and {load for _, load in later} == {2}
+    assert "plan" in {scope for scope, _ in later}  # QY's watch entry changed too: credited to load #2

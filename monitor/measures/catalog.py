@@ -99,7 +99,9 @@ MEASURES: list[MeasureDoc] = [
     ),
     MeasureDoc(
         "symmetry_bias", "Symmetry bias (band average)",
-        "mean over v in [1/2 - w, 1/2 + w] of [S(v) - (1 - S(1 - v))] / 2, exact on the step function",
+        "mean over v in [1/2 - w, 1/2 + w] of [S(v) - (1 - S(1 - v))] / 2, exact on the step function; "
+        "halved (Gelman & King's form) rather than the undivided difference, so that it is on the scale "
+        "of partisan bias and equals it as w shrinks to 0 (the undivided average is twice this value)",
         FAVOURS_A, "Gelman & King, AJPS 38 (1994) (band and form from memory)", signed=True,
     ),
     MeasureDoc(

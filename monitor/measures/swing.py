@@ -14,7 +14,12 @@ H = 1 above 0, 0 below, 1/2 at 0 (ties within ``segments.TIE_TOL``).  Shares are
 * partisan bias ``PB = S(1/2) - 1/2``;
 * symmetry bias ``mean over v in [1/2 - w, 1/2 + w] of [S(v) - (1 - S(1 - v))] / 2``,
   integrated exactly on the step function; as the band is symmetric about 1/2 this equals
-  ``mean_v S(v) - 1/2 = (1/N) sum_i clip((x_i - V + w) / 2w, 0, 1) - 1/2``; w = 0 gives PB;
+  ``mean_v S(v) - 1/2 = (1/N) sum_i clip((x_i - V + w) / 2w, 0, 1) - 1/2``; w = 0 gives PB.
+  **Departure from the issue text**, which asks for the average of the undivided difference
+  ``S(v) - (1 - S(1 - v))``: we halve it, as Gelman & King's symmetric bias does [3]_, so that the
+  measure is on the scale of partisan bias and equals PB exactly as the band shrinks to 0
+  (at v = 1/2 the undivided difference is ``2 S(1/2) - 1 = 2 PB``).  The undivided average is
+  exactly twice the stored value; nothing else (sign, definedness) differs;
 * responsiveness ``[S(v0 + h) - S(v0 - h)] / 2h`` (at the observed vote v0 = V it counts the
   districts within h of 50 %: ``#{|x_i - 1/2| < h} / (2 h N)``, boundary districts 1/2);
 * seats at the flipped vote ``N S(1 - V)``.
@@ -131,7 +136,9 @@ def symmetry_bias(unit, votes_a, votes_b, n_units: int, band: float = 0.05,
                   reference: str = "vote_weighted") -> np.ndarray:
     """Mean of ``[S(v) - (1 - S(1 - v))] / 2`` over ``v in [1/2 - band, 1/2 + band]`` [3]_.
 
-    Integrated exactly on the step function S.  Sign: positive favours party a.
+    Integrated exactly on the step function S.  Sign: positive favours party a.  Halved (Gelman
+    & King's form, not the undivided difference of the issue text) so that ``band = 0`` gives
+    partisan bias; the undivided average is twice this value.
 
     Examples
     --------

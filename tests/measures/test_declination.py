@@ -23,8 +23,10 @@ def test_worked_example_and_its_mirror():
 
 
 def test_undefined_when_a_party_wins_every_seat():
-    # Warrington (2018): no angle for a party without seats; (0.6, 0.7) and (0.2, 0.4, 0.1)
-    # and a single district are undefined (NaN), never 0.
+    # Warrington (2018), "Quantifying Gerrymandering Using the Vote Distribution", Election Law
+    # Journal 17(1): no angle for a party without seats (that the paper leaves this case
+    # undefined is from memory; derived here: the angle divides by the party's seat count k = 0).
+    # (0.6, 0.7) and (0.2, 0.4, 0.1) and a single district are undefined (NaN), never 0.
     dec = declination(*from_shares([0.6, 0.7], [0.2, 0.4, 0.1], [0.55]))
     assert np.isnan(dec).all()
 

@@ -20,7 +20,10 @@ MM1 = [0.30, 0.40, 0.45, 0.47, 0.80]
 
 
 def test_worked_example():
-    # COMPUTED (methods reference, MM-1): mean 0.484, median 0.45, MM = -0.034.
+    # Definition: median minus mean of the district shares, McDonald & Best (2015), "Unfair Partisan
+    # Gerrymanders in Politics and Law: A Diagnostic Applied to Six Cases", Election Law Journal
+    # 14(4) (abstract). Value hand-computed from that definition, not a published figure:
+    # mean 0.484, median 0.45, MM = -0.034.
     assert mean_median(*from_shares(MM1))[0] == pytest.approx(-0.034, abs=1e-12)
 
 
@@ -47,8 +50,8 @@ def test_z_and_p_of_worked_example():
 
 def test_z_is_standard_normal_under_the_null():
     # Asymptotic theory (derived above): for i.i.d. normal shares z ~ N(0, 1).  With N = 401
-    # the finite-N factor is 0.756 vs 0.7555 (methods Monte Carlo table), so SD(z) = 1 to
-    # within 0.1 %; 4000 units give a Monte Carlo SE of 0.011 on SD(z) and 0.0034 on the 5 %
+    # the finite-N factor is 0.756 vs 0.7555 (a Monte Carlo estimate with 200,000 normal
+    # samples, not a published figure), so SD(z) = 1 to within 0.1 %; 4000 units give a Monte Carlo SE of 0.011 on SD(z) and 0.0034 on the 5 %
     # rejection rate.  Tolerances: 0.035 and 0.012 (about 3.5 SE).  A wrong factor (e.g. the
     # median's alone, 1.2533) would give SD(z) = 0.6.
     rng = np.random.default_rng(2024)

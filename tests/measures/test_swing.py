@@ -20,15 +20,20 @@ MM1 = [0.30, 0.40, 0.45, 0.47, 0.80]
 
 
 def test_partisan_bias_worked_example():
-    # COMPUTED (methods reference, PB-1): shift by the mean 0.484 (equal turnout, so the
-    # vote-weighted share is the mean): only the 0.80 district is above 0.484, S(1/2) = 1/5,
-    # PB = -0.30 (exact).
+    # Definition: partisan bias S(1/2) - 1/2 under uniform swing, Tufte (1973), "The Relationship
+    # between Seats and Votes in Two-Party Systems", APSR 67(2):540-554, and King & Browning
+    # (1987), APSR 81(4):1251-1273. Value hand-computed from that definition, not a published
+    # figure: shift by the mean 0.484 (equal turnout, so the vote-weighted share is the mean):
+    # only the 0.80 district is above 0.484, S(1/2) = 1/5, PB = -0.30 (exact).
     assert partisan_bias(*from_shares(MM1))[0] == pytest.approx(-0.30, abs=1e-15)
 
 
 def test_symmetry_bias_worked_example_exact_integration():
-    # COMPUTED (methods reference, PB-2): mean of [S(v) - (1 - S(1 - v))] / 2 over
-    # [0.45, 0.55], integrated exactly: S = 1/5 below 0.514, 2/5 to 0.534, 3/5 above;
+    # Definition: symmetric bias [S(v) - (1 - S(1 - v))] / 2 averaged over a band around 50 %,
+    # Gelman & King (1994), "A Unified Method of Evaluating Electoral Systems and Redistricting
+    # Plans", AJPS 38(2):514-554 (the halved form and the 45-55 % band from memory). Value
+    # hand-computed from that definition, not a published figure: over [0.45, 0.55], integrated
+    # exactly: S = 1/5 below 0.514, 2/5 to 0.534, 3/5 above;
     # mean S = (0.2 * 0.064 + 0.4 * 0.02 + 0.6 * 0.016) / 0.1 = 0.304, so the average is
     # 0.304 - 1/2 = -0.196 (a 101-point grid would give -0.1950).
     assert symmetry_bias(*from_shares(MM1), band=0.05)[0] == pytest.approx(-0.196, abs=1e-12)
@@ -42,7 +47,9 @@ def test_symmetry_bias_band_zero_is_partisan_bias_and_small_band_converges():
 
 
 def test_responsiveness_worked_example():
-    # COMPUTED (methods reference, RS-1): (S(0.55) - S(0.45)) / 0.10 = (3/5 - 1/5) / 0.1 = 4.0.
+    # Definition: responsiveness (swing ratio) as the slope of the seats-votes curve, Tufte (1973),
+    # APSR 67(2):540-554. Value hand-computed from the central difference, not a published figure:
+    # (S(0.55) - S(0.45)) / 0.10 = (3/5 - 1/5) / 0.1 = 4.0.
     assert responsiveness(*from_shares(MM1), h=0.05, at=0.5)[0] == pytest.approx(4.0, abs=1e-12)
 
 

@@ -59,7 +59,10 @@ def _plan(win_a_shares, win_b_shares):
 
 
 def test_lopsided_worked_example_sign_flipped():
-    # COMPUTED with scipy.stats.ttest_ind (methods reference values): X = a's winning shares,
+    # Test definition: Wang (2016), "Three Tests for Practical Evaluation of Partisan
+    # Gerrymandering", 68 Stanford Law Review 1263 (the lopsided-wins t-test; which t variant he
+    # used is from memory, so both are checked). Values computed with scipy.stats.ttest_ind
+    # (reference library), not published figures: X = a's winning shares,
     # Y = b's winning shares; raw pooled t = -8.98146 (df 7, p 4.3233e-05), raw Welch
     # t = -7.15030 (df 2.56204, p 0.0093223).  b's wins are the lopsided ones, a benefits: the
     # stored statistic is the negated raw t, +8.98146 / +7.15030.
