@@ -22,7 +22,10 @@ import store
 from monitor.config import Config, load_config
 from monitor.ingest import load_file
 
-XSS = "<script>alert(1)</script>"
+# Markup as a state code. Upper case because the loader stores state codes in upper case (so the
+# code stays the same through the load); HTML tag names are case-insensitive, so it would still be
+# a script element if any page let it through.
+XSS = "<SCRIPT>ALERT(1)</SCRIPT>"
 STATES = ("KA", "LU", "MO", XSS)
 STATE_NAMES = {"KA": "Karrowen", "LU": "Lunmere", "MO": "Mossvale"}
 SEATS = {"KA": 8, "LU": 7, "MO": 6, XSS: 6}
@@ -147,6 +150,8 @@ def fill_derived(db: sqlite_utils.Database, where: str = "", params=(), stamp: d
             "seat_share": (0.5 + g.normal(0, 0.1), None, None, None),
             "seats_a": (float(round(n / 2 + lean * 20)), None, None, None),
             "districts": (float(n), None, None, None),
+            "uncontested": (float(cycle in (2018, 2022)), None, None, None),  # the fixture's one uncontested seat
+            "competitive": (float(g.integers(0, n // 2 + 1)), None, None, None),
             "efficiency_gap": (eg, eg - 0.04, eg + 0.04, None),
             "efficiency_gap_seats": (eg * n, None, None, None),
             "mean_median": (lean / 2 + g.normal(0, 0.01), None, None, 0.2 if lean == 0 else 0.01),
@@ -250,3 +255,13 @@ def correct_state(fx: SiteFixture, state: str = "LU", cycle: int = 2022) -> None
                      "'a correction moved partisan_bias into the tail', ?, NULL)",
                      [cycle, state, _plan_id(state, "federal", cycle),
                       (T0 + dt.timedelta(days=31)).isoformat(timespec="seconds")])
+
+
+def add_cycle(fx: SiteFixture, cycle: int, chambers: tuple[str, ...] = ("federal",)) -> None:
+    """A later cycle of only some chambers (a partial cycle, as when the federal results arrive
+    first), loaded through the real loader, with its derived rows (invented)."""
+    rows = [r for r in cycle_rows(cycle) if r[2] in chambers]
+    path = fx.root / "files" / f"{cycle}_{'_'.join(chambers)}.csv"
+    path.write_text(_csv(rows), encoding="utf-8")
+    load_file(fx.db, path, fx.config, source="invented partial cycle", now=T0 + dt.timedelta(days=40))
+    fill_derived(fx.db, "AND u.cycle = ?", (cycle,), stamp=T0 + dt.timedelta(days=41))

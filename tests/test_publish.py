@@ -177,7 +177,8 @@ def test_state_name_with_markup_is_escaped_everywhere(fx, site):
     out, _ = site
     data = collect(fx.db, fx.config)
     xss_page = out / Views(data).state_path(sf.XSS, "federal")
-    escaped = "&lt;script&gt;alert(1)&lt;/script&gt;"
+    escaped = html.escape(sf.XSS, quote=False)
+    assert escaped == "&lt;SCRIPT&gt;ALERT(1)&lt;/SCRIPT&gt;"
     for page in html_pages(out):
         text = page.read_text(encoding="utf-8")
         assert sf.XSS not in text, page
@@ -258,10 +259,11 @@ def test_footer_has_caution_and_provenance(fx, site):
     for page in html_pages(out):
         footer = page.read_text(encoding="utf-8").split('<footer class="footer">')[1]
         assert "Indicators, not legal findings" in footer and "Defer to counsel and the courts" in footer
-        if page.name != P.METHODS:
-            assert any(s in footer for s in sha.values()), page
-    home = (out / P.HOME).read_text(encoding="utf-8").split('<footer class="footer">')[1]
-    assert all(s in home for s in sha.values())
+        assert any(s in footer for s in sha.values()), page  # every page, the methods page too
+        assert re.search(r"loaded \d{4}-\d{2}-\d{2}", footer), page  # when
+    for name in (P.HOME, P.METHODS):  # the pages about everything list every load
+        footer = (out / name).read_text(encoding="utf-8").split('<footer class="footer">')[1]
+        assert all(s in footer for s in sha.values()), name
 
 
 def test_methods_page_documents_every_measure_and_setting(fx, site):
@@ -525,9 +527,10 @@ def test_correcting_one_state_rewrites_only_its_pages_and_the_national_ones(tmp_
         assert not changed & others, changed & others
         for page in others:
             assert after[page] == before[page]
-        national = {P.HOME, P.STATES, P.CYCLES, P.WATCH, P.DOWNLOADS, P.FEED, P.cycle_page(2022)}
+        # the methods page lists every load in its footer, so a new load changes it too
+        national = {P.HOME, P.STATES, P.CYCLES, P.WATCH, P.DOWNLOADS, P.FEED, P.METHODS, P.cycle_page(2022)}
         assert changed - lu <= national | {p for p in after if p.startswith("downloads/")}
-        assert P.cycle_page(2016) not in changed and P.METHODS not in changed
+        assert P.cycle_page(2016) not in changed
         assert not {p for p in changed if p.startswith("assets/")}
         assert {P.HOME, P.cycle_page(2022), "downloads/results.csv"} <= changed
     finally:
@@ -641,6 +644,20 @@ def test_sample_history_site(sample_workspace, tmp_path):
             if p.point == "even vote":
                 assert p.seat_share - 0.5 == pytest.approx(m[key + ("partisan_bias",)], abs=1e-9), key
         assert checked >= 30
+        # one vote share on a state page: the seats-and-votes chart's is the stored measure's, and
+        # the national pool conditions on it; its seat share is the one the pool's excess compares
+        pool = data.pool.set_index(["cycle", "state", "chamber"])
+        compared = 0
+        for state, chamber in data.pairs():
+            for r in v._seats_over_time(state, chamber, data.units).itertuples():
+                key = (r.cycle, state, chamber)
+                assert r.vote_share == pytest.approx(m[key + ("vote_share",)], abs=1e-12), key
+                assert r.seat_share == pytest.approx(m[key + ("seat_share",)], abs=1e-12), key
+                if key in pool.index and not pd.isna(pool.loc[key, "vote_share"]):
+                    assert r.vote_share == pytest.approx(pool.loc[key, "vote_share"], abs=1e-9), key
+                    assert r.seat_share == pytest.approx(pool.loc[key, "seats_a"] / pool.loc[key, "districts"]), key
+                    compared += 1
+        assert compared > 500
         watch = (out / P.WATCH).read_text(encoding="utf-8")
         for plan in data.watch["plan_id"]:
             assert plan in watch
@@ -658,3 +675,464 @@ def test_docstring_examples_hold():
     for module in (paths, downloads):
         result = doctest.testmod(module)
         assert result.attempted and not result.failed, module.__name__
+
+
+# --- chart readability (spec-level: what each chart asks the renderer to draw) ---------------------
+def _specs_named(out: Path, marker: str) -> list[tuple[str, dict]]:
+    return [(where, spec) for where, spec in chart_specs(out) if marker in where.split("#")[1]]
+
+
+def _layers_on(spec: dict, dataset: str) -> list[dict]:
+    return [layer for layer in spec["layer"] if layer.get("data", {}).get("name") == dataset]
+
+
+def _mark(layer: dict) -> dict:
+    return layer["mark"] if isinstance(layer["mark"], dict) else {"type": layer["mark"]}
+
+
+def test_seats_votes_curve_points_are_distinguishable_and_keyed(site):
+    """The observed, flipped-vote and even-vote points lie close together near 50%: each gets its
+    own shape, size and fill, a direct label, a legend entry and a sentence in the description;
+    the curve and the seats = votes diagonal get legend entries too."""
+    out, _ = site
+    specs = _specs_named(out, "chart-swing-spec")
+    assert specs
+    names = ["observed", "flipped vote", "even vote"]
+    for where, spec in specs:
+        points = [layer for layer in _layers_on(spec, "points") if _mark(layer)["type"] == "point"]
+        assert len(points) == 1, where
+        enc = points[0]["encoding"]
+        for channel in ("shape", "size", "color", "fill"):
+            scale = enc[channel]["scale"]
+            assert enc[channel]["field"] == "point" and scale["domain"] == names, (where, channel)
+            assert enc[channel].get("legend", {}) is not None, (where, channel)  # shown in the key
+            if channel != "fill":  # each of shape, size and colour tells all three apart on its own
+                assert len(set(map(str, scale["range"]))) == 3, (where, channel)
+        fills = dict(zip(names, enc["fill"]["scale"]["range"]))
+        assert fills["flipped vote"] != "transparent" and fills["observed"] == fills["even vote"] == "transparent", where
+        sizes = dict(zip(enc["size"]["scale"]["domain"], enc["size"]["scale"]["range"]))
+        assert sizes["observed"] > sizes["even vote"] > sizes["flipped vote"], where  # nested
+        assert enc["order"]["field"] == "z", where  # the large ring first, open marks over the filled one
+        z = {p["point"]: p["z"] for p in spec["datasets"]["points"]}
+        assert z["even vote"] > z["flipped vote"] > z["observed"], where
+        # one direct label per point, each offset in its own direction
+        labels = {}
+        for layer in _layers_on(spec, "points"):
+            if _mark(layer)["type"] == "text" and _mark(layer).get("color") != "#ffffff":
+                name = layer["transform"][0]["filter"]["equal"]
+                labels[name] = (_mark(layer)["dx"], _mark(layer)["dy"])
+        assert set(labels) == set(names) and len(set(labels.values())) == 3, (where, labels)
+        # the lines have legend entries: the curve and the diagonal, told apart by stroke and dash
+        keyed = [layer for layer in spec["layer"] if "strokeDash" in layer.get("encoding", {})]
+        assert len(keyed) == 2, where
+        domain = keyed[0]["encoding"]["strokeDash"]["scale"]["domain"]
+        assert any("diagonal" in d for d in domain) and any("curve" in d for d in domain), where
+        dashes = keyed[0]["encoding"]["strokeDash"]["scale"]["range"]
+        assert dashes[0] != dashes[1], where
+    text = "".join(page.read_text(encoding="utf-8") for page in html_pages(out) if "state" in page.parts)
+    for words in ("open circle", "filled diamond", "open square", "diagonal"):
+        assert words in text, words
+
+
+def test_era_labels_sit_in_a_band_above_the_data(site):
+    """Plan-era labels are their own text layer, placed at a fixed pixel height above the plot
+    (negative y), each cut to its era's drawn width; nothing of them is drawn over the data."""
+    out, _ = site
+    checked = 0
+    for where, spec in chart_specs(out):
+        if "eras" not in spec.get("datasets", {}):
+            continue
+        texts = [layer for layer in _layers_on(spec, "eras") if _mark(layer)["type"] == "text"]
+        assert len(texts) == 1, where
+        label = texts[0]
+        y = label["encoding"]["y"]
+        assert set(y) == {"value"} and y["value"] < 0, (where, y)
+        assert "datum.x2" in label["mark"]["limit"]["expr"] and "datum.x" in label["mark"]["limit"]["expr"], where
+        rects = [layer for layer in _layers_on(spec, "eras") if _mark(layer)["type"] == "rect"]
+        assert rects and all(r["encoding"]["y"]["value"] <= y["value"] for r in rects), where  # the band is shaded
+        checked += 1
+    assert checked >= 10
+
+
+def test_cycle_axes_never_crowd_their_labels(site):
+    """Every cycle axis has explicit ticks at least two years apart and at most seven of them,
+    labels centred on their ticks (not pushed flush, which made '2020' and '2025' touch) and
+    overlap handling switched on."""
+    out, _ = site
+    checked = 0
+    for where, spec in chart_specs(out):
+        for layer in spec["layer"]:
+            x = layer.get("encoding", {}).get("x", {})
+            if x.get("field") != "cycle":
+                continue
+            axis, (lo, hi) = x["axis"], x["scale"]["domain"]
+            assert axis["labelOverlap"] in (True, "greedy", "parity"), where
+            assert axis["labelFlush"] is False, where
+            values = axis["values"]
+            assert 1 <= len(values) <= 7 and all(lo < v < hi for v in values), (where, values)
+            assert all(b - a >= 2 for a, b in zip(values, values[1:])), (where, values)
+            checked += 1
+    assert checked >= 10
+
+
+def test_long_cycle_axes_get_decade_ticks():
+    from monitor.publish.charts import _cycle_ticks
+
+    assert _cycle_ticks(1971, 2027) == [1980, 1990, 2000, 2010, 2020]
+    assert _cycle_ticks(2015, 2023) == [2016, 2018, 2020, 2022]
+    assert _cycle_ticks(2021, 2023) == [2022]
+
+
+def test_axis_titles_fit_the_narrow_charts(site):
+    """Axis titles of the ranked and distribution charts fit a chart a third of the page wide: no
+    line longer than 45 characters (about 330 px of 11-12 px text, the width of one chart in the
+    grid of the cycle pages and the home page at 800 to 1280 px: a layout budget of ours); the
+    direction goes on a line of its own. Full-width charts there get 70 characters a line."""
+    out, _ = site
+    checked = 0
+    for where, spec in chart_specs(out):
+        page, cid = where.split("#")
+        if not (page.startswith("cycle") or page == P.HOME):
+            continue
+        budget = 45 if cid.startswith(("chart-rank-", "chart-dist-")) else 70
+        for layer in spec["layer"]:
+            for channel in ("x", "y"):
+                title = layer.get("encoding", {}).get(channel, {}).get("title")
+                lines = title if isinstance(title, list) else [title] if title else []
+                for line in lines:
+                    assert len(line) <= budget, (where, line)
+                    checked += 1
+                if isinstance(title, list):
+                    assert any("favours" in line or "expected" in line for line in title[1:]), (where, title)
+    assert checked > 20
+
+
+def test_pool_chart_key_shows_the_marks_drawn(site):
+    """The expected-seats chart draws an interval bar, an upright tick and a dot: its key lists
+    all three, the tick as an upright bar (not a dot), each in the colour it is drawn in."""
+    out, _ = site
+    specs = _specs_named(out, "chart-pool-")
+    assert specs
+    for where, spec in specs:
+        layers = spec["layer"]
+        keyed = [layer for layer in layers if "shape" in layer["encoding"]]
+        assert len(keyed) == 1, where
+        enc = keyed[0]["encoding"]
+        shapes = dict(zip(enc["shape"]["scale"]["domain"], enc["shape"]["scale"]["range"]))
+        colours = dict(zip(enc["color"]["scale"]["domain"], enc["color"]["scale"]["range"]))
+        assert enc["shape"]["scale"]["domain"] == enc["color"]["scale"]["domain"] and len(shapes) == 3, where
+        by_mark = {_mark(layer)["type"]: layer for layer in layers}
+        assert set(by_mark) == {"rule", "tick", "point"}, where
+        expected = next(k for k in shapes if k.startswith("expected"))
+        interval = next(k for k in shapes if "interval" in k)
+        assert shapes[expected] not in ("circle", "square", "diamond") and shapes[expected].startswith("M"), where
+        assert colours[expected] == _mark(by_mark["tick"])["color"], where
+        assert colours[interval] == _mark(by_mark["rule"])["color"], where
+
+
+def test_cycle_page_key_matches_the_ranked_bars(fx, site):
+    out, _ = site
+    page = (out / P.cycle_page(sf.CYCLES[-1])).read_text(encoding="utf-8")
+    assert re.search(r'<p class="key key-bars"', page)
+    css = (out / "assets" / "style.css").read_text(encoding="utf-8")
+    rule = re.search(r"\.key-bars \.mark \{([^}]*)\}", css)
+    assert rule and "clip-path: none" in rule.group(1) and "border-radius: 0" in rule.group(1)
+    # the point charts keep the triangles and dots of their marks
+    home = (out / P.HOME).read_text(encoding="utf-8")
+    assert '<p class="key" aria-hidden="true">' in home
+
+
+def test_setting_and_measure_names_are_not_broken_inside(site):
+    out, _ = site
+    page = (out / P.METHODS).read_text(encoding="utf-8")
+    assert '<td class="ident"><code>uncontested.policy</code></td>' in page
+    assert re.search(r'<code class="small ident">efficiency_gap</code>', page)
+    css = (out / "assets" / "style.css").read_text(encoding="utf-8")
+    rule = re.search(r"code\.ident, \.ident code \{([^}]*)\}", css)
+    assert rule and "white-space: nowrap" in rule.group(1) and "overflow-wrap: normal" in rule.group(1)
+
+
+def test_chart_docstring_examples_hold():
+    import doctest
+
+    from monitor.publish import charts
+
+    result = doctest.testmod(charts)
+    assert result.attempted and not result.failed
+
+
+# --- national aggregates, partial cycles, corrections, watch-list details -------------------------
+def _desc(page_text: str, chart_id: str) -> str:
+    found = re.search(rf'<p class="chart-desc" id="chart-{chart_id}-desc">(.*?)</p>', page_text, re.S)
+    assert found, chart_id
+    return html.unescape(" ".join(found.group(1).split()))
+
+
+def _national_rows(page_text: str) -> list[tuple[str, ...]]:
+    """The rows of the national summary tables of a page, as the text of their cells."""
+    rows = []
+    for table in re.findall(r'<table class="national">(.*?)</table>', page_text, re.S):
+        for row in re.findall(r"<tbody>(.*?)</tbody>", table, re.S)[0].split("</tr>"):
+            cells = re.findall(r"<td>(.*?)</td>", row, re.S)
+            if cells:
+                rows.append(tuple(html.unescape(" ".join(re.sub(r"<[^>]+>", "", c).split())) for c in cells))
+    return rows
+
+
+HIST_TEXT = re.compile(
+    r"Histogram of the (?P<total>\d+) districts of (?P<cycle>\d+) \(.+?\) that enter the measures, .*? "
+    r"At their voted share: (?P<above>\d+) lie above 50% \(won by [^)]+\), (?P<below>\d+) below \(won by [^)]+\)"
+    r"(?:, (?P<tied>\d+) at exactly 50%)?\. "
+    r"(?:Uncontested: (?P<imputed>\d+) districts are shown at their imputed share \((?P<imp_a>\d+) won by [^,]+, "
+    r"(?P<imp_b>\d+) by [^)]+\)\. |No district is shown at an imputed share\. )"
+    r"In all, .+? won (?P<won_a>\d+) and .+? won (?P<won_b>\d+) of these (?P<shown>\d+) districts\.")
+
+
+def test_histogram_description_counts_what_the_chart_shows(fx, site):
+    """The text of every national histogram against the contests it is drawn from: the districts
+    shown, those above and below 50% at their voted share, the uncontested ones (at their imputed
+    share) counted apart by who won them, and the seats each party won among them (counted from
+    the contests' winners, not from the shares)."""
+    out, _ = site
+    data = collect(fx.db, fx.config)
+    c = data.contests[np.isfinite(data.contests["share_used"].to_numpy(float))]
+    checked = 0
+    for cycle in data.cycles:
+        page = (out / P.cycle_page(cycle)).read_text(encoding="utf-8")
+        for chamber in data.chambers:
+            rows = c[(c["cycle"] == cycle) & (c["chamber"] == chamber)]
+            if rows.empty:
+                continue
+            text = _desc(page, f"hist-{data.chamber_slugs[chamber]}")
+            m = HIST_TEXT.search(text)
+            assert m, text
+            got = {k: int(v) for k, v in m.groupdict().items() if v is not None}
+            voted, imputed = rows[~rows["imputed"]], rows[rows["imputed"]]
+            assert got["total"] == got["shown"] == len(rows)
+            assert got["above"] == int((voted["share_used"] > 0.5).sum())
+            assert got["below"] == int((voted["share_used"] < 0.5).sum())
+            assert got.get("imputed", 0) == len(imputed)
+            assert got.get("imp_a", 0) == int((imputed["winner"] == "a").sum())
+            assert got.get("imp_b", 0) == int((imputed["winner"] == "b").sum())
+            assert got["won_a"] == rows["seats_a"].sum() and got["won_b"] == rows["seats_b"].sum()
+            # and the chart draws exactly those districts
+            spec = next(s for w, s in chart_specs(out) if w == f"{P.cycle_page(cycle)}#chart-hist-{data.chamber_slugs[chamber]}-spec")
+            assert sum(b["districts"] for b in spec["datasets"]["bins"]) == len(rows)
+            checked += 1
+    assert checked == len(sf.CYCLES) * 2
+    assert any(int(x) > 0 for x in re.findall(r"Uncontested: (\d+)", (out / P.HOME).read_text(encoding="utf-8")))
+
+
+def test_every_cycle_page_shows_the_national_aggregates(fx, site):
+    """Histogram, summary table and excess seats by who drew the plan on every cycle page, from
+    monitor.national; the home page shows the same rows for its cycles."""
+    out, _ = site
+    data = collect(fx.db, fx.config)
+    assert not data.national.empty
+    home = _national_rows((out / P.HOME).read_text(encoding="utf-8"))
+    for cycle in data.cycles:
+        page = (out / P.cycle_page(cycle)).read_text(encoding="utf-8")
+        for chamber in data.chambers:
+            slug = data.chamber_slugs[chamber]
+            assert f'id="chart-hist-{slug}"' in page and f'id="chart-drawer-{slug}"' in page, (cycle, chamber)
+            n = data.national[(data.national["cycle"] == cycle) & (data.national["chamber"] == chamber)].iloc[0]
+            by = data.drawers[(data.drawers["cycle"] == cycle) & (data.drawers["chamber"] == chamber)]
+            assert by["excess_seats"].sum() == pytest.approx(n["excess_seats"])
+            assert _desc(page, f"drawer-{slug}").count(" over ") == len(by)
+        rows = _national_rows(page)
+        mine = [r for r in rows if r[0] == str(cycle)]
+        assert len(mine) == len(data.chambers), (cycle, rows)
+        n = data.national[data.national["cycle"] == cycle]
+        assert sorted(r[2] for r in mine) == sorted(f"{int(x['districts'])} ({int(x['measured_districts'])})"
+                                                    for _, x in n.iterrows())
+        assert sorted(r[7] for r in mine) == sorted(str(int(x)) for x in n["competitive"])
+        if cycle >= sf.CYCLES[-2]:  # the home page shows the latest two cycles of each chamber
+            assert set(mine) <= set(home), (cycle, mine, home)
+    # the competitive column is the sum of the stored measure
+    m = data.measures[data.measures["measure"] == "competitive"]
+    stored = m.groupby(["cycle", "chamber"])["value"].sum()
+    for r in data.national.itertuples():
+        assert r.competitive == pytest.approx(stored.get((r.cycle, r.chamber), np.nan))
+
+
+def test_national_download_is_described_and_matches_the_cli(fx, site):
+    from monitor.national import SUMMARY_COLUMNS, national_export
+
+    out, _ = site
+    package = json.loads((out / "downloads/datapackage.json").read_text(encoding="utf-8"))
+    res = {r["name"]: r for r in package["resources"]}
+    assert [f["name"] for f in res["national"]["schema"]["fields"]] == SUMMARY_COLUMNS
+    assert {"national-json", "national-histogram", "national-histogram-json"} <= set(res)
+    rows = list(csv.DictReader(io.StringIO((out / "downloads/national.csv").read_text(encoding="utf-8"))))
+    expected = national_export(fx.db, fx.config)
+    assert len(rows) == len(expected) == len(sf.CYCLES) * 2
+    for row, (_, e) in zip(rows, expected.iterrows()):
+        assert int(row["cycle"]) == e["cycle"] and row["chamber"] == e["chamber"]
+        for col in ("districts", "measured_districts", "seats_a", "votes_a", "competitive", "flagged_units"):
+            assert float(row[col]) == pytest.approx(float(e[col])), col
+        assert float(row["vote_share"]) == pytest.approx(e["vote_share"])
+    # a licence entry (Data Package spec v1: each licence has a name or a path), honest about whose data it is
+    assert package["licenses"] and all("name" in lic or "path" in lic for lic in package["licenses"])
+    assert package["licenses"][0]["name"] == "notspecified" and "publisher" in package["licenses"][0]["title"]
+
+
+def test_what_changed_after_a_partial_cycle(tmp_path):
+    """A federal-only cycle after a full one: the state-legislature flags are compared with their
+    own previous cycle (not listed as cleared), and the home page keeps the state-legislature
+    section at its own latest cycle."""
+    fx = sf.build(tmp_path / "ws")
+    try:
+        with store.transaction(fx.db) as conn:  # a state-legislature flag in its latest cycle, not in the one before
+            conn.execute("UPDATE tails SET flagged = 1, direction = 'a' WHERE cycle = 2022 AND state = 'KA' "
+                         "AND chamber = 'state_lower' AND measure = 'efficiency_gap'")
+        sf.add_cycle(fx, 2024, ("federal",))
+        data = collect(fx.db, fx.config)
+        assert data.chamber_latest() == {"federal": 2024, "state_lower": 2022}
+        from monitor.publish.collect import flag_changes
+
+        changes = flag_changes(data)
+        lower = changes[changes["chamber"] == "state_lower"]
+        assert lower[["state", "measure", "change", "now", "cycle_before", "cycle_now"]].values.tolist() == [
+            ["KA", "efficiency_gap", "raised", "a", 2020, 2022]]
+        assert lower["before"].isna().all()
+        fed = changes[changes["chamber"] == "federal"]
+        assert len(fed) and set(fed["cycle_now"]) == {2024} and set(fed["cycle_before"]) == {2022}
+        # federal: each unit's 2024 flags against its own 2022 flags
+        t = data.tails[(data.tails["chamber"] == "federal") & (data.tails["flagged"] == 1)]
+        flagged = {(c, s, m) for c, s, m in zip(t["cycle"], t["state"], t["measure"])}
+        for r in fed.itertuples():
+            assert ((2022, r.state, r.measure) in flagged) == (not pd.isna(r.before))
+            assert ((2024, r.state, r.measure) in flagged) == (not pd.isna(r.now))
+        out = tmp_path / "public"
+        build(fx.db, fx.config, out)
+        home = (out / P.HOME).read_text(encoding="utf-8")
+        assert re.search(r"<h2>State legislature, lower chamber, <a href=\"cycle/2022.html\">2022</a></h2>", home)
+        assert re.search(r"<h2>Federal lower chamber, <a href=\"cycle/2024.html\">2024</a></h2>", home)
+        assert 'id="chart-hist-state_lower"' in home and 'id="chart-hist-federal"' in home
+        table = home.split('<section id="changes">')[1].split("</table>")[0]
+        rows = [r for r in table.split("</tr>") if "<td>state lower</td>" in r]
+        assert len(rows) == 1 and "raised" in rows[0] and "(2020)" in rows[0] and "(2022)" in rows[0]
+        assert "(2024)" not in rows[0]
+    finally:
+        fx.close()
+
+
+def test_seats_and_votes_chart_uses_the_share_after_the_policy(fx, site):
+    """The seats-and-votes chart's vote share is the measures' (after the uncontested policy), not
+    the raw count: in 2018 KA has an uncontested seat, so the two differ; the seat share counts the
+    districts in the measures, as the national pool does."""
+    out, _ = site
+    data = collect(fx.db, fx.config)
+    v = Views(data)
+    frame = v._seats_over_time("KA", "federal", data.units)
+    c = data.contests[(data.contests["state"] == "KA") & (data.contests["chamber"] == "federal")]
+    for cycle in (2018, 2022):
+        rows = c[(c["cycle"] == cycle) & np.isfinite(c["share_used"].to_numpy(float))]
+        used = rows["votes_a_used"].sum() / (rows["votes_a_used"] + rows["votes_b_used"]).sum()
+        raw = rows["votes_a"].sum() / (rows["votes_a"] + rows["votes_b"]).sum()
+        got = frame.set_index("cycle").loc[cycle]
+        assert got["vote_share"] == pytest.approx(used) and abs(used - raw) > 1e-3
+        assert got["seat_share"] == pytest.approx(rows["seats_a"].sum() / len(rows))
+    page = (out / v.state_path("KA", "federal")).read_text(encoding="utf-8")
+    seats = page.split('id="chart-seats-votes"')[1].split("</figure>")[0]
+    assert "vote share (two-party, after the uncontested policy)" in seats
+    from monitor.publish import formats
+
+    assert formats.share(frame.set_index("cycle").loc[2018, "vote_share"]) in seats
+    assert "compare it with the seat-share line" in seats
+    assert "two-party, after the uncontested policy" in page.split('id="table"')[1]
+
+
+def test_feed_and_state_page_show_corrections(tmp_path):
+    """A correction gets a feed entry naming the units it superseded and what changed (from the
+    stored load report); without a stored report, the same changes come from comparing the
+    superseded and the current units."""
+    from monitor.publish.feed import atom_feed
+
+    fx = sf.build(tmp_path / "ws")
+    try:
+        sf.correct_state(fx, "LU", 2022)
+        load_id, report = fx.db.execute("SELECT id, report FROM loads WHERE units_corrected > 0").fetchone()
+        listed = [u for u in json.loads(report)["units"] if u["action"] == "corrected"]
+        assert [(u["cycle"], u["state"], u["chamber"]) for u in listed] == [(2022, "LU", "federal")]
+        changes = listed[0]["changes"]
+        assert any(ch.startswith("votes of party a") for ch in changes)
+
+        def entries(data):
+            root = ET.fromstring(atom_feed(data, Views(data)))
+            return [e for e in root.findall(f"{ATOM}entry") if e.find(f"{ATOM}title").text.startswith("Correction")]
+
+        data = collect(fx.db, fx.config)
+        found = entries(data)
+        assert len(found) == 1
+        title, summary = found[0].find(f"{ATOM}title").text, found[0].find(f"{ATOM}summary").text
+        assert f"load #{load_id}" in title and "Lunmere (LU)" in title and "2022" in title
+        assert all(ch in summary for ch in changes) and "from the load report" in summary
+        assert found[0].find(f"{ATOM}link").get("href") == Views(data).state_path("LU", "federal")
+        n_events = fx.db.execute("SELECT COUNT(*) FROM flag_events").fetchone()[0]
+        assert len(ET.fromstring(atom_feed(data, Views(data))).findall(f"{ATOM}entry")) == n_events + 1
+        # the state page lists it under the flag history
+        out = tmp_path / "public"
+        build(fx.db, fx.config, out)
+        page = html.unescape((out / Views(data).state_path("LU", "federal")).read_text(encoding="utf-8"))
+        corrections = page.split('id="corrections"')[1].split("</section>")[0]
+        assert f"#{load_id}" in corrections and all(ch in corrections for ch in changes)
+        # without the stored report: compared, with the same result
+        with store.transaction(fx.db) as conn:
+            conn.execute("UPDATE loads SET report = NULL WHERE id = ?", [load_id])
+        data = collect(fx.db, fx.config)
+        assert data.corrections["basis"].tolist() == ["compared"]
+        assert list(data.corrections["changes"].iloc[0]) == changes
+        summary = entries(data)[0].find(f"{ATOM}summary").text
+        assert all(ch in summary for ch in changes) and "comparing the superseded and the current results" in summary
+        with store.transaction(fx.db) as conn:  # an unreadable report: compared, and the feed says why
+            conn.execute("UPDATE loads SET report = '{not json' WHERE id = ?", [load_id])
+        data = collect(fx.db, fx.config)
+        assert list(data.corrections["changes"].iloc[0]) == changes
+        assert "not readable" in entries(data)[0].find(f"{ATOM}summary").text
+    finally:
+        fx.close()
+
+
+def test_feed_self_link_is_absolute_only_with_a_base_url(fx, tmp_path):
+    from monitor.config import load_config
+    from monitor.errors import ConfigError
+    from monitor.publish.feed import atom_feed
+
+    data = collect(fx.db, fx.config)
+    self_link = lambda d: next(link.get("href") for link in ET.fromstring(atom_feed(d, Views(d))).findall(f"{ATOM}link")
+                               if link.get("rel") == "self")  # noqa: E731
+    assert self_link(data) == "atom.xml"
+    path = tmp_path / "levelfield.toml"
+    path.write_text(sf.CONFIG + '\n[site]\nbase_url = "https://example.org/watch/"\n', encoding="utf-8")
+    config = load_config(path)
+    assert self_link(collect(fx.db, config)) == "https://example.org/watch/atom.xml"
+    assert "site.base_url" not in {s["name"] for s in collect(fx.db, config).settings}  # not a setting of the numbers
+    path.write_text(sf.CONFIG + '\n[site]\nbase_url = "example.org"\n', encoding="utf-8")
+    with pytest.raises(ConfigError, match="base_url"):
+        load_config(path)
+
+
+def test_watch_list_rounds_once_and_marks_unofficial_cycles(fx):
+    data = collect(fx.db, fx.config)
+    watch = data.watch.copy()
+    watch.loc[0, ["severity", "seats_at_stake"]] = [1.77, -1.765]  # stored by the flags: abs rounded to 2, signed to 3
+    data.watch = watch
+    units = data.units.copy()
+    state, chamber, cycle = watch.loc[0, "state"], watch.loc[0, "chamber"], int(watch.loc[0, "cycles"].split()[-1])
+    units.loc[(units["state"] == state) & (units["chamber"] == chamber) & (units["cycle"] == cycle),
+              "certification"] = "unofficial"
+    data.units = units
+    v = Views(data)
+    row = v._watch_rows(data.watch, "")[0]
+    assert (row["severity"], row["seats_at_stake"]) == ("1.77", "\u22121.77")
+    assert [c["unofficial"] for c in row["cycles"]] == [str(c) == str(cycle) for c in watch.loc[0, "cycles"].split()]
+    env = PG.environment()
+    page = env.get_template("watch.html").render(page=P.WATCH, root="", title="Watch list", section="watch",
+                                                 parties=data.parties, **v.watch(""))
+    first = page.split("<tbody>")[1].split("</tr>")[0]
+    assert f"{cycle} <span class=\"badge badge-unofficial\"" in first
+    assert "most in one cycle" in page and "all flagged cycles" in page
+    methods = env.get_template("methods.html").render(page=P.METHODS, root="", title="Methods", section="methods",
+                                                      parties=data.parties, **v.methods())
+    assert "most measures that agree in direction in any one" in methods

@@ -142,15 +142,50 @@ def _rule(axis: str, value: float, title: str, colour: str = FAINT, dash: list |
     return {"data": {"values": [{"v": value}]}, "mark": mark, "encoding": {axis: _q("v", title=title)}}
 
 
+def _signed_title(label: str, style: Style) -> list[str]:
+    """An axis title in two short lines, the measure and then its direction, so that it fits the
+    narrow charts of the cycle pages instead of running past their edge."""
+    return [label, f"positive favours {style.a.name}"]
+
+
+def _cycle_ticks(lo: float, hi: float, most: int = 7) -> list[int]:
+    """Explicit cycle ticks: every 2, 4, 10, 20 or 50 years, the finest step giving at most ``most``
+    ticks between the first and last cycle shown (``lo + 1`` to ``hi - 1``), so labels never crowd.
+
+    >>> _cycle_ticks(1971, 2027)
+    [1980, 1990, 2000, 2010, 2020]
+    >>> _cycle_ticks(2017, 2025)
+    [2018, 2020, 2022, 2024]
+    """
+    first, last = math.ceil(lo + 1), math.floor(hi - 1)
+    for step in (2, 4, 10, 20, 50):
+        values = list(range(math.ceil(first / step) * step, last + 1, step))
+        if len(values) <= most:
+            break
+    return values or [first]
+
+
 def _cycle_axis(lo: float, hi: float) -> dict:
+    """The cycle x encoding: explicit ticks (see ``_cycle_ticks``), labels centred on their tick
+    (not pushed flush against the ends, which made neighbours collide) and, as a last resort at very
+    narrow widths, overlapping labels dropped."""
     return _q("cycle", title="cycle", scale={"domain": [lo, hi], "nice": False, "zero": False},
-              axis={"format": "d", "tickMinStep": 2})
+              axis={"format": "d", "values": _cycle_ticks(lo, hi), "tickMinStep": 2, "labelFlush": False,
+                    "labelOverlap": "greedy", "labelSeparation": 6})
+
+
+#: Height in pixels of the band above the plot that holds the plan-era labels.
+ERA_BAND = 16
 
 
 def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[dict]]:
     """Era rectangles (first - 1 to last + 1, clipped to the shown cycles), alternately shaded
     (two layers with a constant colour each, so the colour scale stays free for the data), and
-    the era labels: ``[rect_even, rect_odd]`` go under the data, ``[labels]`` over it."""
+    the era labels: ``[rect_even, rect_odd]`` go under the data, ``[labels]`` after it.
+
+    The rectangles reach ``ERA_BAND`` pixels above the plot; the labels sit in that band, outside
+    the data area, each cut (with an ellipsis) to its era's drawn width and hidden when the era is
+    too narrow for even a few letters (its tooltip, the description and the table keep the name)."""
     if eras.empty:
         return [], []
     e = eras.copy()
@@ -158,16 +193,19 @@ def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[di
     e["x2"] = np.minimum(e["last_cycle"].astype(float).fillna(hi) + 1, hi)
     e = e[e["x2"] > e["x"]].sort_values("x").reset_index(drop=True)
     e["parity"] = [i % 2 for i in range(len(e))]
-    e["label_y"] = e["parity"] * 12.0  # staggered, so that neighbouring labels do not overlap
     x = _q("x", title="cycle")
+    tip = [_tip("era_label", "nominal", "plan drawn by")]
     rects = [{"data": {"name": "eras"}, "transform": [{"filter": {"field": "parity", "equal": k}}],
               "mark": {"type": "rect", "color": ERA_FILLS[k]},
-              "encoding": {"x": x, "x2": {"field": "x2"}, "tooltip": [_tip("era_label", "nominal", "plan")]}}
+              "encoding": {"x": x, "x2": {"field": "x2"}, "y": {"value": -ERA_BAND}, "y2": {"value": "height"},
+                           "tooltip": tip}}
              for k in (0, 1) if (e["parity"] == k).any()]
-    labels = {"data": {"name": "eras"}, "mark": {"type": "text", "align": "left", "baseline": "top", "dx": 3, "dy": 3,
-                                                  "fontSize": 10, "color": MUTED},
-              "encoding": {"x": x, "y": _q("label_y", scale=None), "text": _n("era_label")}}
-    return records(e, ["x", "x2", "parity", "label_y", "era_label"]), rects + [labels]
+    room = "scale('x', datum.x2) - scale('x', datum.x) - 6"
+    labels = {"data": {"name": "eras"},
+              "mark": {"type": "text", "align": "left", "baseline": "middle", "dx": 3, "fontSize": 10, "color": MUTED,
+                       "limit": {"expr": f"max(1, {room})"}, "opacity": {"expr": f"{room} < 18 ? 0 : 1"}},
+              "encoding": {"x": x, "y": {"value": -ERA_BAND / 2}, "text": _n("era_label"), "tooltip": tip}}
+    return records(e, ["x", "x2", "parity", "era_label"]), rects + [labels]
 
 
 # --- charts -----------------------------------------------------------------------------------------
@@ -191,13 +229,26 @@ def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamb
                             _tip("kind", "nominal"), _tip("districts")]}}
     spec = _spec([bars, _rule("x", 0.5, bars["encoding"]["x"]["title"], INK, [4, 3])],
                  {"bins": records(frame, ["bin_start", "bin_end", "kind", "order", "districts"])}, 220)
+    # every count below is a sum of the bars drawn; uncontested districts (shown at their imputed
+    # share) are counted apart, by the side of 50% their share lies on (``side``: a | b | tied)
+    side = frame["side"] if "side" in frame else pd.Series("", index=frame.index)
+
+    def count(kind: str, where: str | None = None) -> int:
+        pick = (frame["kind"] == kind) & ((side == where) if where else True)
+        return int(frame.loc[pick, "districts"].sum())
+
     total = int(frame["districts"].sum())
-    a_won = int(frame.loc[frame["kind"] == kinds[0], "districts"].sum())
-    imputed = int(frame.loc[frame["kind"] == kinds[3], "districts"].sum())
+    a_won, b_won, tied = count(kinds[0]), count(kinds[1]), count(kinds[2])
+    imputed, imp_a, imp_b, imp_tied = count(kinds[3]), count(kinds[3], "a"), count(kinds[3], "b"), count(kinds[3], "tied")
     width = float(hist["bin_end"].iloc[0] - hist["bin_start"].iloc[0]) if len(hist) else 0.0
-    desc = (f"Histogram of the {total} district results of {cycle} ({chamber_label}) by {style.a.name}'s share "
-            f"of the two-party vote, in bins of {F.share(width, 1)}. {a_won} districts lie above 50% (won by "
-            f"{style.a.name}); {imputed} uncontested districts are shown at their imputed share.")
+    a, b = style.a.name, style.b.name
+    desc = (f"Histogram of the {total} districts of {cycle} ({chamber_label}) that enter the measures, by {a}'s share "
+            f"of the two-party vote after the uncontested policy, in bins of {F.share(width, 1)}. At their voted share: "
+            f"{a_won} lie above 50% (won by {a}), {b_won} below (won by {b})" + (f", {tied} at exactly 50%" if tied else "")
+            + ". " + (f"Uncontested: {imputed} districts are shown at their imputed share ({imp_a} won by {a}, {imp_b} by {b}"
+                      + (f", {imp_tied} at 50%" if imp_tied else "") + "). " if imputed else
+                      "No district is shown at an imputed share. ")
+            + f"In all, {a} won {a_won + imp_a} and {b} won {b_won + imp_b} of these {total} districts.")
     rows = [[f"{F.share(r.bin_start)} to {F.share(r.bin_end)}", r.kind, F.count(r.districts)] for r in frame.itertuples()]
     return Chart(chart_id, f"District shares, {chamber_label}, {cycle}", desc, spec, ["share bin", "kind", "districts"], rows)
 
@@ -216,7 +267,7 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
     flagged_labels = style.flag_domain()[:2]
     points = {"data": {"name": "states"}, "mark": {"type": "point", "filled": True, "size": 70, "opacity": 0.85},
               "encoding": {
-                  "x": _q("value", title=f"{label} (positive favours {style.a.name})"),
+                  "x": _q("value", title=_signed_title(label, style)),
                   "y": _n("flag", title=None, sort=style.flag_domain(), axis={"labels": False, "ticks": False, "domain": False}),
                   "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
                   "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
@@ -361,30 +412,65 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     marks = ["observed", "flipped vote", "even vote"]
     axis = {"format": ".0%"}
     xt, yt = f"{style.a.name} statewide share of the two-party vote", f"{style.a.name} seat share"
-    layers = [
-        _rule("x", 0.5, xt, GRID), _rule("y", 0.5, yt, GRID),
-        {"data": {"values": [{"vote": 0, "seat_share": 0}, {"vote": 1, "seat_share": 1}]},
-         "mark": {"type": "line", "color": FAINT, "strokeDash": [2, 3]},
-         "encoding": {"x": _q("vote", title=xt), "y": _q("seat_share", title=yt)}},
-        {"data": {"name": "curve"}, "mark": {"type": "line", "interpolate": "step-after", "color": style.a.colour, "strokeWidth": 2},
-         "encoding": {"x": _q("vote", title=xt, scale={"domain": [0, 1], "nice": False}, axis=axis),
-                      "y": _q("seat_share", title=yt, scale={"domain": [0, 1], "nice": False}, axis=axis)}},
-        {"data": {"name": "points"}, "mark": {"type": "point", "filled": True, "size": 90, "opacity": 1},
-         "encoding": {"x": _q("vote", title=xt), "y": _q("seat_share", title=yt),
-                      "shape": _n("point", title=None, scale={"domain": marks, "range": ["circle", "diamond", "square"]}),
-                      "color": _n("point", title=None, scale={"domain": marks, "range": [INK, style.b.colour, MUTED]}),
-                      "tooltip": [_tip("point", "nominal"), _tip("vote", fmt=".1%"), _tip("seat_share", title="seat share", fmt=".1%"),
-                                  _tip("seats", fmt=".1f")]}},
-    ]
-    datasets = {"curve": records(curve, ["vote", "seat_share"]), "points": records(points, ["point", "vote", "seat_share", "seats"])}
+    x, y = _q("vote", title=xt), _q("seat_share", title=yt)
     by = points.set_index("point")
     obs, flip, even = by.loc["observed"], by.loc["flipped vote"], by.loc["even vote"]
+    # The three points often lie within a point or two of each other near 50%: nested marks of
+    # distinct shape, size and fill (filled one under open ones) stay visible when they coincide, and each
+    # has a direct label. The even vote lies midway between the other two and the curve never
+    # falls, so the space up and left of the left-hand point and down and right of the right-hand
+    # one is free of the curve: their labels go there; the even vote's goes well above (or, near
+    # the top, well below), clear of both.
+    lines = ["seats-votes curve (uniform swing)", "seats = votes (diagonal)"]
+    line_key = {"stroke": _n("line", title=None, scale={"domain": lines, "range": [style.a.colour, MUTED]}),
+                "strokeDash": _n("line", title=None, scale={"domain": lines, "range": [[1, 0], [2, 3]]})}
+    point_key = {"shape": {"domain": marks, "range": ["circle", "diamond", "square"]},
+                 "color": {"domain": marks, "range": [INK, style.b.colour, MUTED]},
+                 "fill": {"domain": marks, "range": ["transparent", style.b.colour, "transparent"]}}
+    sizes = {"domain": marks, "range": [300, 80, 130]}
+    left, right = ("observed", "flipped vote") if obs["vote"] <= flip["vote"] else ("flipped vote", "observed")
+    place = {left: ("right", -9, -9, "bottom"),
+             right: ("left", 9, 9, "top") if by.loc[right, "seat_share"] > 0.1 else ("left", 9, -9, "bottom"),
+             "even vote": ("center", 0, -22, "bottom") if even["seat_share"] < 0.88 else ("center", 0, 22, "top")}
+
+    def label(name: str) -> list[dict]:
+        align, dx, dy, baseline = place[name]
+        mark = {"type": "text", "align": align, "dx": dx, "dy": dy, "baseline": baseline, "fontSize": 11}
+        enc = {"x": x, "y": y, "text": _n("point")}
+        keep = [{"filter": {"field": "point", "equal": name}}]
+        halo = {**mark, "color": "#ffffff", "stroke": "#ffffff", "strokeWidth": 4, "strokeJoin": "round"}
+        return [{"data": {"name": "points"}, "transform": keep, "mark": halo, "encoding": enc},
+                {"data": {"name": "points"}, "transform": keep, "mark": {**mark, "color": INK}, "encoding": enc}]
+
+    layers = [
+        _rule("x", 0.5, xt, GRID), _rule("y", 0.5, yt, GRID),
+        {"data": {"values": [{"vote": 0, "seat_share": 0, "line": lines[1]}, {"vote": 1, "seat_share": 1, "line": lines[1]}]},
+         "mark": {"type": "line", "strokeWidth": 1.2}, "encoding": {"x": x, "y": y, **line_key}},
+        {"data": {"name": "curve"},
+         "mark": {"type": "line", "interpolate": "step-after", "strokeWidth": 2},
+         "encoding": {"x": _q("vote", title=xt, scale={"domain": [0, 1], "nice": False}, axis=axis),
+                      "y": _q("seat_share", title=yt, scale={"domain": [0, 1], "nice": False}, axis=axis), **line_key}},
+        {"data": {"name": "points"}, "mark": {"type": "point", "filled": False, "strokeWidth": 2, "opacity": 1},
+         "encoding": {"x": x, "y": y, **{k: _n("point", title=None, scale=v, sort=marks) for k, v in point_key.items()},
+                      "size": {"field": "point", "type": "ordinal", "title": None, "scale": sizes, "sort": marks},
+                      "order": _q("z"),
+                      "tooltip": [_tip("point", "nominal"), _tip("vote", fmt=".1%"), _tip("seat_share", title="seat share", fmt=".1%"),
+                                  _tip("seats", fmt=".1f")]}},
+    ] + [layer for name in marks for layer in label(name)]
+    # drawing order: the large ring, then the filled diamond, then the open square over it (its
+    # outline stays visible on the diamond when the two coincide)
+    points = points.assign(z=points["point"].map({"observed": 0, "flipped vote": 1, "even vote": 2}))
+    datasets = {"curve": records(curve.assign(line=lines[0]), ["vote", "seat_share", "line"]),
+                "points": records(points, ["point", "vote", "seat_share", "seats", "z"])}
     n = int(points["districts"].iloc[0])
     desc = (f"Seats-votes curve of {where} under uniform swing: every district's share shifted by the same amount. "
             f"Observed: {F.share(obs['vote'])} of the vote gave {style.a.name} {F.number(obs['seats'], 1)} of {n} seats. "
             f"With the vote flipped to {F.share(flip['vote'])}, {style.a.name} would win {F.number(flip['seats'], 1)} seats "
             f"(a symmetric plan would give {F.number(n - obs['seats'], 1)}). At 50% of the vote: "
-            f"{F.number(even['seats'], 1)} seats (partisan bias {F.signed(even['seat_share'] - 0.5)}).")
+            f"{F.number(even['seats'], 1)} seats (partisan bias {F.signed(even['seat_share'] - 0.5)}). "
+            "Marks: the stepped line is the curve and the dotted diagonal is seats equal to votes; the observed result "
+            "is the large open circle, the flipped vote the small filled diamond and the even vote (50%) the open square, "
+            "each labelled beside it.")
     rows = [[F.share(r.vote), F.share(r.seat_share)] for r in curve.itertuples()]
     rows += [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
              for r in points.itertuples()]
@@ -401,7 +487,7 @@ def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style:
     f = _with_flags(frame, style).dropna(subset=["value"]).sort_values(["value", "state_label"], ascending=[False, True])
     order = list(dict.fromkeys(f["state_label"]))
     bars = {"data": {"name": "states"}, "mark": {"type": "bar", "height": {"band": 0.7}},
-            "encoding": {"x": _q("value", title=f"{label} (positive favours {style.a.name})"),
+            "encoding": {"x": _q("value", title=_signed_title(label, style)),
                          "y": _n("state_label", title=None, sort=order),
                          "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
                          "tooltip": [_tip("state_label", "nominal", "state"), _tip("value", fmt="+.3f"), _tip("flag", "nominal")]}}
@@ -425,28 +511,35 @@ def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, cha
     """
     f = frame.dropna(subset=["expected_seats"]).sort_values(["excess_seats", "state_label"], ascending=[False, True])
     order = list(dict.fromkeys(f["state_label"]))
-    marks = ["expected (national pool)", f"won by {style.a.name}"]
-    f = f.assign(kind_expected=marks[0], kind_won=marks[1])
+    # The key lists every mark drawn, each with a symbol of its own shape: a horizontal bar for the
+    # interval, an upright bar for the expected-seats tick, a dot for the seats won. It comes from
+    # the dots' layer alone (its colour and shape scales share one domain, so they make one legend);
+    # the bar and the tick take their colours from the same constants.
+    marks = ["95% interval (national pool)", "expected (national pool)", f"won by {style.a.name}"]
+    f = f.assign(kind_won=marks[2])
     y = _n("state_label", title=None, sort=order)
     x_title = f"{style.a.name} seats"
-    colour = {"domain": marks, "range": [INK, style.a.colour]}
+    colour = {"domain": marks, "range": [FAINT, INK, style.a.colour]}
+    shape = {"domain": marks, "range": ["M-1,-0.3H1V0.3H-1Z", "M-0.22,-1H0.22V1H-0.22Z", "circle"]}
     tips = [_tip("state_label", "nominal", "state"), _tip("seats_a", title="seats won", fmt=".1f"),
             _tip("expected_seats", title="expected", fmt=".2f"), _tip("low", title="95% low", fmt=".1f"),
             _tip("high", title="95% high", fmt=".1f"), _tip("excess_seats", title="excess seats", fmt="+.2f")]
     layers = [
         {"data": {"name": "units"}, "mark": {"type": "rule", "color": FAINT, "strokeWidth": 3},
-         "encoding": {"x": _q("low", title=x_title, axis={"format": "d", "tickMinStep": 1}), "x2": {"field": "high"}, "y": y}},
-        {"data": {"name": "units"}, "mark": {"type": "tick", "thickness": 2, "size": 14},
-         "encoding": {"x": _q("expected_seats", title=x_title), "y": y, "color": _n("kind_expected", title=None, scale=colour),
+         "encoding": {"x": _q("low", title=x_title, axis={"format": "d", "tickMinStep": 1}), "x2": {"field": "high"}, "y": y,
                       "tooltip": tips}},
+        {"data": {"name": "units"}, "mark": {"type": "tick", "thickness": 2, "size": 14, "color": INK},
+         "encoding": {"x": _q("expected_seats", title=x_title), "y": y, "tooltip": tips}},
         {"data": {"name": "units"}, "mark": {"type": "point", "filled": True, "size": 60, "opacity": 1},
-         "encoding": {"x": _q("seats_a", title=x_title), "y": y, "color": _n("kind_won", title=None, scale=colour),
-                      "tooltip": tips}},
+         "encoding": {"x": _q("seats_a", title=x_title), "y": y,
+                      "color": _n("kind_won", title=None, scale=colour),
+                      "shape": _n("kind_won", title=None, scale=shape), "tooltip": tips}},
     ]
     datasets = {"units": records(f, ["state_label", "low", "high", "expected_seats", "seats_a", "excess_seats",
-                                     "kind_expected", "kind_won"])}
+                                     "kind_won"])}
     desc = (f"Seats {style.a.name} won in each state in {cycle} ({chamber_label}) against the seats expected for "
-            f"delegations of the same size and statewide vote drawn from the national pool (bar: 95% interval). ")
+            f"delegations of the same size and statewide vote drawn from the national pool (grey bar: 95% interval; "
+            f"upright tick: expected seats; dot: seats won). ")
     if len(f):
         top, bottom = f.iloc[0], f.iloc[-1]
         desc += (f"Largest excess for {style.a.name}: {top['state_label']} {F.signed(top['excess_seats'], 2)} seats; "
@@ -466,7 +559,7 @@ def excess_by_drawer(chart_id: str, frame: pd.DataFrame, style: Style, cycle: in
     sides = [f"towards {style.a.name}", f"towards {style.b.name}"]
     f = frame.assign(side=np.where(frame["excess_seats"] >= 0, sides[0], sides[1]))
     bars = {"data": {"name": "drawers"}, "mark": {"type": "bar"},
-            "encoding": {"x": _q("excess_seats", title=f"excess seats (positive: more than expected for {style.a.name})"),
+            "encoding": {"x": _q("excess_seats", title=["excess seats", f"positive: more than expected for {style.a.name}"]),
                          "y": _n("drawer", title=None, sort=list(f["drawer"])),
                          "color": _n("side", title=None, scale={"domain": sides, "range": [style.a.colour, style.b.colour]}),
                          "tooltip": [_tip("drawer", "nominal", "drawn by"), _tip("excess_seats", fmt="+.2f"),

@@ -2,14 +2,17 @@
 
 This is the first stage of the build (collect -> render -> write). It reads, never writes, and
 tolerates a fresh store: every frame then is empty with its columns, and the site says that
-nothing is loaded yet. Derived numbers the pages show (the seats-votes curve under uniform swing,
-the national histogram, what changed since the previous cycle) are computed here, in Python, so
-that templates only lay out what they are given.
+nothing is loaded yet. The national aggregates (histogram, summary, excess seats by who drew the
+plan) come from :mod:`monitor.national`; the few derived numbers only the pages need (the
+seats-votes curve under uniform swing, what changed since each unit's previous cycle, what each
+correction changed) are computed here, in Python, so that templates only lay out what they are
+given.
 """
 
 from __future__ import annotations
 
 import datetime as dt
+import json
 import os
 from dataclasses import dataclass, field
 
@@ -20,9 +23,12 @@ import sqlite_utils
 from monitor.config import OPTIONS, Config, Party
 from monitor.inputs import UNIT_KEYS, reduced_contests
 from monitor.measures.swing import seat_share_at
-from monitor.reduce import two_party_inputs
+from monitor.national import (contest_shares, excess_by_drawer, measured, national_summary, plans_of_units,
+                              share_histogram)
+from monitor.reduce import reduce_contests
 from monitor.results import results_export
 from monitor.publish.paths import unique_slugs
+from store import queries
 
 #: Chamber codes of the sample contract, in display order, with their labels.
 CHAMBER_LABELS = {"federal": "Federal lower chamber", "state_lower": "State legislature, lower chamber"}
@@ -31,9 +37,6 @@ CHAMBER_SHORT = {"federal": "federal", "state_lower": "state lower"}
 #: Measures charted over time and across states, in this order (when the store has them).
 HEADLINE_MEASURES = ("efficiency_gap", "efficiency_gap_seats", "mean_median", "lopsided_t",
                      "declination", "partisan_bias")
-
-#: Width of the bins of the national histogram of district shares.
-HISTOGRAM_BIN = 0.025
 
 EPOCH = dt.datetime(1970, 1, 1, tzinfo=dt.timezone.utc)
 
@@ -88,6 +91,10 @@ class SiteData:
     histogram: pd.DataFrame
     results: pd.DataFrame
     site_time: dt.datetime
+    national: pd.DataFrame = field(default_factory=pd.DataFrame)
+    drawers: pd.DataFrame = field(default_factory=pd.DataFrame)
+    corrections: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=CORRECTION_COLUMNS))
+    base_url: str = ""
     state_slugs: dict[str, str] = field(default_factory=dict)
     chamber_slugs: dict[str, str] = field(default_factory=dict)
     _headline: list[str] | None = field(default=None, repr=False)
@@ -111,6 +118,14 @@ class SiteData:
     @property
     def previous_cycle(self) -> int | None:
         return self.cycles[-2] if len(self.cycles) > 1 else None
+
+    def chamber_cycles(self, chamber: str) -> list[int]:
+        """The cycles with results in ``chamber``, oldest first."""
+        return sorted(int(c) for c in self.units.loc[self.units["chamber"] == chamber, "cycle"].unique())
+
+    def chamber_latest(self) -> dict[str, int]:
+        """Each chamber's own latest cycle (a partial cycle of one chamber leaves the others' as they were)."""
+        return {ch: cycles[-1] for ch in self.chambers if (cycles := self.chamber_cycles(ch))}
 
     def pairs(self) -> list[tuple[str, str]]:
         """Every (state, chamber) with results, sorted by state then chamber order."""
@@ -202,6 +217,7 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
     loaded = tables["loads"][tables["loads"]["outcome"] == "loaded"]
     site_time = source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH
     curves, points = seats_votes_curves(contests)
+    unit_plans = plans_of_units(units, plans)
     data = SiteData(
         parties={code: config.party(code) for code in ("a", "b")},
         policy=config.policy,
@@ -217,13 +233,17 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
         events=tables["flag_events"],
         watch=tables["watch"],
         plans=plans,
-        unit_plans=plans_of_units(units, plans),
+        unit_plans=unit_plans,
         state_names=states,
         curves=curves,
         curve_points=points,
         histogram=share_histogram(contests),
         results=results_export(db),
         site_time=site_time,
+        national=national_summary(contests, tables["measures"], tables["tails"], tables["pool_seats"], unit_plans),
+        drawers=excess_by_drawer(tables["pool_seats"], unit_plans),
+        corrections=corrections(db),
+        base_url=config["site.base_url"],
     )
     data.state_slugs = unique_slugs(units["state"])
     data.chamber_slugs = unique_slugs(units["chamber"])
@@ -257,53 +277,19 @@ def _states(db: sqlite_utils.Database) -> dict[str, str]:
 
 def _settings(config: Config) -> list[dict]:
     """The options in force that shape the numbers (not the party names, load or schedule)."""
-    skip = ("parties.", "load.", "schedule.")
+    skip = ("parties.", "load.", "schedule.", "site.")
     return [{"name": opt.name, "value": config[opt.name], "default": opt.default, "help": opt.help}
             for opt in OPTIONS if not opt.name.startswith(skip)]
 
 
 def _contests(db: sqlite_utils.Database, config: Config) -> pd.DataFrame:
     """Every current contest with its reduction, raw two-party share and the share that enters
-    the measures after the uncontested policy (NaN when the contest does not enter them)."""
-    contests = reduced_contests(db)
-    if contests.empty:
-        for col in ("share_a", "share_used", "votes_a_used", "votes_b_used", "imputed"):
-            contests[col] = pd.Series(dtype=float if col != "imputed" else bool)
-        return contests
-    contests = contests.sort_values([*UNIT_KEYS, "district", "special"], kind="mergesort").reset_index(drop=True)
-    two = (contests["votes_a"] + contests["votes_b"]).astype(float)
-    contests["share_a"] = np.where(two > 0, contests["votes_a"] / two.where(two > 0, 1.0), np.nan)
-    regular = contests[contests["special"].astype(int) == 0]
-    used = two_party_inputs(regular, config["uncontested.policy"], config["uncontested.winner_share"])
-    used = used.set_index("contest_id")
-    va = used["votes_a"].reindex(contests["contest_id"]).to_numpy(float)
-    vb = used["votes_b"].reindex(contests["contest_id"]).to_numpy(float)
-    contests["votes_a_used"], contests["votes_b_used"] = va, vb
-    with np.errstate(invalid="ignore", divide="ignore"):
-        contests["share_used"] = np.where(va + vb > 0, va / (va + vb), np.nan)
-    unc = used["uncontested"].reindex(contests["contest_id"])
-    contests["imputed"] = unc.fillna(False).astype(bool).to_numpy() & (config["uncontested.policy"] == "impute")
-    return contests
-
-
-def plans_of_units(units: pd.DataFrame, plans: pd.DataFrame) -> pd.DataFrame:
-    """The plan era in force for each unit (cycle, state, chamber): plan_id, drawn_by, inferred;
-    NaN where no era covers the unit."""
-    keys = units[UNIT_KEYS]
-    if keys.empty or plans.empty:
-        return keys.assign(plan_id=None, drawn_by=None, inferred=0)
-    merged = keys.merge(plans[["state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "inferred"]],
-                        on=["state", "chamber"], how="left")
-    last = merged["last_cycle"].astype(float).fillna(np.inf)
-    inside = (merged["first_cycle"].astype(float) <= merged["cycle"]) & (merged["cycle"] <= last)
-    merged = merged[inside].drop_duplicates(UNIT_KEYS)
-    out = keys.merge(merged[[*UNIT_KEYS, "plan_id", "drawn_by", "inferred"]], on=UNIT_KEYS, how="left")
-    out["inferred"] = out["inferred"].fillna(0).astype(int)
-    return out
+    the measures after the uncontested policy (:func:`monitor.national.contest_shares`)."""
+    return contest_shares(reduced_contests(db), config["uncontested.policy"], config["uncontested.winner_share"])
 
 
 def _measure_rows(contests: pd.DataFrame) -> pd.DataFrame:
-    rows = contests[np.isfinite(contests["share_used"].to_numpy(float))]
+    rows = measured(contests)
     return rows[[*UNIT_KEYS, "district", "votes_a_used", "votes_b_used", "share_used", "imputed"]]
 
 
@@ -364,42 +350,141 @@ def seats_votes_curves(contests: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFra
     return curve.reset_index(drop=True), pd.concat(points, ignore_index=True)[pcols]
 
 
-def share_histogram(contests: pd.DataFrame) -> pd.DataFrame:
-    """Counts of district shares (after the uncontested policy) per cycle and chamber, in bins of
-    :data:`HISTOGRAM_BIN`, split into contested districts and imputed ones."""
-    cols = ["cycle", "chamber", "bin_start", "bin_end", "kind", "districts"]
-    rows = _measure_rows(contests)
-    if rows.empty:
-        return pd.DataFrame(columns=cols)
-    edges = np.round(np.arange(0, 1 + HISTOGRAM_BIN / 2, HISTOGRAM_BIN), 6)
-    k = np.clip(np.floor(rows["share_used"].to_numpy(float) / HISTOGRAM_BIN).astype(int), 0, len(edges) - 2)
-    share = rows["share_used"].to_numpy(float)
-    won = np.where(share > 0.5, "won by a", np.where(share < 0.5, "won by b", "tied"))
-    frame = pd.DataFrame({"cycle": rows["cycle"].to_numpy(), "chamber": rows["chamber"].to_numpy(), "k": k,
-                          "kind": np.where(rows["imputed"].to_numpy(bool), "uncontested (imputed share)", won)})
-    counts = frame.groupby(["cycle", "chamber", "k", "kind"]).size().rename("districts").reset_index()
-    counts["bin_start"] = edges[counts["k"]]
-    counts["bin_end"] = edges[counts["k"] + 1]
-    return counts[cols].sort_values(["cycle", "chamber", "bin_start", "kind"]).reset_index(drop=True)
-
-
 def flag_changes(data: SiteData, chamber: str | None = None) -> pd.DataFrame:
-    """Unit flags of the latest cycle against the previous one, per (state, chamber, measure):
-    ``raised`` (flagged now, not before), ``cleared`` or ``reversed`` (direction changed)."""
-    cols = ["state", "chamber", "measure", "change", "before", "now"]
-    latest, previous = data.latest_cycle, data.previous_cycle
+    """Unit flags of each (state, chamber) unit's latest cycle against that unit's previous cycle,
+    per measure: ``raised`` (flagged now, not before), ``cleared`` or ``reversed`` (direction
+    changed).
+
+    Only units present in the latest cycle of their chamber take part, each against its own
+    previous cycle: after a partial cycle (one chamber, or some states, loaded) the units it does
+    not cover keep their standing instead of having every flag "cleared". A unit with no earlier
+    cycle lists its flags as raised. ``cycle_before`` / ``cycle_now`` say which cycles each row
+    compares."""
+    cols = ["state", "chamber", "measure", "change", "before", "now", "cycle_before", "cycle_now"]
     t = data.tails
-    if latest is None or t.empty:
+    if data.units.empty or t.empty:
         return pd.DataFrame(columns=cols)
-    t = t.assign(flagged=t["flagged"].fillna(0).astype(int))
-    now = t[(t["cycle"] == latest) & (t["flagged"] == 1)].set_index(["state", "chamber", "measure"])["direction"]
-    before = (t[(t["cycle"] == previous) & (t["flagged"] == 1)].set_index(["state", "chamber", "measure"])["direction"]
-              if previous is not None else pd.Series(dtype=object))
+    latest = data.chamber_latest()
+    units = data.units[["cycle", "state", "chamber"]].astype({"cycle": int})
+    now_units = units[units["cycle"] == units["chamber"].map(latest)]
+    earlier = units[units["cycle"] < units["chamber"].map(latest)]
+    previous = earlier.groupby(["state", "chamber"])["cycle"].max()
+    t = t.assign(flagged=t["flagged"].fillna(0).astype(int), cycle=t["cycle"].astype(int))
+    flags = t[t["flagged"] == 1].set_index(["cycle", "state", "chamber", "measure"])["direction"].to_dict()
+    by_unit: dict[tuple, dict[str, str]] = {}
+    for (cycle, state, ch, measure), direction in flags.items():
+        by_unit.setdefault((cycle, state, ch), {})[measure] = direction
     rows = []
-    for key in sorted(set(now.index) | set(before.index)):
-        b, n = before.get(key), now.get(key)
-        change = "raised" if b is None else "cleared" if n is None else "reversed" if b != n else None
-        if change is not None:
-            rows.append((*key, change, b, n))
-    out = pd.DataFrame(rows, columns=cols)
-    return out if chamber is None else out[out["chamber"] == chamber]
+    for u in now_units.sort_values(["state", "chamber"]).itertuples(index=False):
+        if chamber is not None and u.chamber != chamber:
+            continue
+        prev = previous.get((u.state, u.chamber))
+        now = by_unit.get((u.cycle, u.state, u.chamber), {})
+        before = by_unit.get((int(prev), u.state, u.chamber), {}) if prev is not None else {}
+        for measure in sorted(set(now) | set(before)):
+            b, n = before.get(measure), now.get(measure)
+            change = "raised" if b is None else "cleared" if n is None else "reversed" if b != n else None
+            if change is not None:
+                rows.append((u.state, u.chamber, measure, change, b, n, None if prev is None else int(prev), int(u.cycle)))
+    return pd.DataFrame(rows, columns=cols)
+
+
+# --- corrections ------------------------------------------------------------------------------------
+CORRECTION_COLUMNS = ["load_id", "file_name", "sha256", "loaded_at", "cycle", "state", "chamber", "unit_id",
+                      "old_unit_id", "old_load_id", "changes", "basis"]
+
+
+def corrections(db: sqlite_utils.Database) -> pd.DataFrame:
+    """Every unit a load superseded (a correction), oldest first, with what changed: from the
+    load's stored report when it has this unit's entry (``basis`` = ``load report``), otherwise by
+    comparing the superseded unit with its successor (``basis`` = ``compared``)."""
+    if "units" not in db.table_names():
+        return pd.DataFrame(columns=CORRECTION_COLUMNS)
+    frame = pd.read_sql_query(
+        "SELECT l.id AS load_id, l.file_name, l.sha256, l.loaded_at, l.report, n.cycle, n.state, n.chamber, "
+        "n.id AS unit_id, n.certification, o.id AS old_unit_id, o.load_id AS old_load_id, "
+        "o.certification AS old_certification "
+        "FROM units n JOIN units o ON o.id = n.supersedes JOIN loads l ON l.id = n.load_id "
+        "WHERE l.outcome = 'loaded' ORDER BY l.id, n.cycle, n.state, n.chamber", db.conn)
+    if frame.empty:
+        return pd.DataFrame(columns=CORRECTION_COLUMNS)
+    reports: dict[int, dict | None] = {}
+    for load_id, text in frame[["load_id", "report"]].drop_duplicates("load_id").itertuples(index=False):
+        reports[int(load_id)] = _report_changes(text)
+    changes, basis, missing = [], [], []
+    for r in frame.itertuples(index=False):
+        report = reports[int(r.load_id)]
+        listed = None if report is None else report.get((int(r.cycle), r.state, r.chamber))
+        if listed is not None:
+            changes.append(listed)
+            basis.append("load report")
+        else:
+            changes.append(None)
+            basis.append("compared" if report is not None else "compared (the stored load report is not readable)")
+            missing.append(r)
+    if missing:
+        compared = _compare_units(db, missing)
+        it = iter(compared)
+        changes = [c if c is not None else next(it) for c in changes]
+    frame["changes"] = changes
+    frame["basis"] = basis
+    return frame[CORRECTION_COLUMNS].reset_index(drop=True)
+
+
+def _report_changes(text) -> dict[tuple, list[str]] | None:
+    """(cycle, state, chamber) -> the change texts of the corrected units in a stored load report
+    (empty when there is no report; None when the stored report cannot be read, which the
+    correction's ``basis`` then says)."""
+    if text is None or (isinstance(text, float) and np.isnan(text)) or text == "":
+        return {}
+    try:
+        report = json.loads(text)
+    except json.JSONDecodeError:
+        return None
+    if not isinstance(report, dict):
+        return None
+    out = {}
+    for u in report.get("units") or []:
+        if u.get("action") == "corrected":
+            out[(int(u["cycle"]), str(u["state"]), str(u["chamber"]))] = [str(c) for c in u.get("changes") or []]
+    return out
+
+
+def _compare_units(db: sqlite_utils.Database, rows) -> list[list[str]]:
+    """What changed between each superseded unit and its successor, in the words of a load
+    report: seats of each party, districts added or dropped, winners, vote totals, status."""
+    ids = sorted({int(r.old_unit_id) for r in rows} | {int(r.unit_id) for r in rows})
+    votes = queries.unit_votes(db, ids)
+    reduced = {}
+    for unit_id, part in votes.groupby("unit_id"):
+        contests = part.drop_duplicates("contest_id")[["contest_id", "seats", "district", "special"]]
+        red = reduce_contests(part, contests[["contest_id", "seats"]]).merge(
+            contests[["contest_id", "district", "special"]], on="contest_id")
+        red["key"] = list(zip(red["district"], red["special"].astype(int).astype(bool)))
+        reduced[int(unit_id)] = red.set_index("key")
+    empty = pd.DataFrame(columns=["seats_a", "seats_b", "votes_a", "votes_b", "votes_other", "winner"])
+    out = []
+    for r in rows:
+        old, new = reduced.get(int(r.old_unit_id), empty), reduced.get(int(r.unit_id), empty)
+        changes = []
+        if r.old_certification != r.certification:
+            changes.append(f"status: {r.old_certification} -> {r.certification}")
+        for code in ("a", "b"):
+            before, after = float(old[f"seats_{code}"].sum()), float(new[f"seats_{code}"].sum())
+            if before != after:
+                changes.append(f"seats of party {code}: {before:g} -> {after:g}")
+        for key in sorted(set(old.index) | set(new.index)):
+            label = f"district {key[0]}" + (" (special)" if key[1] else "")
+            if key not in new.index:
+                changes.append(f"{label}: dropped")
+            elif key not in old.index:
+                changes.append(f"{label}: added")
+            elif old.at[key, "winner"] != new.at[key, "winner"]:
+                changes.append(f"{label}: winner {old.at[key, 'winner']} -> {new.at[key, 'winner']}")
+        for code in ("a", "b", "other"):
+            before, after = int(old[f"votes_{code}"].sum()), int(new[f"votes_{code}"].sum())
+            if before != after:
+                changes.append(f"votes of {'party ' + code if code != 'other' else 'other parties'}: "
+                               f"{before:,} -> {after:,} ({after - before:+,})")
+        out.append(changes)
+    return out

@@ -18,6 +18,7 @@ import re
 
 import pandas as pd
 
+from monitor.national import HISTOGRAM_FIELDS, SUMMARY_FIELDS
 from monitor.publish import formats as F
 from monitor.publish.collect import SiteData
 
@@ -92,6 +93,18 @@ RESOURCES: list[dict] = [
                 ("drawn_by", "string", "who drew the plan"), ("inferred", "boolean", "plan era inferred, not loaded"),
                 ("seats_at_stake", "number", "mean excess seats over the agreeing cycles (signed)"),
                 ("concurring", "integer", "most measures agreeing in one cycle"), ("since", "integer", "first flagged cycle")]},
+    {"name": "national", "title": "National aggregates per cycle and chamber",
+     "description": "One row per cycle and chamber: states, districts, seats and votes of each party, the districts "
+                    "that enter the measures and party a's two-party share over them after the uncontested policy, "
+                    "uncontested and competitive districts (sums of the stored measures), flagged states and excess "
+                    "seats by who drew the plan (actual minus expected from the national pool; positive favours a). "
+                    "The same table as the command levelfield export national prints.",
+     "fields": SUMMARY_FIELDS},
+    {"name": "national-histogram", "title": "National histogram of district shares",
+     "description": "Districts per bin of party a's two-party share after the uncontested policy, per cycle and "
+                    "chamber: the histogram on the home and cycle pages. Uncontested districts are counted at their "
+                    "imputed share (kind), with the side of 50% their share lies on.",
+     "fields": HISTOGRAM_FIELDS},
     {"name": "plans", "title": "Plan eras",
      "description": "Redistricting plans by state and chamber; inferred eras assume a new plan from each cycle ending in 2.",
      "fields": [("state", "string", "state code"), ("chamber", "string", "chamber code"), ("plan_id", "string", "plan"),
@@ -108,6 +121,14 @@ RESOURCES: list[dict] = [
 ]
 
 
+#: The package's licence entry: not specified, for the publisher to fill in (see ``downloads``).
+DATA_LICENCE = {
+    "name": "notspecified",
+    "title": "Licence not specified: these files hold the publisher's election results and numbers derived from "
+             "them. The publisher must state the licence of the source results here before redistributing them.",
+}
+
+
 def _frame(data: SiteData, name: str) -> pd.DataFrame:
     if name == "results":
         return data.results
@@ -121,6 +142,10 @@ def _frame(data: SiteData, name: str) -> pd.DataFrame:
         return data.events.rename(columns={"direction": "favours"})
     if name == "watch":
         return data.watch
+    if name == "national":
+        return data.national
+    if name == "national-histogram":
+        return data.histogram
     if name == "plans":
         return data.plans
     if name == "loads":
@@ -235,6 +260,13 @@ def downloads(data: SiteData, prefix: str = "downloads") -> tuple[dict[str, byte
                        f"({data.parties['a'].name}); party b is {data.parties['b'].name}.",
         "created": F.rfc3339(data.site_time),
         "keywords": ["elections", "districts", "partisan asymmetry"],
+        # The data are the publisher's: election results they loaded (and numbers derived from them),
+        # under whatever terms those results came with. levelfield cannot know those terms, and
+        # claiming an open licence here would misstate them. So the descriptor says so with the
+        # Open Definition id "notspecified" (a licence id the Data Package spec accepts) and a title
+        # telling the publisher to replace the entry with the data's real licence before
+        # redistributing the files.
+        "licenses": [DATA_LICENCE],
         "resources": resources,
     }
     files[f"{prefix}/datapackage.json"] = (json.dumps(package, indent=2, ensure_ascii=False) + "\n").encode("utf-8")

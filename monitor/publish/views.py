@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from monitor.inputs import UNIT_KEYS
+from monitor.national import measured
 from monitor.publish import charts as C
 from monitor.publish import formats as F
 from monitor.publish import paths as P
@@ -22,6 +23,14 @@ NULL_BANDS = {"efficiency_gap", "mean_median", "declination", "partisan_bias"}
 
 DRAWERS = {"party_a": "party a", "party_b": "party b", "split": "split control", "commission": "a commission",
            "court": "a court", "other": "other"}
+#: The excess-by-drawer groups of :mod:`monitor.national` that are not a ``drawn_by`` code.
+DRAWER_GROUPS = {"inferred": "inferred era (who drew it not recorded)", "no_plan": "no plan era"}
+
+#: Column labels of the seats-and-votes chart's table: which share each line is (the same shares
+#: as the measures table and the seats-votes curve).
+SEATS_VOTES_COLUMNS = {"vote share": "vote share (two-party, after the uncontested policy)",
+                       "seat share": "seat share (districts in the measures)",
+                       "expected seat share": "expected seat share at that vote share (national pool)"}
 
 #: Short names of the measures the flags judge, for dense tables.
 SHORT = {"efficiency_gap": "efficiency gap", "mean_median": "mean-median", "declination": "declination",
@@ -120,20 +129,33 @@ class Views:
 
     def _watch_rows(self, watch: pd.DataFrame, root: str) -> list[dict]:
         rows = []
+        unofficial = self._unofficial_units
         for r in watch.itertuples():
+            severity, stake = _severity_and_stake(r.severity, r.seats_at_stake)
+            cycles = str(r.cycles or "").split()
             rows.append({
                 "state": self.state_label(r.state), "state_code": r.state, "chamber": self.d.chamber_short(r.chamber),
                 "href": root + self.state_path(r.state, r.chamber) if (r.state, r.chamber) in self._pairs else None,
                 "plan_id": r.plan_id, "drawn_by": self.drawer(r.drawn_by), "inferred": bool(r.inferred),
                 "favours": self.party(r.favours), "favours_code": r.favours,
-                "severity": F.number(r.severity, 2), "severity_sort": _num(r.severity),
-                "seats_at_stake": F.signed(r.seats_at_stake, 2), "stake_sort": _num(r.seats_at_stake),
+                "severity": severity, "severity_sort": _num(r.severity),
+                "seats_at_stake": stake, "stake_sort": _num(r.seats_at_stake),
                 "concurring": F.count(r.concurring), "concurring_sort": _num(r.concurring),
                 "measures": [SHORT.get(m, m.replace("_", " ")) for m in F.text(r.measures).split()],
-                "cycles": str(r.cycles or "").split(), "cycles_count": len(str(r.cycles or "").split()),
+                "cycles": [{"cycle": c, "unofficial": (int(c), r.state, r.chamber) in unofficial} for c in cycles],
+                "cycles_count": len(cycles),
+                "unofficial_cycles": [c for c in cycles if (int(c), r.state, r.chamber) in unofficial],
                 "since": "" if F.missing(r.since) else str(int(r.since)),
             })
         return rows
+
+    @property
+    def _unofficial_units(self) -> set:
+        """(cycle, state, chamber) of every current unit whose results are unofficial."""
+        if not hasattr(self, "_unofficial_cache"):
+            u = self.d.units[self.d.units["certification"] == "unofficial"]
+            self._unofficial_cache = {(int(c), s, ch) for c, s, ch in zip(u["cycle"], u["state"], u["chamber"])}
+        return self._unofficial_cache
 
     @property
     def _pairs(self) -> set:
@@ -163,55 +185,85 @@ class Views:
     # --- pages --------------------------------------------------------------------------------
     def home(self, root: str) -> dict:
         d = self.d
-        ctx = {"empty": d.empty, "latest": d.latest_cycle, "previous": d.previous_cycle, "sections": [],
+        ctx = {"empty": d.empty, "latest": d.latest_cycle, "latest_by_chamber": [], "sections": [],
                "provenance": self.provenance(), "watch": self._watch_rows(d.watch.head(10), root),
                "watch_total": len(d.watch), "unofficial": [], "changes": [], "events": []}
         if d.empty:
             return ctx
-        latest = d.latest_cycle
-        ctx["unofficial"] = self._unofficial(d.units[d.units["cycle"] == latest], root)
+        latest = d.chamber_latest()
+        units = d.units[d.units["cycle"] == d.units["chamber"].map(latest)]
         for chamber in d.chambers:
-            hist = self.by("histogram", ("cycle", "chamber"), (latest, chamber))
-            if hist.empty:
-                continue
+            part = units[units["chamber"] == chamber]
+            listed = self._unofficial(part, root)
+            if listed:
+                ctx["unofficial"].append({"chamber": d.chamber_label(chamber), "cycle": latest[chamber],
+                                          "href": root + P.cycle_page(latest[chamber]),
+                                          "all": len(listed) == len(part), "units": listed})
+        for chamber in d.chambers:
+            cycle = latest[chamber]
+            cycles = d.chamber_cycles(chamber)
             label = d.chamber_label(chamber)
             slug = d.chamber_slugs[chamber]
-            section = {"chamber": label, "summary": self._national_summary(chamber), "charts": [],
-                       "histogram": C.histogram(f"hist-{slug}", hist, self.style, latest, label)}
+            ctx["latest_by_chamber"].append({"chamber": label, "cycle": cycle, "href": root + P.cycle_page(cycle)})
+            section = {"chamber": label, "cycle": cycle, "href": root + P.cycle_page(cycle),
+                       "summary": self._national_rows(chamber, cycles[-2:]),
+                       "histogram": self._histogram(f"hist-{slug}", cycle, chamber), "charts": []}
             for measure in d.headline():
-                frame = self._measure_frame(measure, cycle=latest, chamber=chamber)
+                frame = self._measure_frame(measure, cycle=cycle, chamber=chamber)
                 if frame["value"].notna().sum() == 0:
                     continue
                 section["charts"].append(C.distribution(f"dist-{slug}-{measure}", frame, measure, d.label(measure),
-                                                        self.style, latest, label))
+                                                        self.style, cycle, label))
             ctx["sections"].append(section)
-        changes = flag_changes(d)
         ctx["changes"] = [{"state": self.state_label(r.state), "chamber": d.chamber_short(r.chamber),
                            "href": root + self.state_path(r.state, r.chamber) if (r.state, r.chamber) in self._pairs else None,
                            "measure": d.label(r.measure), "change": r.change,
-                           "before": self.party(r.before), "now": self.party(r.now)} for r in changes.itertuples()]
-        recent = d.events[(d.events["cycle"] == latest) | d.events["cycle"].isna()]
-        ctx["events"] = self._events(recent.tail(15), root)
+                           "cycle_before": "" if F.missing(r.cycle_before) else str(int(r.cycle_before)),
+                           "cycle_now": str(int(r.cycle_now)),
+                           "before": self.party(r.before), "now": self.party(r.now)} for r in flag_changes(d).itertuples()]
+        e = d.events
+        at_latest = e["cycle"].astype(float) == e["chamber"].map(latest).astype(float)
+        ctx["events"] = self._events(e[at_latest | e["cycle"].isna()].tail(15), root)
         return ctx
 
-    def _national_summary(self, chamber: str) -> list[dict]:
-        d = self.d
+    def _histogram(self, chart_id: str, cycle: int, chamber: str):
+        """The national histogram of one cycle and chamber (None without districts in the measures),
+        its description completed with the districts it leaves out."""
+        hist = self.by("histogram", ("cycle", "chamber"), (cycle, chamber))
+        if hist.empty:
+            return None
+        chart = C.histogram(chart_id, hist, self.style, cycle, self.d.chamber_label(chamber))
+        n = self.by("national", ("cycle", "chamber"), (cycle, chamber))
+        if len(n):
+            r = n.iloc[0]
+            left_out = int(r["districts"]) - int(r["measured_districts"])
+            if left_out:
+                chart.description += (f" Not shown: {F.count(left_out)} of the {F.count(r['districts'])} districts with "
+                                      "results, which do not enter the measures (multi-member, won by neither major "
+                                      "party, or left out by the uncontested policy).")
+        return chart
+
+    def _national_rows(self, chamber: str, cycles) -> list[dict]:
+        """Rows of the national summary table (:func:`monitor.national.national_summary`)."""
         rows = []
-        window = next((s["value"] for s in d.settings if s["name"] == "measures.competitive_window"), 0.05)
-        flagged = d.tails[(d.tails["chamber"] == chamber) & (d.tails["flagged"].fillna(0).astype(int) == 1)]
-        for cycle in [c for c in (d.previous_cycle, d.latest_cycle) if c is not None]:
-            c = self.by("contests", ("cycle", "chamber"), (cycle, chamber))
-            if c.empty:
+        for cycle in cycles:
+            n = self.by("national", ("cycle", "chamber"), (cycle, chamber))
+            if n.empty:
                 continue
-            two = float((c["votes_a"] + c["votes_b"]).sum())
-            used = c["share_used"].to_numpy(float)
+            r = n.iloc[0]
+            partial = int(r["measured_units"]) < int(r["states"])
             rows.append({
-                "cycle": int(cycle), "states": int(c["state"].nunique()), "districts": F.count(len(c)),
-                "seats_a": F.number(c["seats_a"].sum(), 1), "seats_b": F.number(c["seats_b"].sum(), 1),
-                "vote_a": F.share(c["votes_a"].sum() / two if two else np.nan),
-                "uncontested": F.count((c["status"] != "contested").sum()),
-                "competitive": F.count(np.sum(np.abs(used[np.isfinite(used)] - 0.5) <= window)),
-                "flagged_units": F.count(flagged[flagged["cycle"] == cycle][["state"]].drop_duplicates().shape[0]),
+                "cycle": int(cycle), "href": P.cycle_page(int(cycle)), "states": F.count(r["states"]),
+                "districts": F.count(r["districts"]), "measured": F.count(r["measured_districts"]),
+                "seats_a": F.number(r["seats_a"], 1), "seats_b": F.number(r["seats_b"], 1),
+                "seats_other": F.number(r["seats_other"], 1) if r["seats_other"] else "",
+                "votes_a": F.count(r["votes_a"]), "votes_b": F.count(r["votes_b"]),
+                "vote_share": F.share(r["vote_share"]),
+                "uncontested": F.count(r["uncontested"]), "competitive": F.count(r["competitive"]),
+                "partial": (f"over the {F.count(r['measured_units'])} of {F.count(r['states'])} states with stored "
+                            "measures") if partial else "",
+                "flagged_units": F.count(r["flagged_units"]),
+                "excess": F.signed(r["excess_seats"], 2) if int(r["pool_units"]) else F.DASH,
             })
         return rows
 
@@ -267,6 +319,8 @@ class Views:
         seats = self._seats_over_time(state, chamber, units)
         seats_chart = C.seats_votes_time("seats-votes", seats, plans[["first_cycle", "last_cycle", "era_label"]],
                                          self.style, where) if not seats.empty else None
+        if seats_chart is not None:
+            self._label_seats_votes(seats_chart)
         curve = self.by("curves", ("state", "chamber"), (state, chamber))
         points = self.by("curve_points", ("state", "chamber"), (state, chamber))
         swing = None
@@ -288,6 +342,8 @@ class Views:
             "table": self._measure_table(state, chamber, units),
             "results": self._results(state, chamber),
             "events": self._events(events, root),
+            "corrections": self._corrections(state, chamber),
+            "policy": d.policy,
             "unofficial": [int(c) for c in units.loc[units["certification"] == "unofficial", "cycle"]],
             "provenance": self.provenance(units["load_id"]),
         }
@@ -303,15 +359,20 @@ class Views:
                 "drawn_by": self.drawer(r["drawn_by"]), "inferred": bool(r["inferred"]), "cycle": int(r["cycle"])}
 
     def _seats_over_time(self, state: str, chamber: str, units: pd.DataFrame) -> pd.DataFrame:
-        d = self.d
+        """Party a's vote share and seat share per cycle as the measures define them: the districts
+        that enter the measures, votes after the uncontested policy (the measures table's
+        vote_share and seat_share, the seats-votes curve's observed point); and the seat share the
+        national pool expects at that vote share (the pool conditions on the same vote share and
+        counts the same districts), so that the band compares with the seat-share line."""
         c = self.by("contests", ("state", "chamber"), (state, chamber))
-        if c.empty:
+        rows = measured(c)
+        if rows.empty:
             return pd.DataFrame()
-        g = c.groupby("cycle").agg(va=("votes_a", "sum"), vb=("votes_b", "sum"), sa=("seats_a", "sum"),
-                                   seats=("seats", "sum")).reset_index()
+        g = rows.groupby("cycle").agg(va=("votes_a_used", "sum"), vb=("votes_b_used", "sum"), sa=("seats_a", "sum"),
+                                      n=("district", "size")).reset_index()
         out = pd.DataFrame({"cycle": g["cycle"].astype(int),
                             "vote_share": g["va"] / (g["va"] + g["vb"]).where(lambda s: s > 0),
-                            "seat_share": g["sa"] / g["seats"]})
+                            "seat_share": g["sa"] / g["n"]})
         pool = self.by("pool", ("state", "chamber"), (state, chamber))
         pool = pool.assign(expected_share=pool["expected_seats"] / pool["districts"],
                            expected_low=pool["low"] / pool["districts"], expected_high=pool["high"] / pool["districts"])
@@ -319,6 +380,15 @@ class Views:
         for col in ("vote_share", "seat_share", "expected_share", "expected_low", "expected_high"):
             out[col] = pd.to_numeric(out[col], errors="coerce").astype(float)
         return out
+
+    def _label_seats_votes(self, chart) -> None:
+        """Say in the seats-and-votes chart's table and text which shares its lines are."""
+        chart.columns = [SEATS_VOTES_COLUMNS.get(col, col) for col in chart.columns]
+        chart.description += (f" Vote share: {self.d.parties['a'].name}'s share of the two-party vote after the uncontested "
+                              f"policy ({self.d.policy}), as in the measures table and on the seats-votes curve; seat "
+                              "share: seats won in the districts that enter the measures. The grey band is the seat "
+                              "share expected at that vote share from the national pool: compare it with the "
+                              "seat-share line.")
 
     def _measure_table(self, state: str, chamber: str, units: pd.DataFrame) -> dict:
         d = self.d
@@ -345,7 +415,19 @@ class Views:
             row = [cells.get((cycle, name), F.DASH) for name in present]
             row += [excess.get(cycle, F.DASH), ", ".join(flags.get(cycle, [])) or F.DASH]
             rows.append({"cycle": cycle, "unofficial": cert == "unofficial", "cells": row})
-        return {"columns": [d.label(n) for n in present] + ["Excess seats (national pool)", "Flags"], "rows": rows}
+        labels = {"vote_share": f"{d.label('vote_share')}, two-party, after the uncontested policy",
+                  "seat_share": f"{d.label('seat_share')}, districts in the measures"}
+        return {"columns": [labels.get(n) or d.label(n) for n in present] + ["Excess seats (national pool)", "Flags"],
+                "rows": rows}
+
+    def _corrections(self, state: str, chamber: str) -> list[dict]:
+        """The corrections of this state and chamber, newest first, with what each changed."""
+        c = self.d.corrections
+        c = c[(c["state"] == state) & (c["chamber"] == chamber)]
+        return [{"cycle": int(r.cycle), "load": f"#{int(r.load_id)}", "file_name": r.file_name,
+                 "at": F.stamp(parse_time(r.loaded_at)), "changes": list(r.changes) or ["no difference found"],
+                 "basis": r.basis, "superseded": f"#{int(r.old_load_id)}"}
+                for r in c.sort_values(["load_id", "cycle"], ascending=False).itertuples()]
 
     def _results(self, state: str, chamber: str) -> list[dict]:
         c = self.by("contests", ("state", "chamber"), (state, chamber))
@@ -387,23 +469,25 @@ class Views:
                 for col in ("seats_a", "expected_seats", "low", "high", "excess_seats"):
                     pool[col] = pd.to_numeric(pool[col], errors="coerce").astype(float)
                 pool_chart = C.pool_seats(f"pool-{slug}", pool, self.style, cycle, label)
-                with_plan = pool.merge(d.unit_plans, on=UNIT_KEYS, how="left")
-                with_plan["drawer"] = [self.drawer(x) + (" (inferred)" if inf else "")
-                                       for x, inf in zip(with_plan["drawn_by"], with_plan["inferred"].fillna(0))]
-                by = (with_plan.dropna(subset=["excess_seats"]).groupby("drawer")
-                      .agg(excess_seats=("excess_seats", "sum"), units=("state", "count")).reset_index()
-                      .sort_values("excess_seats", ascending=False))
-                if not by.empty:
-                    drawer_chart = C.excess_by_drawer(f"drawer-{slug}", by, self.style, cycle, label)
+            by = self.by("drawers", ("cycle", "chamber"), (cycle, chamber))
+            if not by.empty:
+                by = by.assign(drawer=[self.drawer_group(k) for k in by["drawer"]])
+                drawer_chart = C.excess_by_drawer(f"drawer-{slug}", by, self.style, cycle, label)
+            earlier = [c for c in d.chamber_cycles(chamber) if c < cycle]
             states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber)}
                       for s in sorted(units.loc[units["chamber"] == chamber, "state"])]
             sections.append({"chamber": label, "charts": charts, "pool": pool_chart, "drawer": drawer_chart,
-                             "states": states})
+                             "states": states, "summary": self._national_rows(chamber, earlier[-1:] + [cycle]),
+                             "histogram": self._histogram(f"hist-{slug}", cycle, chamber)})
         events = self.by("events", ("cycle",), cycle)
         return {"cycle": cycle, "sections": sections, "unofficial": self._unofficial(units, root),
                 "events": self._events(events, root), "provenance": self.provenance(units["load_id"]),
                 "previous": max((c for c in d.cycles if c < cycle), default=None),
                 "next": min((c for c in d.cycles if c > cycle), default=None)}
+
+    def drawer_group(self, key: str) -> str:
+        """The label of an excess-by-drawer group (:data:`monitor.national.DRAWER_KEYS`)."""
+        return DRAWER_GROUPS.get(key) or self.drawer(key)
 
     def methods(self) -> dict:
         d = self.d
@@ -414,7 +498,8 @@ class Views:
                 for m in d.measure_docs]
         settings = [{"name": s["name"], "value": _setting(s["value"]), "default": _setting(s["default"]),
                      "changed": s["value"] != s["default"], "help": s["help"]} for s in d.settings]
-        return {"docs": docs, "settings": settings, "policy": d.policy, "thresholds": d.thresholds}
+        return {"docs": docs, "settings": settings, "policy": d.policy, "thresholds": d.thresholds,
+                "provenance": self.provenance()}
 
 
 def applies(threshold: dict, chamber: str) -> bool:
@@ -427,6 +512,19 @@ def applies(threshold: dict, chamber: str) -> bool:
     if "state" in text:
         return chamber != "federal"
     return True
+
+
+def _severity_and_stake(severity, stake) -> tuple[str, str]:
+    """The watch list's severity and signed seats at stake, shown with one rounding: the stored
+    severity (seats at stake, absolute, two decimals) with the sign of the seats at stake, so that
+    "1.77" never stands beside "(−1.76)"."""
+    if F.missing(severity):
+        return F.DASH, F.signed(stake, 2)
+    shown = f"{abs(float(severity)):.2f}"
+    if F.missing(stake):
+        return shown, F.DASH
+    sign = F.MINUS if float(stake) < 0 else "+"
+    return shown, sign + shown
 
 
 def _num(value) -> str:
