@@ -21,6 +21,28 @@ from monitor.workspace import ENV_VAR, Workspace
 WORKSPACE_HELP = f"Workspace folder (default ./workspace, or ${ENV_VAR})."
 
 
+def _notice(message: str) -> None:
+    """A notice for the user (on stderr, so that exported data on stdout stays clean)."""
+    click.echo(message, err=True)
+
+
+def _workspace_here(ctx: click.Context, param: click.Parameter, value: str | None) -> None:
+    if value is not None:  # given after the command name: it wins over one given before it
+        ctx.obj = Workspace.locate(value, notify=_notice)
+
+
+# every command takes --workspace/-w too, after its name (`levelfield status -w DIR`); the
+# environment variable is read once, by the main group
+workspace_option = click.option("--workspace", "-w", type=click.Path(file_okay=False), expose_value=False,
+                                callback=_workspace_here, help=WORKSPACE_HELP)
+
+
+def _clear(progress) -> None:
+    """Erase the terminal progress line (if any) before printing results."""
+    if progress is not None:
+        progress.clear()
+
+
 def _fail(message: str, code: int) -> None:
     click.echo(message, err=True)
     sys.exit(code)
@@ -81,10 +103,11 @@ def main(ctx: click.Context, workspace: str | None) -> None:
     at the tails of the national distribution and publish a static site. The measures are
     indicators, not legal findings; results are unofficial until certified.
     """
-    ctx.obj = Workspace.locate(workspace)
+    ctx.obj = Workspace.locate(workspace, notify=_notice)
 
 
 @main.command()
+@workspace_option
 @click.pass_obj
 @guarded
 def init(ws: Workspace) -> None:
@@ -99,6 +122,7 @@ def init(ws: Workspace) -> None:
 
 
 @main.command()
+@workspace_option
 @click.argument("files", nargs=-1, required=True, type=click.Path(path_type=Path))
 @click.option("--mapping", "mapping_path", type=click.Path(path_type=Path, dir_okay=False),
               help="TOML mapping that makes a foreign candidate-level CSV loadable.")
@@ -116,25 +140,28 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
     """
     from monitor.ingest import load_file
     from monitor.ingest.mapping import load_mapping
+    from monitor.progress import for_terminal, tell
 
     config = ws.config()
     mapping = load_mapping(mapping_path) if mapping_path else None
-    db = ws.open_store()
+    db = ws.open_store(follow_config=not dry_run)  # a dry run writes nothing (it reports any re-coding)
     worst = 0
-    progress = len(files) > 1 and sys.stderr.isatty()
+    progress = for_terminal()  # one line on a terminal's stderr, redrawn per file; else None
     for number, path in enumerate(files, 1):
-        if progress:
-            click.echo(f"[{number}/{len(files)}] {path}", err=True)
+        tell(progress, "load", number - 1, len(files), str(path))
         try:
             report = load_file(db, path, config, mapping=mapping, source=source, dry_run=dry_run,
                                skip_bad_rows=skip_bad_rows, encoding=encoding)
+            _clear(progress)
         except DataError as exc:
+            _clear(progress)
             for problem in exc.problems:
                 click.echo(f"error: {problem}", err=True)
             click.echo(f"error: {exc.summary}", err=True)
             worst = max(worst, 1)
             continue
         except UsageError as exc:
+            _clear(progress)
             click.echo(f"error: {exc}", err=True)
             worst = 2
             continue
@@ -145,6 +172,7 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
 
 
 @main.command()
+@workspace_option
 @click.pass_obj
 @guarded
 def status(ws: Workspace) -> None:
@@ -157,6 +185,7 @@ def status(ws: Workspace) -> None:
 
 
 @main.command()
+@workspace_option
 @click.option("--full", is_flag=True, help="Recompute every unit, not only those whose inputs or method changed.")
 @click.pass_obj
 @guarded
@@ -166,14 +195,26 @@ def compute(ws: Workspace, full: bool) -> None:
     from monitor.compute import compute as run
     from monitor.flags import run_flags
 
+    from monitor.progress import for_terminal
+
     db, config = ws.open_store(), ws.config()
-    for line in run(db, config, full=full).lines():
+    progress = for_terminal()  # measures stages, then each cycle/chamber group of the flags
+    try:
+        report = run(db, config, full=full, progress=progress)
+    finally:
+        _clear(progress)
+    for line in report.lines():
         click.echo(line)
-    for line in run_flags(db, config, full=full).lines():
+    try:
+        report = run_flags(db, config, full=full, progress=progress)
+    finally:
+        _clear(progress)
+    for line in report.lines():
         click.echo(line)
 
 
 @main.command()
+@workspace_option
 @click.option("--cycle", type=int, help="Only this cycle.")
 @click.option("--chamber", help="Only this chamber.")
 @click.option("--watch", "watch_list", is_flag=True, help="The plans on watch.")
@@ -198,6 +239,7 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
 
 
 @main.command()
+@workspace_option
 @click.argument("file", type=click.Path(path_type=Path, dir_okay=False))
 @click.pass_obj
 @guarded
@@ -216,6 +258,7 @@ def plans(ws: Workspace, file: Path) -> None:
 
 
 @main.command()
+@workspace_option
 @click.option("--inbox", type=click.Path(path_type=Path, file_okay=False), help="Folder to watch (default the workspace's inbox/).")
 @click.option("--every", type=click.IntRange(1, 86_400), help="Seconds between polls (default schedule.poll_seconds, 60).")
 @click.option("--once", is_flag=True, help="Process the inbox once and exit (for cron or CI).")
@@ -225,20 +268,61 @@ def plans(ws: Workspace, file: Path) -> None:
 def watch(ws: Workspace, inbox, every, once, no_publish) -> None:
     """Watch the inbox: load settled files, recompute, republish; verify nightly.
 
-    Loaded files move to archive/<date>/, refused ones to rejected/ with an error report beside
-    them. Stop with Ctrl-C or SIGTERM: the job in progress finishes first.
+    A file is taken once it has not changed between two looks --every seconds apart. Loaded
+    files move to archive/<date>/<sha256>-<name>, refused ones to rejected/ with an error report
+    beside them. Stop with Ctrl-C or SIGTERM: the job in progress finishes first.
+
+    With --once: look at the inbox twice, --every seconds apart (default schedule.poll_seconds),
+    process what settled and exit: 0 when nothing was rejected, 1 when a file was rejected or the
+    recompute failed (see logs/levelfield.log).
     """
+    from monitor.progress import for_terminal
     from monitor.watcher import Service
 
-    service = Service(ws, inbox=inbox, publish=not no_publish)
+    service = Service(ws, inbox=inbox, publish=not no_publish, progress=for_terminal())
     if once:
-        loaded = service.run_once()
-        click.echo(f"processed the inbox: {loaded} file(s) loaded")
+        done = service.run_once(every)
+        click.echo(done.line())
+        if done.error:
+            click.echo(f"error: the run failed: {done.error} (details in {ws.folder('logs') / 'levelfield.log'})",
+                       err=True)
+        if not done.ok:
+            sys.exit(1)
     else:
         service.run_forever(every)
 
 
+@main.command()
+@workspace_option
+@click.pass_obj
+@guarded
+def verify(ws: Workspace) -> None:
+    """Recompute everything from scratch and compare it with what is stored.
+
+    Measures, national pool, tails, flags and watch list are recomputed on a scratch copy of the
+    store (in a temporary folder; the workspace is only read) and every difference is printed,
+    as a changed method version or as a bug. Exit 0 when there is none, 1 when there are
+    differences (`levelfield compute --full` then brings the store up to date).
+    """
+    from monitor.progress import for_terminal
+    from monitor.verify import summary, verify_store
+
+    progress = for_terminal()
+    try:
+        differences = verify_store(ws.open_store(), ws.config(), progress=progress)
+    finally:
+        _clear(progress)
+    for diff in differences:
+        click.echo(str(diff))
+    if differences:
+        click.echo(f"{summary(differences)}; `levelfield compute --full` recomputes the store", err=True)
+        sys.exit(1)
+    click.echo("no difference: the stored measures, national pool, flags and watch list equal a "
+               "from-scratch recompute")
+
+
 @main.group()
+@workspace_option
 def export() -> None:
     """Export stored data as CSV or JSON."""
 
@@ -248,6 +332,7 @@ OUT = click.option("--out", type=click.Path(path_type=Path, dir_okay=False), hel
 
 
 @export.command("results")
+@workspace_option
 @FORMAT
 @OUT
 @click.pass_obj
@@ -261,6 +346,7 @@ def export_results(ws: Workspace, fmt: str, out: Path | None) -> None:
 
 
 @export.command("measures")
+@workspace_option
 @FORMAT
 @OUT
 @click.pass_obj
@@ -273,7 +359,23 @@ def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
     write(to_text(measures_export(ws.open_store()), fmt), out)
 
 
+@export.command("national")
+@workspace_option
+@FORMAT
+@OUT
+@click.pass_obj
+@guarded
+def export_national(ws: Workspace, fmt: str, out: Path | None) -> None:
+    """National aggregates per cycle and chamber: districts, seats and votes of each party, uncontested
+    and competitive districts, flagged states, excess seats by who drew the plan."""
+    from monitor.national import national_export
+    from monitor.output import to_text, write
+
+    write(to_text(national_export(ws.open_store(), ws.config()), fmt), out)
+
+
 @main.command()
+@workspace_option
 @click.option("--out", type=click.Path(path_type=Path, file_okay=False),
               help="Folder to publish into (default the workspace's public/). It is replaced "
                    "entirely, so it must be new, empty or an earlier levelfield site.")
@@ -286,13 +388,21 @@ def publish(ws: Workspace, out: Path | None) -> None:
     the previous site whole. Pages whose content did not change are not rewritten. A folder
     holding other files (or the store) is refused rather than emptied.
     """
+    from monitor.progress import for_terminal, tell
     from monitor.publish import build
 
-    for line in build(ws, out=out).lines():
+    progress = for_terminal()  # the build reports no pages as it goes: the line shows its elapsed time
+    tell(progress, "publish", 0, None, "building the site")
+    try:
+        report = build(ws, out=out)
+    finally:
+        _clear(progress)
+    for line in report.lines():
         click.echo(line)
 
 
 @main.command()
+@workspace_option
 @click.option("--port", type=click.IntRange(0, 65_535), default=8000, show_default=True, help="Port on 127.0.0.1.")
 @click.option("--dir", "directory", type=click.Path(path_type=Path, file_okay=False),
               help="Folder to serve (default the workspace's public/).")

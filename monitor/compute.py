@@ -18,6 +18,7 @@ import sqlite_utils
 from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.measures import MEASURE_VERSIONS, MeasureSettings, compute_measures
+from monitor.progress import tell
 from store import write_from_snapshot
 
 EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value",
@@ -77,17 +78,21 @@ def compute_frame(config: Config, contests: pd.DataFrame) -> tuple[pd.DataFrame,
 
 
 def compute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
-            now: dt.datetime | None = None) -> ComputeReport:
+            now: dt.datetime | None = None, progress=None) -> ComputeReport:
     """Bring the ``measures`` table up to date (incrementally unless ``full``).
 
     Reads, computation and write are one consistent step (:func:`store.write_from_snapshot`): a
-    load committed meanwhile makes the step run again, so stale measures never overwrite new ones."""
+    load committed meanwhile makes the step run again, so stale measures never overwrite new ones.
+    ``progress``: an optional callback (:mod:`monitor.progress`) told each stage."""
     stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
-    return write_from_snapshot(db, lambda: _compute_step(db, config, full, stamp))
+    report = write_from_snapshot(db, lambda: _compute_step(db, config, full, stamp, progress))
+    tell(progress, "measures", 3, 3, f"{report.units_computed} unit(s) computed")
+    return report
 
 
-def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str):
+def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str, progress=None):
     """Read the store and compute the stale units' measures; return the writer."""
+    tell(progress, "measures", 0, 3, "reading the store")
     report = ComputeReport()
     contests = reduced_contests(db)
     arrays = measure_inputs(contests, config, settings_salt(config))
@@ -112,6 +117,7 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     report.units_removed = len(gone)
 
     rows = []
+    tell(progress, "measures", 1, 3, f"computing {len(stale)} unit(s)")
     if len(stale):
         sub = contests[contests["unit_id"].isin(units.loc[stale, "unit_id"])]
         _, long = compute_frame(config, sub)
@@ -122,6 +128,8 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
             for r in long.itertuples(index=False)
         ]
         report.computed = sorted({(r[0], r[1], r[2]) for r in rows})
+
+    tell(progress, "measures", 2, 3, f"writing {len(rows)} row(s)")
 
     def write(conn) -> ComputeReport:
         for key in report.computed + sorted(gone):

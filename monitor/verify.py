@@ -1,43 +1,191 @@
-"""Full verification: recompute every measure from scratch and compare with the store."""
+"""Full verification: recompute everything from scratch and compare with what is stored.
+
+The store is copied (SQLite's online backup: one consistent snapshot, even while a load commits)
+into a scratch database in a temporary folder. On that copy the measures of every unit are
+recomputed, then the national pool, the tails, the flags and the watch list of every cycle and
+chamber (``full=True``: nothing is taken over from earlier runs). The tables as they were in the
+snapshot are then compared with the recomputed ones. The workspace's store is only read.
+
+A difference is either a changed method version (the stored row was computed by an earlier
+version of a measure or of the pool) or a bug (the incremental chain stored something a
+from-scratch run does not give); :class:`Difference` says which.
+"""
 
 from __future__ import annotations
+
+import sqlite3
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import sqlite_utils
 
-from monitor.compute import compute_frame
+import store
 from monitor.config import Config
-from monitor.inputs import UNIT_KEYS, reduced_contests
-from monitor.measures import MEASURE_VERSIONS
+from monitor.progress import Progress, tell
 
 TOLERANCE = 1e-9
 
+METHOD_VERSION = "method version"
+VALUE = "value"
+MISSING = "not stored"
+EXTRA = "no longer computed"
+#: a value that differs where a method version changed: the new method gives it, no bug
+FOLLOWS = "follows a changed method version"
 
-def verify_store(db: sqlite_utils.Database, config: Config) -> list[str]:
-    """Differences between stored measures and a from-scratch recompute, in plain words."""
-    _, fresh = compute_frame(config, reduced_contests(db))
-    stored = pd.read_sql_query(
-        "SELECT cycle, state, chamber, measure, value, low, high, p_value, method_version FROM measures", db.conn)
-    key = [*UNIT_KEYS, "measure"]
-    merged = fresh.merge(stored, on=key, how="outer", suffixes=("", "_stored"), indicator=True)
+
+@dataclass(frozen=True)
+class Difference:
+    table: str
+    key: tuple
+    kind: str  # METHOD_VERSION, VALUE, MISSING or EXTRA
+    column: str = ""
+    stored: object = None
+    recomputed: object = None
+
+    def __str__(self) -> str:
+        where = f"{self.table} {' '.join(map(str, self.key))}"
+        if self.kind == MISSING:
+            return f"{where}: not stored (a full recompute gives it)"
+        if self.kind == EXTRA:
+            return f"{where}: stored but no longer computed"
+        if self.kind == METHOD_VERSION:
+            return (f"{where}: stored with method version {self.stored}, current is {self.recomputed} "
+                    "(a changed method version)")
+        text = f"{where}: {self.column} stored {self.stored!r}, recomputed {self.recomputed!r}"
+        return text + (" (after a changed method version)" if self.kind == FOLLOWS else "")
+
+    @property
+    def explained(self) -> bool:
+        """True for a changed method version and what follows from it; every other difference
+        points at a bug."""
+        return self.kind in (METHOD_VERSION, FOLLOWS)
+
+
+#: table -> (key columns, compared columns, method version column or None)
+TABLES: dict[str, tuple[list[str], list[str], str | None]] = {
+    "measures": (["cycle", "state", "chamber", "measure"],
+                 ["value", "low", "high", "p_value", "reason", "policy"], "method_version"),
+    "pool_seats": (["cycle", "state", "chamber"],
+                   ["districts", "vote_share", "seats_a", "expected_seats", "low", "high", "percentile",
+                    "excess_seats", "draws", "ess", "mc_se", "reason"], "method_version"),
+    "tails": (["cycle", "state", "chamber", "measure"],
+              ["flagged", "direction", "basis", "value", "null_percentile", "null_low", "null_high",
+               "null_dropped", "p_value", "cross_percentile", "robust_z", "robust_z_all", "plan_id", "reason"], None),
+    "watch": (["state", "chamber", "plan_id"],
+              ["favours", "severity", "seats_at_stake", "concurring", "cycles", "measures", "since",
+               "drawn_by", "inferred"], None),
+}
+
+
+def verify_store(db: sqlite_utils.Database, config: Config, *,
+                 progress: Progress | None = None) -> list[Difference]:
+    """Differences between what ``db`` stores and a from-scratch recompute (empty: none)."""
+    from monitor.compute import compute
+    from monitor.flags import run_flags
+
+    with tempfile.TemporaryDirectory(prefix="levelfield-verify-") as tmp:
+        path = Path(tmp) / "scratch.sqlite"
+        tell(progress, "verify", 0, None, "copying the store")
+        target = sqlite3.connect(path)
+        try:
+            db.conn.backup(target)
+        finally:
+            target.close()
+        scratch = store.connect(path)
+        try:
+            stored = {name: _read(scratch, name) for name in TABLES}
+            compute(scratch, config, full=True, progress=progress)
+            run_flags(scratch, config, full=True, progress=progress)
+            fresh = {name: _read(scratch, name) for name in TABLES}
+        finally:
+            scratch.conn.close()
+    out: list[Difference] = []
+    for name, (key, columns, version) in TABLES.items():
+        out += compare(name, stored[name], fresh[name], key, columns, version)
+    return _explain(out)
+
+
+def _explain(differences: list[Difference]) -> list[Difference]:
+    """Mark the value differences that a changed method version accounts for: the tails and
+    pool rows of a unit whose measures changed version, every row of a cycle/chamber group whose
+    pool changed version, and the watch list when any version changed."""
+    units, groups = set(), set()
+    for d in differences:
+        if d.kind == METHOD_VERSION:
+            cycle, state, chamber = d.key[:3]
+            units.add((cycle, state, chamber))
+            if d.table == "pool_seats":
+                groups.add((cycle, chamber))
+    if not units:
+        return differences
     out = []
-    for r in merged.itertuples(index=False):
-        where = f"{r.cycle} {r.state} {r.chamber} {r.measure}"
-        if r._asdict()["_merge"] == "left_only":
-            out.append(f"{where}: not stored")
-            continue
-        if r._asdict()["_merge"] == "right_only":
-            out.append(f"{where}: stored but no longer computed")
-            continue
-        if r.method_version != MEASURE_VERSIONS.get(r.measure):
-            out.append(f"{where}: stored with method version {r.method_version}, current is "
-                       f"{MEASURE_VERSIONS.get(r.measure)}")
-            continue
-        for col in ("value", "low", "high", "p_value"):
-            a, b = getattr(r, col), getattr(r, f"{col}_stored")
-            a = np.nan if a is None else float(a)
-            b = np.nan if b is None else float(b)
-            if np.isnan(a) != np.isnan(b) or (not np.isnan(a) and abs(a - b) > TOLERANCE * max(1, abs(a))):
-                out.append(f"{where}: {col} stored {b!r}, recomputed {a!r}")
+    for d in differences:
+        if d.kind == VALUE:
+            unit = d.key[:3]
+            if d.table == "watch" or unit in units or (unit[0], unit[2]) in groups:
+                d = Difference(d.table, d.key, FOLLOWS, d.column, d.stored, d.recomputed)
+        out.append(d)
     return out
+
+
+def _read(db: sqlite_utils.Database, table: str) -> pd.DataFrame:
+    key, columns, version = TABLES[table]
+    cols = [*key, *columns, *([version] if version else [])]
+    return pd.read_sql_query(f"SELECT {', '.join(cols)} FROM {table}", db.conn)
+
+
+def compare(table: str, stored: pd.DataFrame, fresh: pd.DataFrame, key: list[str], columns: list[str],
+            version: str | None = None) -> list[Difference]:
+    """Row-by-row differences of two frames of one table, matched on ``key``."""
+    merged = fresh.merge(stored, on=key, how="outer", suffixes=("", "_stored"), indicator="side")
+    out = []
+    for r in merged.to_dict("records"):
+        where = tuple(_plain(r[k]) for k in key)
+        if r["side"] == "left_only":
+            out.append(Difference(table, where, MISSING))
+            continue
+        if r["side"] == "right_only":
+            out.append(Difference(table, where, EXTRA))
+            continue
+        if version and r[version] != r[f"{version}_stored"]:
+            out.append(Difference(table, where, METHOD_VERSION, version, r[f"{version}_stored"], r[version]))
+            continue
+        for col in columns:
+            new, old = r[col], r[f"{col}_stored"]
+            if not _same(old, new):
+                out.append(Difference(table, where, VALUE, col, _plain(old), _plain(new)))
+    return out
+
+
+def _missing(x) -> bool:
+    return x is None or (isinstance(x, float) and np.isnan(x)) or x is pd.NA
+
+
+def _same(a, b) -> bool:
+    if _missing(a) or _missing(b):
+        return _missing(a) and _missing(b)
+    if isinstance(a, (int, float, np.number)) and isinstance(b, (int, float, np.number)):
+        a, b = float(a), float(b)
+        return abs(a - b) <= TOLERANCE * max(1.0, abs(a))
+    return a == b
+
+
+def _plain(x):
+    if _missing(x):
+        return None
+    return x.item() if hasattr(x, "item") else x
+
+
+def summary(differences: list[Difference]) -> str:
+    """One line: how many differences, and what they mean."""
+    versions = sum(d.explained for d in differences)
+    other = len(differences) - versions
+    parts = []
+    if versions:
+        parts.append(f"{versions} from a changed method version")
+    if other:
+        parts.append(f"{other} that a from-scratch recompute does not reproduce (a bug)")
+    return f"{len(differences)} difference(s) between the stored and the recomputed results: " + ", ".join(parts)
