@@ -113,3 +113,31 @@ def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) ->
     r["votes_a"] = va.to_numpy()
     r["votes_b"] = vb.to_numpy()
     return r
+
+
+def describe_changes(old: pd.DataFrame, new: pd.DataFrame) -> list[str]:
+    """Plain-words differences between two deliveries of a unit (a correction): seats of each
+    party, districts added or dropped, winners, vote totals.
+
+    ``old`` and ``new``: reduced contests (:func:`reduce_contests` columns) indexed by the
+    contest key ``(district, special)``.
+    """
+    changes = []
+    for code in ("a", "b"):
+        before, after = float(old[f"seats_{code}"].sum()), float(new[f"seats_{code}"].sum())
+        if before != after:
+            changes.append(f"seats of party {code}: {before:g} -> {after:g}")
+    for key in sorted(set(old.index) | set(new.index)):
+        label = f"district {key[0]}" + (" (special)" if key[1] else "")
+        if key not in new.index:
+            changes.append(f"{label}: dropped")
+        elif key not in old.index:
+            changes.append(f"{label}: added")
+        elif old.at[key, "winner"] != new.at[key, "winner"]:
+            changes.append(f"{label}: winner {old.at[key, 'winner']} -> {new.at[key, 'winner']}")
+    for code in ("a", "b", "other"):
+        before, after = int(old[f"votes_{code}"].sum()), int(new[f"votes_{code}"].sum())
+        if before != after:
+            changes.append(f"votes of {'party ' + code if code != 'other' else 'other parties'}: "
+                           f"{before:,} -> {after:,} ({after - before:+,})")
+    return changes

@@ -27,7 +27,7 @@ from monitor.ingest.native import detect_format, parse_native
 from monitor.ingest.reader import csv_rows, decode, decompressed, read_raw
 from monitor.ingest.records import ParseContext, Record, content_hash, key_matches
 from monitor.ingest.validate import check_records
-from monitor.reduce import reduce_contests
+from monitor.reduce import describe_changes, reduce_contests
 from store import queries, transaction
 
 
@@ -390,25 +390,6 @@ def _describe_changes(conn, old_unit_id: int, new: pd.DataFrame, new_keys: dict[
     old_votes["key"] = list(zip(old_votes["district"], old_votes["special"].astype(bool)))
     old_contests = old_votes.drop_duplicates("contest_id")[["contest_id", "seats", "key"]]
     old = reduce_contests(old_votes, old_contests).set_index("contest_id")
-    old_keys = dict(zip(old_contests["key"], old_contests["contest_id"]))
-    changes = []
-    for code in ("a", "b"):
-        before, after = old[f"seats_{code}"].sum(), new[f"seats_{code}"].sum()
-        if before != after:
-            changes.append(f"seats of party {code}: {before:g} -> {after:g}")
-    for key in sorted(set(old_keys) | set(new_keys)):
-        label = f"district {key[0]}" + (" (special)" if key[1] else "")
-        if key not in new_keys:
-            changes.append(f"{label}: dropped")
-        elif key not in old_keys:
-            changes.append(f"{label}: added")
-        else:
-            w0, w1 = old.loc[old_keys[key], "winner"], new.loc[new_keys[key], "winner"]
-            if w0 != w1:
-                changes.append(f"{label}: winner {w0} -> {w1}")
-    for code in ("a", "b", "other"):
-        before, after = int(old[f"votes_{code}"].sum()), int(new[f"votes_{code}"].sum())
-        if before != after:
-            changes.append(f"votes of {'party ' + code if code != 'other' else 'other parties'}: "
-                           f"{before:,} -> {after:,} ({after - before:+,})")
-    return changes
+    old.index = old_contests.set_index("contest_id")["key"].reindex(old.index).tolist()
+    new = new.loc[list(new_keys.values())].set_axis(list(new_keys.keys()))
+    return describe_changes(old, new)

@@ -25,7 +25,7 @@ from monitor.inputs import UNIT_KEYS, reduced_contests
 from monitor.measures.swing import seat_share_at
 from monitor.national import (contest_shares, excess_by_drawer, measured, national_summary, plans_of_units,
                               share_histogram)
-from monitor.reduce import reduce_contests
+from monitor.reduce import describe_changes, reduce_contests
 from monitor.results import results_export
 from monitor.publish.paths import unique_slugs
 from store import queries
@@ -469,22 +469,6 @@ def _compare_units(db: sqlite_utils.Database, rows) -> list[list[str]]:
         changes = []
         if r.old_certification != r.certification:
             changes.append(f"status: {r.old_certification} -> {r.certification}")
-        for code in ("a", "b"):
-            before, after = float(old[f"seats_{code}"].sum()), float(new[f"seats_{code}"].sum())
-            if before != after:
-                changes.append(f"seats of party {code}: {before:g} -> {after:g}")
-        for key in sorted(set(old.index) | set(new.index)):
-            label = f"district {key[0]}" + (" (special)" if key[1] else "")
-            if key not in new.index:
-                changes.append(f"{label}: dropped")
-            elif key not in old.index:
-                changes.append(f"{label}: added")
-            elif old.at[key, "winner"] != new.at[key, "winner"]:
-                changes.append(f"{label}: winner {old.at[key, 'winner']} -> {new.at[key, 'winner']}")
-        for code in ("a", "b", "other"):
-            before, after = int(old[f"votes_{code}"].sum()), int(new[f"votes_{code}"].sum())
-            if before != after:
-                changes.append(f"votes of {'party ' + code if code != 'other' else 'other parties'}: "
-                               f"{before:,} -> {after:,} ({after - before:+,})")
+        changes += describe_changes(old, new)
         out.append(changes)
     return out
