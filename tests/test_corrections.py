@@ -221,3 +221,17 @@ def test_a_dry_run_after_a_label_change_writes_nothing_and_says_what_would_chang
     result = loaded("load", "--dry-run", loaded.write("next.csv", long_csv(rows)))
     assert "warning: party labels changed in levelfield.toml: 1 vote line would be re-coded" in result.stdout
     assert loaded.dump() == before
+
+
+def test_a_label_change_that_touches_no_stored_line_changes_nothing(lf):
+    # also the path of a store made before the label basis was kept: the basis differs, no line
+    # needs a new code
+    lf("load", lf.write("rx.csv", long_csv(LANTERN_ROWS)))
+    before = lf.dump()
+    relabel(lf, ["Harbour", "Harbour-Lantern", "Tideline"])  # 'Tideline' is on no stored line
+    result = lf("status")
+    assert "party labels changed in levelfield.toml: 0 vote lines re-coded" in result.stderr
+    assert lf.rows("SELECT label FROM party_labels ORDER BY label") == [
+        ("harbour",), ("harbour-lantern",), ("tideline",), ("upland",)]
+    assert [line for line in lf.dump() if "party_labels" not in line] == \
+        [line for line in before if "party_labels" not in line]

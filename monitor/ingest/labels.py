@@ -53,7 +53,8 @@ def recode(conn: sqlite3.Connection, labels: dict[str, str]) -> int | None:
     lines = queries.votes_coded_from(conn, CONFIG)
     queries.replace_party_labels(conn, labels)
     wanted = lines["party"].map(lambda p: labels.get(normalise_label(p), "other"))
-    changed = lines[wanted != lines["party_code"]].assign(new=wanted)
+    # (assigning to the filtered frame would give an empty one the Series' index: NaN rows)
+    changed = lines.assign(new=wanted)[wanted != lines["party_code"]]
     if changed.empty:
         # no basis stored yet (a store from before the basis was kept) and nothing to change:
         # nothing the user needs to hear about
