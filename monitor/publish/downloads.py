@@ -15,6 +15,7 @@ import hashlib
 import io
 import json
 import re
+from collections.abc import Iterator
 
 import pandas as pd
 
@@ -222,14 +223,21 @@ def _sha(content: bytes) -> str:
 def downloads(data: SiteData, prefix: str = "downloads") -> tuple[dict[str, bytes], list[dict]]:
     """The download files (path -> bytes, paths under ``prefix``) including ``datapackage.json``,
     and a listing for the downloads page."""
-    files: dict[str, bytes] = {}
-    resources, listing = [], []
+    listing: list[dict] = []
+    files = dict(iter_downloads(data, prefix, listing))
+    return files, listing
+
+
+def iter_downloads(data: SiteData, prefix: str, listing: list[dict]) -> Iterator[tuple[str, bytes]]:
+    """The download files one resource at a time (so a build never holds them all), then
+    ``datapackage.json``; each resource's entry for the downloads page is appended to ``listing``."""
+    resources = []
     for spec in RESOURCES:
         frame = _frame(data, spec["name"])
         base = spec["name"].replace("-", "_")
         csv_bytes, json_bytes = to_csv(frame, spec["fields"]), to_json(frame, spec["fields"])
-        files[f"{prefix}/{base}.csv"] = csv_bytes
-        files[f"{prefix}/{base}.json"] = json_bytes
+        yield f"{prefix}/{base}.csv", csv_bytes
+        yield f"{prefix}/{base}.json", json_bytes
         schema = {"fields": [{"name": n, "type": t, "description": d} for n, t, d in spec["fields"]],
                   "missingValues": [""]}
         resources.append({
@@ -269,8 +277,7 @@ def downloads(data: SiteData, prefix: str = "downloads") -> tuple[dict[str, byte
         "licenses": [DATA_LICENCE],
         "resources": resources,
     }
-    files[f"{prefix}/datapackage.json"] = (json.dumps(package, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
-    return files, listing
+    yield f"{prefix}/datapackage.json", (json.dumps(package, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
 
 
 def check_types(fields) -> list[str]:

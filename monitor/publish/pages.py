@@ -20,7 +20,7 @@ from markupsafe import Markup
 from monitor.publish import formats as F
 from monitor.publish import paths as P
 from monitor.publish.collect import SiteData
-from monitor.publish.downloads import downloads
+from monitor.publish.downloads import iter_downloads
 from monitor.publish.feed import atom_feed
 from monitor.publish.views import Views
 
@@ -99,9 +99,8 @@ class Renderer:
             path = P.cycle_page(cycle)
             yield self.page(path, "cycle.html", f"Cycle {cycle}", "cycles", **v.cycle(cycle, _root(path)))
         yield self.page(P.METHODS, "methods.html", "Methods", "methods", **v.methods())
-        files, listing = downloads(d, P.DOWNLOAD_DIR)
-        yield from files.items()
-        del files
+        listing: list[dict] = []
+        yield from iter_downloads(d, P.DOWNLOAD_DIR, listing)
         yield self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=listing,
                         datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
         yield P.FEED, atom_feed(d, v, P.FEED)
