@@ -27,7 +27,6 @@ import signal
 import sqlite3
 import subprocess
 import sys
-import time
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
@@ -35,7 +34,7 @@ import pytest
 
 from conftest import CONFIG, ENV_VAR, SAMPLE, Levelfield, dump_store
 from monitor.workspace import Workspace
-from reliability.makers import Shape, write_results
+from reliability.makers import Shape, wait_for, write_results
 
 ATOM = "{http://www.w3.org/2005/Atom}"
 SMALL = Shape(cycles=(2020, 2022), states=4, districts=30)  # 8 units, 2 cycle/chamber groups
@@ -65,13 +64,18 @@ def published_sample(sample_workspace, tmp_path_factory) -> Path:
     return root
 
 
-@pytest.fixture
-def sample(published_sample, tmp_path, monkeypatch) -> Levelfield:
+def _levelfield_on_copy(src: Path, tmp_path: Path, monkeypatch) -> Levelfield:
+    """A test's own copy of a prepared workspace, driven through the CLI."""
     monkeypatch.delenv(ENV_VAR, raising=False)
-    copy_workspace(published_sample, tmp_path / "ws")
+    copy_workspace(src, tmp_path / "ws")
     files = tmp_path / "files"
     files.mkdir()
     return Levelfield(tmp_path / "ws", files)
+
+
+@pytest.fixture
+def sample(published_sample, tmp_path, monkeypatch) -> Levelfield:
+    return _levelfield_on_copy(published_sample, tmp_path, monkeypatch)
 
 
 @pytest.fixture(scope="module")
@@ -101,11 +105,7 @@ def _fresh(root: Path, migrated_store: bytes) -> Workspace:
 
 @pytest.fixture
 def small(small_store, tmp_path, monkeypatch) -> Levelfield:
-    monkeypatch.delenv(ENV_VAR, raising=False)
-    copy_workspace(small_store, tmp_path / "ws")
-    files = tmp_path / "files"
-    files.mkdir()
-    return Levelfield(tmp_path / "ws", files)
+    return _levelfield_on_copy(small_store, tmp_path, monkeypatch)
 
 
 @pytest.fixture
@@ -141,17 +141,6 @@ def watcher_state(root: Path) -> dict:
         return json.loads((root / "logs" / "watcher-state.json").read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return {}
-
-
-def wait_for(predicate, timeout: float, what: str):
-    """Poll ``predicate`` until true (a hang guard, not a speed claim)."""
-    end = time.monotonic() + timeout
-    while time.monotonic() < end:
-        value = predicate()
-        if value:
-            return value
-        time.sleep(0.05)
-    raise AssertionError(f"timed out waiting for {what}")
 
 
 def env() -> dict:

@@ -10,6 +10,7 @@ import csv
 import gzip
 import random
 import sqlite3
+import time
 import zlib
 from dataclasses import dataclass
 from pathlib import Path
@@ -63,6 +64,18 @@ def write_results(path: Path, shape: Shape, *, seed: int = 0, bump: int = 0, com
                             out.writerow([cycle, state, chamber, d, label, f"Cand {state}-{d}-{line}", votes])
                     counts[(cycle, state, chamber)] = (shape.districts, shape.districts * shape.lines)
     return counts
+
+
+def wait_for(predicate, timeout: float, what: str):
+    """Poll ``predicate`` until it returns something true and return that (a hang guard, not a
+    speed claim); fail the test after ``timeout`` seconds."""
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        value = predicate()
+        if value:
+            return value
+        time.sleep(0.05)
+    raise AssertionError(f"timed out waiting for {what}")
 
 
 def gzip_bomb(path: Path, decompressed_bytes: int, *, chunk: int = 8 * 2**20) -> int:

@@ -20,12 +20,11 @@ import sys
 import time
 from pathlib import Path
 
-import pytest
 
 from conftest import ENV_VAR
 
 from reliability.conftest import LONG
-from reliability.makers import Shape, Warm, open_plain, write_results
+from reliability.makers import Shape, Warm, open_plain, wait_for, write_results
 
 ROUNDS = 10 if LONG else 3
 
@@ -40,16 +39,6 @@ def shapes(round_: int) -> dict[str, Shape]:
     return {name: Shape(cycles=(1800 + 20 * round_ + i,), states=12 if name.startswith("inbox") else 6,
                         districts=60 if name.startswith("inbox") else 50)
             for i, name in enumerate(INBOX + A + B)}
-
-
-def wait_for(predicate, timeout: float, what: str):
-    end = time.monotonic() + timeout
-    while time.monotonic() < end:
-        value = predicate()
-        if value:
-            return value
-        time.sleep(0.05)
-    raise AssertionError(f"timed out waiting for {what}")
 
 
 def log_events(root: Path) -> list[dict]:
