@@ -19,6 +19,7 @@ from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.measures import MEASURE_VERSIONS, MeasureSettings, compute_measures
 from monitor.progress import tell
+from store import measures as store_measures
 from store import write_from_snapshot
 
 EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value",
@@ -98,8 +99,7 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     arrays = measure_inputs(contests, config, settings_salt(config))
     units = arrays.units
     report.units_total = len(units)
-    stored = pd.read_sql_query(
-        "SELECT cycle, state, chamber, measure, inputs_hash, method_version FROM measures", db.conn)
+    stored = store_measures.stored_hashes(db)
     stale = units.index.to_numpy()
     if not full and not stored.empty:
         fresh = set()
@@ -132,13 +132,7 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     tell(progress, "measures", 2, 3, f"writing {len(rows)} row(s)")
 
     def write(conn) -> ComputeReport:
-        for key in report.computed + sorted(gone):
-            conn.execute("DELETE FROM measures WHERE cycle = ? AND state = ? AND chamber = ?", list(key))
-        conn.executemany(
-            "INSERT INTO measures (cycle, state, chamber, measure, value, low, high, p_value, reason, "
-            "method_version, policy, inputs_hash, unit_id, computed_at) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
-            rows,
-        )
+        store_measures.replace_units(conn, report.computed + sorted(gone), rows)
         report.rows_written = len(rows)
         return report
 
@@ -147,7 +141,4 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
 
 def measures_export(db: sqlite_utils.Database) -> pd.DataFrame:
     """The stored measures with the fixed export columns (a contract other tools read)."""
-    return pd.read_sql_query(
-        f"SELECT {', '.join(EXPORT_COLUMNS)} FROM measures ORDER BY cycle, state, chamber, measure",
-        db.conn,
-    )
+    return store_measures.read(db, EXPORT_COLUMNS)

@@ -41,6 +41,8 @@ from monitor.compute import measure_settings, settings_salt
 from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.plans import assign_plans, write_inferred
+from store import flags as store_flags
+from store import measures as store_measures
 from store import write_from_snapshot
 
 POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
@@ -321,14 +323,12 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     units = arrays.units
     loads = contests.drop_duplicates("unit_id").set_index("unit_id")["load_id"]
     plans, inferred = assign_plans(db, units)
-    stored_hash = dict(db.execute(
-        "SELECT cycle || '|' || chamber, MIN(inputs_hash) FROM pool_seats GROUP BY cycle, chamber").fetchall())
-    old_seats = pd.read_sql_query("SELECT * FROM pool_seats", db.conn)
-    old_tails = pd.read_sql_query("SELECT * FROM tails", db.conn)
-    old_watch = pd.read_sql_query("SELECT * FROM watch", db.conn)
-    pvals = pd.read_sql_query(
-        "SELECT cycle, state, chamber, measure, value, p_value, reason FROM measures WHERE measure IN (?, ?)",
-        db.conn, params=[P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
+    stored_hash = store_flags.group_hashes(db)
+    old_seats = store_flags.read_all(db, "pool_seats")
+    old_tails = store_flags.read_all(db, "tails")
+    old_watch = store_flags.read_all(db, "watch")
+    pvals = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "p_value", "reason"],
+                                [P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
     seat_frames, tail_frames = [], []
     groups = units.groupby(["cycle", "chamber"], sort=True)
     for done, ((cycle, chamber), part) in enumerate(groups):
@@ -364,35 +364,17 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     events += _watch_events(old_watch, watch, _plan_cycles(plans), group_load, stamp)
     report.events = [e["text"] for e in events]
 
-    def write(conn) -> None:
+    def write(conn) -> FlagsReport:
         write_inferred(conn, inferred)
-        conn.execute("DELETE FROM pool_seats")
-        seat_cols = ["cycle", "state", "chamber", "districts", "vote_share", "seats_a", "expected_seats", "low",
-                     "high", "percentile", "excess_seats", "draws", "ess", "mc_se", "reason", "inputs_hash"]
-        conn.executemany(
-            f"INSERT INTO pool_seats ({', '.join(seat_cols)}, method_version, computed_at) "
-            f"VALUES ({', '.join('?' for _ in seat_cols)}, ?, ?)",
-            [(*[_sql(r.get(c)) for c in seat_cols], POOL_METHOD_VERSION, stamp) for r in seats.to_dict("records")],
-        )
-        conn.execute("DELETE FROM tails")
-        tail_cols = ["cycle", "state", "chamber", "measure", "value", "null_percentile", "null_low", "null_high",
-                     "null_dropped", "p_value", "cross_percentile", "robust_z", "robust_z_all", "flagged",
-                     "direction", "basis", "plan_id", "reason"]
-        conn.executemany(
-            f"INSERT INTO tails ({', '.join(tail_cols)}, computed_at) VALUES ({', '.join('?' for _ in tail_cols)}, ?)",
-            [(*[_sql(r.get(c)) for c in tail_cols], stamp) for r in judged.to_dict("records")],
-        )
-        conn.execute("DELETE FROM watch")
-        watch_cols = list(watch.columns)
-        conn.executemany(
-            f"INSERT INTO watch ({', '.join(watch_cols)}, computed_at) VALUES ({', '.join('?' for _ in watch_cols)}, ?)",
-            [(*[_sql(r[c]) for c in watch_cols], stamp) for r in watch.to_dict("records")],
-        )
-        conn.executemany(
-            "INSERT INTO flag_events (scope, cycle, state, chamber, plan_id, measure, event, direction, why, at, load_id) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            [(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
-              e["direction"], e["why"], stamp, e["load_id"]) for e in events],
+        store_flags.replace_all(
+            conn,
+            seats=[(*[_sql(r.get(c)) for c in store_flags.SEAT_COLUMNS], POOL_METHOD_VERSION, stamp)
+                   for r in seats.to_dict("records")],
+            tails=[(*[_sql(r.get(c)) for c in store_flags.TAIL_COLUMNS], stamp) for r in judged.to_dict("records")],
+            watch_columns=list(watch.columns),
+            watch=[(*[_sql(r[c]) for c in watch.columns], stamp) for r in watch.to_dict("records")],
+            events=[(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
+                     e["direction"], e["why"], stamp, e["load_id"]) for e in events],
         )
         return report
 
@@ -528,10 +510,6 @@ def _stake_text(stake) -> str:
     return f"seats at stake {stake:+.1f} (positive favours a)"
 
 
-WATCH_CSV_COLUMNS = ["state", "chamber", "plan_id", "favours", "severity", "cycles", "measures",
-                     "drawn_by", "inferred", "seats_at_stake", "concurring", "since"]
-
-
 def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None,
                chamber: str | None = None) -> pd.DataFrame:
     """What ``levelfield flags`` prints: flagged units, the watch list or the flag history.
@@ -540,35 +518,13 @@ def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None
     plan per decade was assumed). Cycles are integers (empty for plan-level events)."""
     if show not in ("flags", "watch", "changes"):
         raise ValueError(f"show must be flags, watch or changes, got {show!r}")
-    where, params = [], []
-    if chamber is not None:
-        where.append("x.chamber = ?")
-        params.append(chamber)
     if show == "watch":
-        if cycle is not None:
-            where.append("(' ' || x.cycles || ' ') LIKE ?")
-            params.append(f"% {cycle} %")
-        clause = f"WHERE {' AND '.join(where)}" if where else ""
-        return pd.read_sql_query(
-            f"SELECT {', '.join('x.' + c for c in WATCH_CSV_COLUMNS)} FROM watch x {clause} "
-            "ORDER BY x.severity DESC, x.concurring DESC, x.state, x.chamber, x.plan_id", db.conn, params=params)
-    if cycle is not None:
-        where.append("x.cycle = ?")
-        params.append(cycle)
-    plan = ("LEFT JOIN plans p ON p.state = x.state AND p.chamber = x.chamber AND p.plan_id = x.plan_id")
+        return store_flags.watch_view(db, cycle, chamber)
     if show == "changes":
-        clause = f"WHERE {' AND '.join(where)}" if where else ""
-        frame = pd.read_sql_query(
-            "SELECT x.id, x.at, x.scope, x.event, x.cycle, x.state, x.chamber, x.plan_id, p.inferred, x.measure, "
-            f"x.direction AS favours, x.why, x.load_id FROM flag_events x {plan} {clause} ORDER BY x.id",
-            db.conn, params=params)
+        frame = store_flags.changes_view(db, cycle, chamber)
         for col in ("cycle", "load_id", "inferred"):
             frame[col] = frame[col].astype("Int64")
         return frame
-    where.append("x.flagged = 1")
-    frame = pd.read_sql_query(
-        "SELECT x.cycle, x.state, x.chamber, x.plan_id, p.inferred, x.measure, x.direction AS favours, x.basis, "
-        f"x.value, x.null_percentile, x.p_value FROM tails x {plan} WHERE {' AND '.join(where)} "
-        "ORDER BY x.cycle, x.state, x.chamber, x.measure", db.conn, params=params)
+    frame = store_flags.flagged_view(db, cycle, chamber)
     frame["inferred"] = frame["inferred"].astype("Int64")
     return frame

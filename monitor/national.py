@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from monitor.reduce import two_party_inputs
+from store import tables
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
 GROUP = ["cycle", "chamber"]
@@ -258,20 +259,11 @@ def national_export(db, config) -> pd.DataFrame:
     from monitor.inputs import reduced_contests
 
     contests = contest_shares(reduced_contests(db), config["uncontested.policy"], config["uncontested.winner_share"])
-    tables = set(db.table_names())
-
-    def read(sql: str, columns: list[str], table: str) -> pd.DataFrame:
-        if table not in tables:
-            return pd.DataFrame(columns=columns)
-        return pd.read_sql_query(sql, db.conn)
-
-    measures = read("SELECT cycle, state, chamber, measure, value FROM measures "
-                    "WHERE measure IN ('uncontested', 'competitive')",
-                    [*UNIT_KEYS, "measure", "value"], "measures")
-    tails = read("SELECT cycle, state, chamber, flagged FROM tails", [*UNIT_KEYS, "flagged"], "tails")
-    pool = read("SELECT cycle, state, chamber, excess_seats FROM pool_seats", [*UNIT_KEYS, "excess_seats"],
-                "pool_seats")
-    plans = read("SELECT state, chamber, plan_id, first_cycle, last_cycle, drawn_by, inferred FROM plans",
-                 ["state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "inferred"], "plans")
+    measures = tables.read_table(db, "measures", [*UNIT_KEYS, "measure", "value"],
+                                 where="measure IN ('uncontested', 'competitive')")
+    tails = tables.read_table(db, "tails", [*UNIT_KEYS, "flagged"])
+    pool = tables.read_table(db, "pool_seats", [*UNIT_KEYS, "excess_seats"])
+    plans = tables.read_table(db, "plans", ["state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by",
+                                            "inferred"])
     units = contests[UNIT_KEYS].drop_duplicates()
     return national_summary(contests, measures, tails, pool, plans_of_units(units, plans))

@@ -23,6 +23,7 @@ import pandas as pd
 import sqlite_utils
 
 import store
+from store import tables
 from monitor.config import Config
 from monitor.progress import Progress, tell
 
@@ -133,8 +134,7 @@ def _explain(differences: list[Difference]) -> list[Difference]:
 
 def _read(db: sqlite_utils.Database, table: str) -> pd.DataFrame:
     key, columns, version = TABLES[table]
-    cols = [*key, *columns, *([version] if version else [])]
-    return pd.read_sql_query(f"SELECT {', '.join(cols)} FROM {table}", db.conn)
+    return tables.read_table(db, table, [*key, *columns, *([version] if version else [])])
 
 
 def compare(table: str, stored: pd.DataFrame, fresh: pd.DataFrame, key: list[str], columns: list[str],

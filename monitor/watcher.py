@@ -41,12 +41,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from monitor.errors import DataError, LevelfieldError, UsageError
-from monitor.lock import WorkspaceLock
+from monitor.lock import STATE_FILE, WorkspaceLock, read_state
 from monitor.logbook import EventLog
 from monitor.progress import Progress, tell
 from monitor.workspace import Workspace
 
-STATE_FILE = "watcher-state.json"
 #: how often the running watcher records that it is alive (``seen_at``) when nothing else changes
 HEARTBEAT_SECONDS = 10
 
@@ -154,10 +153,7 @@ class Service:
 
     # -- state shown by `levelfield status` -------------------------------------------------
     def _read_state(self) -> dict:
-        try:
-            return json.loads(self.state_path.read_text(encoding="utf-8"))
-        except (OSError, json.JSONDecodeError):
-            return {"jobs": {}}
+        return read_state(self.state_path) or {"jobs": {}}
 
     def _write_state(self, **updates) -> None:
         with self._state_lock:

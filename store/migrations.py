@@ -10,7 +10,7 @@ import datetime as _dt
 
 import sqlite_utils
 
-from store.db import transaction
+from store.tx import transaction
 
 MIGRATIONS: list[tuple[int, str, str]] = [
     (

@@ -28,7 +28,7 @@ from monitor.national import (contest_shares, excess_by_drawer, measured, nation
 from monitor.reduce import describe_changes, reduce_contests
 from monitor.results import results_export
 from monitor.publish.paths import unique_slugs
-from store import queries
+from store import history, queries, tables
 
 #: Chamber codes of the sample contract, in display order, with their labels.
 CHAMBER_LABELS = {"federal": "Federal lower chamber", "state_lower": "State legislature, lower chamber"}
@@ -213,7 +213,7 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
     plans = tables["plans"]
     for col in ("inferred",):
         plans[col] = plans[col].fillna(0).astype(int)
-    states = _states(db)
+    states = history.state_names(db)
     loaded = tables["loads"][tables["loads"]["outcome"] == "loaded"]
     site_time = source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH
     curves, points = seats_votes_curves(contests)
@@ -252,27 +252,9 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
 
 def _table(db: sqlite_utils.Database, name: str) -> pd.DataFrame:
     """A table (or the current units) with its known columns, empty when absent."""
-    columns = _COLUMNS[name]
     if name == "units":
-        sql = ("SELECT id AS unit_id, cycle, state, chamber, certification, load_id FROM units "
-               "WHERE superseded_by IS NULL ORDER BY cycle, state, chamber")
-    else:
-        if name not in db.table_names():
-            return pd.DataFrame(columns=columns)
-        present = set(db[name].columns_dict)
-        cols = [c for c in columns if c in present]
-        sql = f"SELECT {', '.join(cols)} FROM {name} ORDER BY {_ORDER[name]}"
-    frame = pd.read_sql_query(sql, db.conn)
-    for col in columns:
-        if col not in frame:
-            frame[col] = None
-    return frame[columns]
-
-
-def _states(db: sqlite_utils.Database) -> dict[str, str]:
-    if "states" not in db.table_names():
-        return {}
-    return {code: name for code, name in db.execute("SELECT code, name FROM states ORDER BY code") if name}
+        return history.current_units(db)[_COLUMNS["units"]]
+    return tables.read_table(db, name, _COLUMNS[name], _ORDER[name])
 
 
 def _settings(config: Config) -> list[dict]:
@@ -398,14 +380,7 @@ def corrections(db: sqlite_utils.Database) -> pd.DataFrame:
     """Every unit a load superseded (a correction), oldest first, with what changed: from the
     load's stored report when it has this unit's entry (``basis`` = ``load report``), otherwise by
     comparing the superseded unit with its successor (``basis`` = ``compared``)."""
-    if "units" not in db.table_names():
-        return pd.DataFrame(columns=CORRECTION_COLUMNS)
-    frame = pd.read_sql_query(
-        "SELECT l.id AS load_id, l.file_name, l.sha256, l.loaded_at, l.report, n.cycle, n.state, n.chamber, "
-        "n.id AS unit_id, n.certification, o.id AS old_unit_id, o.load_id AS old_load_id, "
-        "o.certification AS old_certification "
-        "FROM units n JOIN units o ON o.id = n.supersedes JOIN loads l ON l.id = n.load_id "
-        "WHERE l.outcome = 'loaded' ORDER BY l.id, n.cycle, n.state, n.chamber", db.conn)
+    frame = history.corrections(db)
     if frame.empty:
         return pd.DataFrame(columns=CORRECTION_COLUMNS)
     reports: dict[int, dict | None] = {}
