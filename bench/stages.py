@@ -197,12 +197,12 @@ def stage_compute(args: dict) -> dict:
 
 
 def _inputs(args):
-    from monitor.compute import measure_settings, settings_salt
+    from monitor.compute import settings_salt
     from monitor.inputs import measure_inputs, reduced_contests
 
     ws, db, config = _workspace(args["ws"], args["data"], args["store"])
     arrays = measure_inputs(reduced_contests(db), config, settings_salt(config))
-    return config, arrays, measure_settings(config)
+    return config, arrays, config.measures
 
 
 def stage_measures(args: dict) -> dict:

@@ -9,7 +9,8 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-from dataclasses import dataclass, field, fields
+import dataclasses
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -17,7 +18,7 @@ import sqlite_utils
 
 from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
-from monitor.measures import MEASURE_VERSIONS, MeasureSettings, compute_measures
+from monitor.measures import MEASURE_VERSIONS, compute_measures
 from monitor.progress import tell
 from store import measures as store_measures
 from store import write_from_snapshot
@@ -26,23 +27,10 @@ EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high"
                   "method_version", "policy"]
 
 
-def measure_settings(config: Config) -> MeasureSettings:
-    """The engine's settings from the ``[measures]`` section (options the engine does not know
-    are ignored; options the config does not set keep the engine's defaults)."""
-    known = {f.name for f in fields(MeasureSettings)}
-    values = {}
-    for name in known:
-        try:
-            values[name] = config[f"measures.{name}"]
-        except KeyError:
-            continue
-    return MeasureSettings(**values)
-
-
 def settings_salt(config: Config) -> str:
-    settings = measure_settings(config)
-    parts = {f.name: getattr(settings, f.name) for f in fields(settings)}
-    parts["seed"] = config["measures.seed"]
+    """What, besides a unit's districts, its measures depend on: the ``[measures]`` settings
+    (seed included) and every measure's method version. Part of every inputs hash."""
+    parts = dataclasses.asdict(config.measures)
     parts["versions"] = MEASURE_VERSIONS
     return json.dumps(parts, sort_keys=True, default=str)
 
@@ -72,7 +60,7 @@ def compute_frame(config: Config, contests: pd.DataFrame) -> tuple[pd.DataFrame,
         return units, pd.DataFrame(columns=[*UNIT_KEYS, "measure", "value", "low", "high", "p_value", "reason"])
     rng = np.random.default_rng(config["measures.seed"])
     long = compute_measures(arrays.unit, arrays.votes_a, arrays.votes_b, arrays.uncontested,
-                            len(units), measure_settings(config), rng)
+                            len(units), config.measures, rng)
     keys = units[[*UNIT_KEYS, "unit_id", "inputs_hash"]].reset_index(drop=True)
     long = long.join(keys, on="unit")
     return units, long

@@ -37,7 +37,7 @@ import sqlite_utils
 
 from monitor import measures as M
 from monitor import pool as P
-from monitor.compute import measure_settings, settings_salt
+from monitor.compute import settings_salt
 from monitor.config import Config
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.plans import assign_plans, write_inferred
@@ -119,7 +119,7 @@ def engine_values(arrays, members: np.ndarray, config: Config) -> tuple[dict, di
     array of values (NaN where null) and name -> array of reasons ("" where defined)."""
     rows = np.isin(arrays.unit, members)
     local = np.searchsorted(members, arrays.unit[rows])
-    settings = replace(measure_settings(config), interval_draws=0)
+    settings = replace(config.measures, interval_draws=0)
     long = M.compute_measures(local, arrays.votes_a[rows], arrays.votes_b[rows], arrays.uncontested[rows],
                               len(members), settings, None)
     wide_value = long.pivot(index="unit", columns="measure", values="value").reindex(np.arange(len(members)))
