@@ -36,6 +36,7 @@ import pandas as pd
 import sqlite_utils
 
 from monitor import measures as M
+from monitor.measures import registry
 from monitor import pool as P
 from monitor.compute import settings_salt
 from monitor.config import Config
@@ -46,22 +47,14 @@ from store import measures as store_measures
 from store import write_from_snapshot
 
 POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
-#: measures judged against their national-pool null, by the name they carry in ``tails``
-NULL_FLAGGED = ("efficiency_gap", "mean_median", "declination", "partisan_bias", "seats")
-#: measures judged by their own p-value (stored in ``measures.p_value``)
-P_FLAGGED = {"lopsided": "lopsided_t", "mean_median": "mean_median"}
-FLAG_MEASURES = ("efficiency_gap", "mean_median", "declination", "partisan_bias", "seats", "lopsided")
-
-#: Thresholds proposed in the legal literature, drawn as reference lines: proposals, not law.
-PROPOSED_THRESHOLDS = [
-    {"measure": "efficiency_gap_seats", "value": 2.0, "unit": "seats", "applies_to": "congressional plans",
-     "source": "Stephanopoulos & McGhee (2015), 82 U. Chi. L. Rev. 831, as reported in press summaries of "
-               "the paper (not checked against the paper's text)"},
-    {"measure": "efficiency_gap", "value": 0.08, "unit": "share", "applies_to": "state-house plans",
-     "source": "Stephanopoulos & McGhee (2015), as reported in press summaries of the paper"},
-    {"measure": "efficiency_gap", "value": 0.07, "unit": "share", "applies_to": "state-house plans",
-     "source": "threshold argued by the plaintiffs in Whitford v. Gill (2016), as reported in the press"},
-]
+#: the measures the flags judge (the registry's ``flag`` declarations), by their flag name
+JUDGED = registry.flag_by_name()
+#: flag names judged against their national-pool null
+NULL_FLAGGED = tuple(name for name, m in JUDGED.items() if m.flag.null)
+#: flag name -> the stored measure whose p-value judges it
+P_FLAGGED = {name: m.name for name, m in JUDGED.items() if m.flag.p_value}
+#: every flag name
+FLAG_MEASURES = tuple(JUDGED)
 
 
 @dataclass
@@ -104,15 +97,6 @@ def _group_hash(units: pd.DataFrame, config: Config) -> str:
     return h.hexdigest()
 
 
-#: the engine measure whose stored value (and null reason) each tails measure takes
-ENGINE_NAME = {"efficiency_gap": "efficiency_gap", "mean_median": "mean_median", "declination": "declination",
-               "partisan_bias": "partisan_bias", "seats": "seats_a"}
-#: ``seats`` is judged as an asymmetry measure: besides the engine's own rule for seats_a it is
-#: null wherever the engine's rule for the asymmetry measures makes the seat-form efficiency gap null
-#: (fewer than 2 districts, every district uncontested, ...)
-SEATS_GATE = "efficiency_gap_seats"
-
-
 def engine_values(arrays, members: np.ndarray, config: Config) -> tuple[dict, dict]:
     """The observed value and null reason of every tails measure for the units ``members``, as the
     measures engine stores them (same inputs, same settings, same undefined rules): name ->
@@ -125,13 +109,14 @@ def engine_values(arrays, members: np.ndarray, config: Config) -> tuple[dict, di
     wide_value = long.pivot(index="unit", columns="measure", values="value").reindex(np.arange(len(members)))
     wide_reason = long.pivot(index="unit", columns="measure", values="reason").reindex(np.arange(len(members)))
     values, reasons = {}, {}
-    for name, engine in ENGINE_NAME.items():
-        values[name] = wide_value[engine].to_numpy(float)
-        reasons[name] = wide_reason[engine].fillna("").to_numpy(object)
-    gate = wide_reason[SEATS_GATE].fillna("").to_numpy(object)
-    take = (reasons["seats"] == "") & (gate != "")
-    reasons["seats"] = np.where(take, gate, reasons["seats"])
-    values["seats"] = np.where(reasons["seats"] != "", np.nan, values["seats"])
+    for name in NULL_FLAGGED:
+        m = JUDGED[name]
+        values[name] = wide_value[m.name].to_numpy(float)
+        reasons[name] = wide_reason[m.name].fillna("").to_numpy(object)
+        if m.flag.also_undefined_where:  # e.g. seats: judged like an asymmetry measure
+            gate = wide_reason[m.flag.also_undefined_where].fillna("").to_numpy(object)
+            reasons[name] = np.where((reasons[name] == "") & (gate != ""), gate, reasons[name])
+            values[name] = np.where(reasons[name] != "", np.nan, values[name])
     return values, reasons
 
 
@@ -220,11 +205,16 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     for col in ("null_percentile", "p_value", "value"):
         if col not in t:
             t[col] = np.nan
-    lop = pvals[pvals["measure"] == P_FLAGGED["lopsided"]].assign(measure="lopsided")
-    mm = pvals[pvals["measure"] == P_FLAGGED["mean_median"]][[*UNIT_KEYS, "p_value"]]
-    t = t.drop(columns=["p_value"]).merge(
-        mm.assign(measure="mean_median"), on=[*UNIT_KEYS, "measure"], how="left")
-    t = pd.concat([t, lop[[*UNIT_KEYS, "measure", "value", "p_value", "reason"]]], ignore_index=True)
+    # a measure judged by its null and its p-value takes the p-value onto its tails row; one
+    # judged by its p-value alone gets a row of its own
+    both = [(name, stored) for name, stored in P_FLAGGED.items() if name in NULL_FLAGGED]
+    alone = [(name, stored) for name, stored in P_FLAGGED.items() if name not in NULL_FLAGGED]
+    p_rows = pd.concat([pvals[pvals["measure"] == stored].assign(measure=name) for name, stored in both]
+                       or [pvals.iloc[0:0]], ignore_index=True)
+    t = t.drop(columns=["p_value"]).merge(p_rows[[*UNIT_KEYS, "measure", "p_value"]], on=[*UNIT_KEYS, "measure"],
+                                          how="left")
+    own = [pvals[pvals["measure"] == stored].assign(measure=name) for name, stored in alone]
+    t = pd.concat([t, *[o[[*UNIT_KEYS, "measure", "value", "p_value", "reason"]] for o in own]], ignore_index=True)
     n = districts.reindex(pd.MultiIndex.from_frame(t[UNIT_KEYS])).to_numpy()
     pct = t["null_percentile"].to_numpy(float)
     p = t["p_value"].to_numpy(float)
@@ -327,8 +317,7 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     old_seats = store_flags.read_all(db, "pool_seats")
     old_tails = store_flags.read_all(db, "tails")
     old_watch = store_flags.read_all(db, "watch")
-    pvals = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "p_value", "reason"],
-                                [P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
+    pvals = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "p_value", "reason"], sorted(P_FLAGGED.values()))
     seat_frames, tail_frames = [], []
     groups = units.groupby(["cycle", "chamber"], sort=True)
     for done, ((cycle, chamber), part) in enumerate(groups):
@@ -492,16 +481,12 @@ def _watch_events(old: pd.DataFrame, new: pd.DataFrame, plan_cycles: dict[tuple,
 
 
 def _measure_text(measure: str, value: float) -> str:
-    """A measure's value as change texts write it: seats as a count of seats, signed measures with
-    their sign (positive favours a)."""
-    if measure == "seats":
-        return f"seats won by a {_seats(value)}"
+    """A measure's value as change texts write it: as its flag declaration describes it (seats as
+    a count of seats), else signed (positive favours a)."""
+    m = JUDGED.get(measure)
+    if m is not None and m.flag.describe is not None:
+        return m.flag.describe(value)
     return f"{measure} {value:+.3f}"
-
-
-def _seats(value: float) -> str:
-    """A seat count: whole seats without decimals, a tie's half seat as .5."""
-    return f"{value:.0f}" if float(value).is_integer() else f"{value:.1f}"
 
 
 def _stake_text(stake) -> str:

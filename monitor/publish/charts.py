@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from monitor.config import Party
+from monitor.measures import registry
 from monitor.publish import formats as F
 
 INK = "#2b2a27"
@@ -49,8 +50,8 @@ CONFIG = {
 }
 
 #: Digits shown for each measure (three for share-like measures).
-DIGITS = {"efficiency_gap_seats": 2, "lopsided_t": 2, "seats": 2, "mean_median_z": 2, "responsiveness": 2,
-          "seats_at_flipped_vote": 1}
+DIGITS = {**{m.name: m.digits for m in registry.measures()},
+          **{m.flag.name: m.flag.digits for m in registry.flagged() if m.flag.digits is not None}}
 
 
 def fmt_measure(measure: str, value) -> str:

@@ -22,6 +22,7 @@ import sqlite_utils
 
 from monitor.config import OPTIONS, Config, Party
 from monitor.inputs import UNIT_KEYS, reduced_contests
+from monitor.measures import registry
 from monitor.measures.swing import seat_share_at
 from monitor.national import (contest_shares, excess_by_drawer, measured, national_summary, plans_of_units,
                               share_histogram)
@@ -35,8 +36,7 @@ CHAMBER_LABELS = {"federal": "Federal lower chamber", "state_lower": "State legi
 CHAMBER_SHORT = {"federal": "federal", "state_lower": "state lower"}
 
 #: Measures charted over time and across states, in this order (when the store has them).
-HEADLINE_MEASURES = ("efficiency_gap", "efficiency_gap_seats", "mean_median", "lopsided_t",
-                     "declination", "partisan_bias")
+HEADLINE_MEASURES = tuple(m.name for m in registry.measures() if m.headline)
 
 EPOCH = dt.datetime(1970, 1, 1, tzinfo=dt.timezone.utc)
 
@@ -154,11 +154,11 @@ class SiteData:
 
     def label(self, measure: str) -> str:
         doc = self.doc(measure)
-        if doc is not None:
-            return doc.label.replace("(a)", f"({self.parties['a'].name})").replace("(b)", f"({self.parties['b'].name})")
-        return {"seats": f"Seats ({self.parties['a'].name}) against the national pool",
-                "lopsided": "Lopsided outcomes (t-test p)"}.get(
-            measure, measure.replace("_", " "))
+        judged = registry.flag_by_name().get(measure)
+        label = doc.label if doc is not None else judged.flag.label if judged is not None else None
+        if label:
+            return label.replace("(a)", f"({self.parties['a'].name})").replace("(b)", f"({self.parties['b'].name})")
+        return measure.replace("_", " ")
 
 
 def chamber_order(chambers) -> list[str]:
@@ -167,19 +167,13 @@ def chamber_order(chambers) -> list[str]:
 
 
 def measure_docs() -> list:
-    """The measures' documentation from the measures engine (``monitor.measures.MEASURES``)."""
-    from monitor.measures import MEASURES
-
-    return list(MEASURES)
+    """The measures' documentation: their declarations in the registry."""
+    return registry.measures()
 
 
 def proposed_thresholds() -> list[dict]:
-    """Reference lines proposed in the legal literature (owned by the flags module)."""
-    try:
-        from monitor.flags import PROPOSED_THRESHOLDS
-    except ImportError:
-        return []
-    return [dict(t) for t in PROPOSED_THRESHOLDS]
+    """Reference lines proposed in the legal literature (declared with their measures)."""
+    return [dict(t) for m in registry.measures() for t in m.thresholds]
 
 
 def source_date_epoch() -> dt.datetime | None:

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from monitor.inputs import UNIT_KEYS
+from monitor.measures import registry
 from monitor.national import measured
 from monitor.publish import charts as C
 from monitor.publish import formats as F
@@ -17,9 +18,9 @@ from monitor.publish import paths as P
 from monitor.publish.collect import SiteData, flag_changes, parse_time
 
 #: Measures in the store whose flag lives in ``tails`` under another name.
-TAIL_OF = {"lopsided_t": "lopsided", "efficiency_gap_seats": "efficiency_gap"}
+TAIL_OF = {m.name: m.tail for m in registry.measures() if m.tail and m.tail != m.name}
 #: Tail names whose null band is in the measure's own units (so it can be drawn behind it).
-NULL_BANDS = {"efficiency_gap", "mean_median", "declination", "partisan_bias"}
+NULL_BANDS = {m.flag.name for m in registry.measures() if m.null_band}
 
 DRAWERS = {"party_a": "party a", "party_b": "party b", "split": "split control", "commission": "a commission",
            "court": "a court", "other": "other"}
@@ -33,14 +34,11 @@ SEATS_VOTES_COLUMNS = {"vote share": "vote share (two-party, after the uncontest
                        "expected seat share": "expected seat share at that vote share (national pool)"}
 
 #: Short names of the measures the flags judge, for dense tables.
-SHORT = {"efficiency_gap": "efficiency gap", "mean_median": "mean-median", "declination": "declination",
-         "partisan_bias": "partisan bias", "seats": "seats vs national pool", "lopsided": "lopsided t-test"}
+SHORT = {m.flag.name: m.flag.short for m in registry.flagged()}
 
-TABLE_MEASURES = ("vote_share", "seat_share", "seats_a", "districts", "uncontested", "competitive",
-                  "efficiency_gap", "efficiency_gap_seats", "mean_median", "lopsided_t", "declination",
-                  "partisan_bias", "symmetry_bias", "responsiveness", "seats_at_flipped_vote")
-SHARE_MEASURES = {"vote_share", "seat_share"}
-COUNT_MEASURES = {"seats_a", "seats_b", "districts", "uncontested", "competitive", "seats_at_flipped_vote"}
+TABLE_MEASURES = tuple(m.name for m in registry.measures() if m.table)
+SHARE_MEASURES = {m.name for m in registry.measures() if m.kind == "share"}
+COUNT_MEASURES = {m.name for m in registry.measures() if m.kind == "count"}
 
 
 class Views:
@@ -491,10 +489,8 @@ class Views:
 
     def methods(self) -> dict:
         d = self.d
-        from monitor.publish.methods import plain_words
-
         docs = [{"name": m.name, "label": m.label, "formula": m.formula, "sign": m.sign, "source": m.source,
-                 "signed": m.signed, "interval": m.interval, "p_value": m.p_value, "plain": plain_words(m)}
+                 "signed": m.signed, "interval": m.interval is not None, "p_value": m.p_value, "plain": m.plain}
                 for m in d.measure_docs]
         settings = [{"name": s["name"], "value": _setting(s["value"]), "default": _setting(s["default"]),
                      "changed": s["value"] != s["default"], "help": s["help"]} for s in d.settings]
