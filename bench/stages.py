@@ -146,19 +146,19 @@ def _publish_info(report) -> dict:
 def cheap_pool(draws: int):
     """Within the block, the national-pool sampler keeps at most ``draws`` per unit (setup of
     the earlier cycles' stored pool rows only; never inside a timed section)."""
-    import monitor.pool as P
+    import monitor.pool.nulls as N  # where compare_with_pool looks the sampler up
 
-    original = P.simulate_delegations
+    original = N.simulate_delegations
 
     def capped(*args, **kwargs):
         kwargs["accepted"] = min(int(kwargs.get("accepted", draws)), draws)
         return original(*args, **kwargs)
 
-    P.simulate_delegations = capped
+    N.simulate_delegations = capped
     try:
         yield
     finally:
-        P.simulate_delegations = original
+        N.simulate_delegations = original
 
 
 # -- stages ----------------------------------------------------------------------------------
@@ -265,7 +265,7 @@ def _latest_cycle_pools(args):
         tot = np.bincount(local, va + vb, k)
         with np.errstate(invalid="ignore", divide="ignore"):
             share = np.bincount(local, va, k) / tot
-        observed = {name: getattr(M, fn)(local, va, vb, k) for name, fn in P.NULL_MEASURES.items()}
+        observed = {name: fn(local, va, vb, k) for name, fn in P.NULL_MEASURES.items()}
         ok = (va + vb) > 0
         pool = P.national_pool(va[ok], vb[ok], st[ok])
         live = np.flatnonzero((n >= 2) & np.isfinite(share))

@@ -3,6 +3,11 @@
 ``MEASURES`` is what the methods page renders; ``MEASURE_VERSIONS`` is stored with every value
 (bump a measure's ``version`` in its declaration whenever its formula, tie rule or undefined rule
 changes).
+
+Examples
+--------
+>>> MEASURE_NAMES[:3], MEASURE_VERSIONS["efficiency_gap"]
+(['vote_share', 'seat_share', 'seats_a'], '1')
 """
 
 from __future__ import annotations

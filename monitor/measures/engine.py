@@ -100,6 +100,11 @@ def compute_measures(
         with_interval = {m.name: (lambda sim, f=m.interval: f(sim, s)) for m in declared if m.interval is not None}
         intervals = noise_intervals(seg, with_interval, s.noise_sd, s.interval_draws, rng, level=s.interval_level)
 
+    return _long_frame(declared, inputs, intervals, nu)
+
+
+def _long_frame(declared, inputs: Inputs, intervals: dict, nu: int) -> pd.DataFrame:
+    """Each declared measure's values, p-values, intervals and reasons, one row per unit and measure."""
     nan = np.full(nu, np.nan)
     parts = {c: [] for c in COLUMNS}
     for m in declared:

@@ -21,6 +21,14 @@ A declaration holds:
   states), ``table`` (a column of the state pages' measure table), ``flag_of`` (show another
   measure's flag), ``thresholds`` (proposed reference lines);
 * flags: ``flag``, a :class:`Flag` saying under which name and how the measure is judged.
+
+Examples
+--------
+>>> m = by_name()["seats_a"]
+>>> m.kind, m.flag.name, m.flag.null, m.flag.also_undefined_where
+('count', 'seats', True, 'efficiency_gap_seats')
+>>> [m.name for m in flagged() if m.flag.p_value]
+['mean_median', 'lopsided_t']
 """
 
 from __future__ import annotations
