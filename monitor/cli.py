@@ -43,6 +43,16 @@ def _clear(progress) -> None:
         progress.clear()
 
 
+def _store(ws: Workspace):
+    """The workspace's store with its inputs brought up to date with levelfield.toml (re-coded party
+    labels, reduced contests): what every command that reads the store uses."""
+    from monitor.pipeline import prepare
+
+    db = ws.open_store()
+    prepare(db, ws.config(), ws.notify)
+    return db
+
+
 def _fail(message: str, code: int) -> None:
     click.echo(message, err=True)
     sys.exit(code)
@@ -113,7 +123,7 @@ def main(ctx: click.Context, workspace: str | None) -> None:
 def init(ws: Workspace) -> None:
     """Create the workspace with a commented default levelfield.toml."""
     made = ws.ensure()
-    ws.open_store()
+    _store(ws)
     if made:
         for path in made:
             click.echo(f"created {path}")
@@ -140,11 +150,13 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
     """
     from monitor.ingest import load_file
     from monitor.ingest.mapping import load_mapping
+    from monitor.pipeline import prepare
     from monitor.progress import for_terminal, tell
 
     config = ws.config()
     mapping = load_mapping(mapping_path) if mapping_path else None
-    db = ws.open_store(follow_config=not dry_run)  # a dry run writes nothing (it reports any re-coding)
+    # a dry run writes nothing (it reports any re-coding); a load is followed by its reduction
+    db = ws.open_store() if dry_run else _store(ws)
     worst = 0
     progress = for_terminal()  # one line on a terminal's stderr, redrawn per file; else None
     for number, path in enumerate(files, 1):
@@ -167,6 +179,8 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
             continue
         for line in report.lines():
             click.echo(line)
+    if not dry_run:
+        prepare(db, config, ws.notify)
     if worst:
         sys.exit(worst)
 
@@ -180,7 +194,7 @@ def status(ws: Workspace) -> None:
     from monitor.status import store_status
 
     click.echo(f"workspace {ws.root}")
-    for line in store_status(ws).lines():
+    for line in store_status(ws, _store(ws)).lines():
         click.echo(line)
 
 
@@ -192,24 +206,15 @@ def status(ws: Workspace) -> None:
 def compute(ws: Workspace, full: bool) -> None:
     """Recompute the measures of units whose inputs or method changed, then the national
     pool, the flags and the watch list of the cycles and chambers they touch."""
-    from monitor.compute import compute as run
-    from monitor.flags import run_flags
-
+    from monitor.pipeline import refresh
     from monitor.progress import for_terminal
 
-    db, config = ws.open_store(), ws.config()
     progress = for_terminal()  # measures stages, then each cycle/chamber group of the flags
     try:
-        report = run(db, config, full=full, progress=progress)
+        report = refresh(ws, full=full, publish=False, progress=progress)
     finally:
         _clear(progress)
-    for line in report.lines():
-        click.echo(line)
-    try:
-        report = run_flags(db, config, full=full, progress=progress)
-    finally:
-        _clear(progress)
-    for line in report.lines():
+    for line in report.lines:
         click.echo(line)
 
 
@@ -235,7 +240,7 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
     if watch_list and changes:
         raise UsageError("--watch and --changes show different tables: give one of them, not both")
     show = "watch" if watch_list else "changes" if changes else "flags"
-    write(to_text(flag_table(ws.open_store(), show, cycle=cycle, chamber=chamber), fmt), None)
+    write(to_text(flag_table(_store(ws), show, cycle=cycle, chamber=chamber), fmt), None)
 
 
 @main.command()
@@ -253,7 +258,7 @@ def plans(ws: Workspace, file: Path) -> None:
     """
     from monitor.plans import load_plans
 
-    done = load_plans(ws.open_store(), file)
+    done = load_plans(_store(ws), file)
     click.echo(f"{file.name}: {done['plans']} plan(s) loaded for {done['state_chambers']} state chamber(s)")
 
 
@@ -309,7 +314,7 @@ def verify(ws: Workspace) -> None:
 
     progress = for_terminal()
     try:
-        differences = verify_store(ws.open_store(), ws.config(), progress=progress)
+        differences = verify_store(_store(ws), ws.config(), progress=progress)
     finally:
         _clear(progress)
     for diff in differences:
@@ -331,47 +336,31 @@ FORMAT = click.option("--format", "fmt", type=click.Choice(["csv", "json"]), def
 OUT = click.option("--out", type=click.Path(path_type=Path, dir_okay=False), help="Write to this file (default stdout).")
 
 
-@export.command("results")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_results(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Current results (the district_results columns) with each contest's two-party reduction."""
-    from monitor.output import to_text, write
-    from monitor.results import results_export
+def _export_command(item) -> click.Command:
+    """``levelfield export NAME``: the stored rows of one export, as CSV or JSON."""
 
-    write(to_text(results_export(ws.open_store()), fmt), out)
+    @workspace_option
+    @FORMAT
+    @OUT
+    @click.pass_obj
+    @guarded
+    def command(ws: Workspace, fmt: str, out: Path | None) -> None:
+        from monitor.output import to_text, write
 
+        write(to_text(item.frame(_store(ws)), fmt), out)
 
-@export.command("measures")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy."""
-    from monitor.compute import measures_export
-    from monitor.output import to_text, write
-
-    write(to_text(measures_export(ws.open_store()), fmt), out)
+    command.__doc__ = item.help
+    return export.command(item.name)(command)
 
 
-@export.command("national")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_national(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """National aggregates per cycle and chamber: districts, seats and votes of each party, uncontested
-    and competitive districts, flagged states, excess seats by who drew the plan."""
-    from monitor.national import national_export
-    from monitor.output import to_text, write
+def _add_exports() -> None:
+    from monitor.exports import EXPORTS
 
-    write(to_text(national_export(ws.open_store(), ws.config()), fmt), out)
+    for item in EXPORTS:
+        _export_command(item)
+
+
+_add_exports()
 
 
 @main.command()
@@ -389,12 +378,13 @@ def publish(ws: Workspace, out: Path | None) -> None:
     holding other files (or the store) is refused rather than emptied.
     """
     from monitor.progress import for_terminal, tell
-    from monitor.publish import build
+    from monitor.publish import build_site
 
     progress = for_terminal()  # the build reports no pages as it goes: the line shows its elapsed time
+    db = _store(ws)
     tell(progress, "publish", 0, None, "building the site")
     try:
-        report = build(ws, out=out)
+        report = build_site(ws, db=db, out=out)
     finally:
         _clear(progress)
     for line in report.lines():

@@ -23,8 +23,6 @@ from monitor.progress import tell
 from store import measures as store_measures
 from store import write_from_snapshot
 
-EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value",
-                  "method_version", "policy"]
 
 
 def settings_salt(config: Config) -> str:
@@ -125,8 +123,3 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
         return report
 
     return write
-
-
-def measures_export(db: sqlite_utils.Database) -> pd.DataFrame:
-    """The stored measures with the fixed export columns (a contract other tools read)."""
-    return store_measures.read(db, EXPORT_COLUMNS)

@@ -1,5 +1,6 @@
-"""What the measures see: the current single-member contests of every unit as two-party votes
-after the uncontested policy, grouped into sorted unit arrays."""
+"""What the measures see: the stored reductions of the current contests of every unit (written by
+:mod:`monitor.reductions`) as two-party votes after the uncontested policy, grouped into sorted
+unit arrays."""
 
 from __future__ import annotations
 
@@ -11,25 +12,16 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
-from monitor.reduce import reduce_contests, two_party_inputs
-from store import queries
+from store import reductions as stored
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
 
 
-def reduced_contests(db: sqlite_utils.Database, where: str = "", params=()) -> pd.DataFrame:
-    """One row per current contest: unit keys, district, special, seats and its reduction."""
-    lines = queries.current_votes(db, where, params)
-    if lines.empty:
-        return pd.DataFrame(columns=["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id",
-                                     "district", "seats", "special", "votes_a", "votes_b", "votes_other",
-                                     "total", "status", "seats_a", "seats_b", "seats_other", "winner",
-                                     "candidates_a", "candidates_b", "candidates_other"])
-    contests = lines.drop_duplicates("contest_id")[
-        ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "seats", "special"]
-    ]
-    reduced = reduce_contests(lines, contests[["contest_id", "seats"]]).drop(columns=["seats"])
-    return contests.merge(reduced, on="contest_id", how="left")
+def reduced_contests(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
+    """One row per current contest (of ``cycle`` only, when given): unit keys, district, special,
+    seats and its stored reduction (``store.reductions.CONTEST_COLUMNS``), sorted by unit, district
+    and special."""
+    return stored.current(db, cycle)
 
 
 @dataclass
@@ -46,20 +38,21 @@ class UnitArrays:
 
 
 def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "") -> UnitArrays:
-    """Apply the uncontested policy and build the unit arrays, keeping every unit that has
-    current contests (a unit with no eligible contest gets an empty segment: its measures are
-    null with a reason). ``salt`` (settings and method versions) enters every inputs hash."""
+    """The unit arrays of the contests that enter the measures (their stored ``enters``, votes after
+    the policy and ``uncontested`` flag), keeping every unit that has current regular contests (a
+    unit with no eligible contest gets an empty segment: its measures are null with a reason).
+    ``salt`` (settings and method versions) enters every inputs hash."""
     regular = contests[contests["special"].astype(int) == 0]
     units = (regular[["unit_id", *UNIT_KEYS]].drop_duplicates()
              .sort_values(UNIT_KEYS).reset_index(drop=True))
-    two = two_party_inputs(regular, config["uncontested.policy"], config["uncontested.winner_share"])
+    two = regular[regular["enters"].astype(int) == 1]
     index = pd.Series(units.index, index=units["unit_id"])
     two = two.assign(unit=index.reindex(two["unit_id"]).to_numpy())
     two = two.sort_values(["unit", "district"], kind="mergesort")
     unit = two["unit"].to_numpy(np.int64)
-    va = two["votes_a"].to_numpy(np.float64)
-    vb = two["votes_b"].to_numpy(np.float64)
-    unc = two["uncontested"].to_numpy(bool)
+    va = two["votes_a_used"].to_numpy(np.float64)
+    vb = two["votes_b_used"].to_numpy(np.float64)
+    unc = two["uncontested"].astype(bool).to_numpy(bool)
     units["districts_eligible"] = np.bincount(unit, minlength=len(units))
     units["inputs_hash"] = _hashes(unit, two["district"].to_numpy(object), va, vb, unc, len(units),
                                    f"{config.policy}|{salt}")

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import sqlite_utils
+
 import store
 from monitor.ingest.fields import shown
 from monitor.lock import STATE_FILE, lock_holder, read_state
@@ -55,8 +57,9 @@ def _spans(cycles: list[int]) -> str:
     return f"{cycles[0]}-{cycles[-1]}" if len(cycles) > 1 else str(cycles[0])
 
 
-def store_status(ws: Workspace, last: int = 5) -> StoreStatus:
-    db = ws.open_store()
+def store_status(ws: Workspace, db: sqlite_utils.Database | None = None, last: int = 5) -> StoreStatus:
+    """What the store holds (``db``, else the workspace's store), the inbox, and the watcher."""
+    db = db or ws.open_store()
     held = store_status_counts.summary(db, last)
     pending = sorted(p.name for p in ws.inbox.iterdir() if p.is_file() and not p.name.startswith("."))
     rejected = sorted(p.name for p in ws.folder("rejected").iterdir()

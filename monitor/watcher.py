@@ -283,12 +283,15 @@ class Service:
     def verify(self) -> list:
         """Recompute everything from scratch (on a scratch copy) and log every difference from
         the store, each as a changed method version or as a bug; then recompute the store fully."""
+        from monitor.pipeline import prepare
         from monitor.verify import summary, verify_store
 
         started = dt.datetime.now(dt.timezone.utc)
         ok = False
         try:
-            differences = verify_store(self.ws.open_store(), self.ws.config(), progress=self.progress)
+            db, config = self.ws.open_store(), self.ws.config()
+            prepare(db, config, self.ws.notify)
+            differences = verify_store(db, config, progress=self.progress)
             self._progress_done()
             if differences:
                 for diff in differences[:200]:

@@ -106,3 +106,4 @@ def flagged_view(db: sqlite_utils.Database, cycle: int | None = None, chamber: s
         "SELECT x.cycle, x.state, x.chamber, x.plan_id, p.inferred, x.measure, x.direction AS favours, x.basis, "
         f"x.value, x.null_percentile, x.p_value FROM tails x {_PLAN} {_where(where)} "
         "ORDER BY x.cycle, x.state, x.chamber, x.measure", db.conn, params=params)
+

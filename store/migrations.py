@@ -246,6 +246,135 @@ MIGRATIONS: list[tuple[int, str, str]] = [
         );
         """,
     ),
+    # (4 and 5 are numbered for the loader's and the coverage's migrations landing beside this one)
+    (
+        6,
+        "what is derived upstream and stored: contest reductions, each unit's plan, national aggregates, "
+        "seats-votes curves",
+        """
+        -- the two-party reduction of every contest (current and superseded units), with the shares
+        -- the measures use after the uncontested policy (policy, per unit, in reduced_units)
+        CREATE TABLE reductions (
+            contest_id INTEGER PRIMARY KEY REFERENCES contests(id),
+            unit_id INTEGER NOT NULL REFERENCES units(id),
+            votes_a INTEGER NOT NULL,
+            votes_b INTEGER NOT NULL,
+            votes_other INTEGER NOT NULL,
+            total INTEGER NOT NULL,
+            status TEXT NOT NULL,
+            seats_a REAL NOT NULL,
+            seats_b REAL NOT NULL,
+            seats_other REAL NOT NULL,
+            winner TEXT NOT NULL,
+            candidates_a INTEGER NOT NULL,
+            candidates_b INTEGER NOT NULL,
+            candidates_other INTEGER NOT NULL,
+            share_a REAL,
+            enters INTEGER NOT NULL,
+            uncontested INTEGER NOT NULL,
+            votes_a_used REAL,
+            votes_b_used REAL,
+            share_used REAL,
+            imputed INTEGER NOT NULL
+        );
+        CREATE INDEX reductions_unit ON reductions(unit_id);
+        -- which content and policy each unit's reductions were made from (stale when either differs)
+        CREATE TABLE reduced_units (
+            unit_id INTEGER PRIMARY KEY REFERENCES units(id),
+            content_sha256 TEXT NOT NULL,
+            policy TEXT NOT NULL
+        );
+        -- the plan era in force for each current unit (plans joined to units by cycle)
+        CREATE TABLE unit_plans (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            plan_id TEXT,
+            drawn_by TEXT,
+            inferred INTEGER NOT NULL DEFAULT 0,
+            PRIMARY KEY (cycle, state, chamber)
+        );
+        -- national aggregates per cycle and chamber (columns: monitor.national.SUMMARY_FIELDS)
+        CREATE TABLE national_summary (
+            position INTEGER NOT NULL,
+            cycle INTEGER NOT NULL,
+            chamber TEXT NOT NULL,
+            states INTEGER,
+            districts INTEGER,
+            seats REAL,
+            seats_a REAL,
+            seats_b REAL,
+            seats_other REAL,
+            votes_a INTEGER,
+            votes_b INTEGER,
+            votes_other INTEGER,
+            measured_districts INTEGER,
+            vote_share REAL,
+            uncontested REAL,
+            competitive REAL,
+            measured_units INTEGER,
+            flagged_units INTEGER,
+            pool_units INTEGER,
+            excess_seats REAL,
+            excess_party_a REAL,
+            excess_party_b REAL,
+            excess_split REAL,
+            excess_commission REAL,
+            excess_court REAL,
+            excess_other REAL,
+            excess_inferred REAL,
+            excess_no_plan REAL,
+            PRIMARY KEY (cycle, chamber)
+        );
+        CREATE TABLE national_histogram (
+            position INTEGER PRIMARY KEY,
+            cycle INTEGER NOT NULL,
+            chamber TEXT NOT NULL,
+            bin_start REAL NOT NULL,
+            bin_end REAL NOT NULL,
+            kind TEXT NOT NULL,
+            side TEXT NOT NULL,
+            districts INTEGER NOT NULL
+        );
+        CREATE TABLE national_drawers (
+            position INTEGER PRIMARY KEY,
+            cycle INTEGER NOT NULL,
+            chamber TEXT NOT NULL,
+            drawer TEXT NOT NULL,
+            excess_seats REAL,
+            units INTEGER NOT NULL
+        );
+        -- uniform-swing seats-votes curve of each (state, chamber)'s latest cycle: step vertices
+        -- and marked points; and party a's vote and seat share per unit as the measures count them
+        CREATE TABLE swing_curves (
+            position INTEGER PRIMARY KEY,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            cycle INTEGER NOT NULL,
+            vote REAL NOT NULL,
+            seat_share REAL
+        );
+        CREATE TABLE swing_points (
+            position INTEGER PRIMARY KEY,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            cycle INTEGER NOT NULL,
+            point TEXT NOT NULL,
+            vote REAL,
+            seat_share REAL,
+            seats REAL,
+            districts INTEGER
+        );
+        CREATE TABLE seats_votes (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            vote_share REAL,
+            seat_share REAL,
+            PRIMARY KEY (cycle, state, chamber)
+        );
+        """,
+    ),
 ]
 
 SCHEMA_VERSION = MIGRATIONS[-1][0]

@@ -27,6 +27,7 @@ from bench import synthetic
 from bench.baselines import measures_per_unit, rejection_delegations
 from monitor import pool as P
 from monitor.compute import settings_salt
+from monitor import reductions
 from monitor.ingest.load import load_file
 from monitor.inputs import measure_inputs, reduced_contests
 from monitor.measures import compute_measures, seats_a
@@ -45,6 +46,7 @@ def tiny(tmp_path_factory):
     db = ws.open_store()
     config = ws.config()
     reports = [load_file(db, Path(p), config) for p in summary["files"]]
+    reductions.refresh(db, config)  # the step after every load
     return {"root": root, "data": data, "summary": summary, "db": db, "config": config, "reports": reports}
 
 

@@ -5,6 +5,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import click
+import pytest
+from click.testing import CliRunner
+
+from monitor.cli import main
 from monitor.measures import registry
 from monitor.measures.catalog import README_END, README_START, readme_table
 
@@ -18,3 +23,32 @@ def test_the_measures_table_is_the_registry():
         "README.md's measure table differs from the registry: run `python -m monitor.measures --readme README.md`")
     for m in registry.measures():
         assert f"| `{m.name}` |" in text[start:end], m.name
+
+
+def _commands(group: click.Group, path: tuple[str, ...] = ()):
+    for name, command in sorted(group.commands.items()):
+        yield (*path, name)
+        if isinstance(command, click.Group):
+            yield from _commands(command, (*path, name))
+
+
+COMMANDS = list(_commands(main))
+
+
+def test_the_walk_finds_every_command():
+    assert {"load", "compute", "publish", "watch", "verify", "export"} <= {c[0] for c in COMMANDS}
+    assert ("export", "measures") in COMMANDS and len(COMMANDS) >= 14
+
+
+@pytest.mark.parametrize("path", COMMANDS, ids=" ".join)
+def test_every_command_has_help_and_is_documented_in_the_readme(path):
+    result = CliRunner().invoke(main, [*path, "--help"])
+    assert result.exit_code == 0, result.output
+    assert result.output.startswith("Usage: ") and f" {' '.join(path)} " in result.output.splitlines()[0]
+    assert "Options:" in result.output and "--help" in result.output
+    command = main
+    for name in path:
+        command = command.get_command(None, name)
+    assert (command.help or "").strip(), f"levelfield {' '.join(path)} has no help text"
+    text = README.read_text(encoding="utf-8")
+    assert f"levelfield {' '.join(path)}" in text, f"README.md does not document `levelfield {' '.join(path)}`"

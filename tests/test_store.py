@@ -20,9 +20,15 @@ def db(tmp_path):
     database.close()
 
 
+#: numbers held for migrations of branches not merged yet (the loader's 4, the coverage's 5): the
+#: only gaps allowed, and none once those land
+RESERVED = {4, 5}
+
+
 def test_migrations_are_numbered_and_recorded(db):
     versions = [v for v, _, _ in MIGRATIONS]
-    assert versions == list(range(1, len(versions) + 1))
+    assert versions == sorted(set(versions)), "migration numbers must increase, each used once"
+    assert set(range(1, versions[-1] + 1)) - set(versions) <= RESERVED
     assert store.schema_version(db) == store.SCHEMA_VERSION == versions[-1]
     assert [r[0] for r in db.execute("SELECT version FROM schema_version ORDER BY version")] == versions
 
@@ -149,7 +155,7 @@ def test_migration_3_records_where_the_party_codes_of_earlier_loads_came_from(tm
     old.close()
     monkeypatch.undo()
     new = store.connect(path)
-    assert store.schema_version(new) == 3
+    assert store.schema_version(new) == store.SCHEMA_VERSION
     assert new.execute("SELECT id, party_codes_from, error FROM loads ORDER BY id").fetchall() == [
         (1, "config", None), (2, "mapping", None)]
     assert new.execute("SELECT COUNT(*) FROM party_labels").fetchone() == (0,)

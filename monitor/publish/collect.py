@@ -1,12 +1,12 @@
 """Collect: read everything the site shows from the store into plain frames (a :class:`SiteData`).
 
-This is the first stage of the build (collect -> render -> write). It reads, never writes, and
-tolerates a fresh store: every frame then is empty with its columns, and the site says that
-nothing is loaded yet. The national aggregates (histogram, summary, excess seats by who drew the
-plan) come from :mod:`monitor.national`; the few derived numbers only the pages need (the
-seats-votes curve under uniform swing, what changed since each unit's previous cycle, what each
-correction changed) are computed here, in Python, so that templates only lay out what they are
-given.
+This is the first stage of the build (collect -> render -> write). It reads stored numbers only
+and never writes; it tolerates a fresh store: every frame then is empty with its columns, and the
+site says that nothing is loaded yet. The national aggregates (histogram, summary, excess seats by
+who drew the plan), the seats-votes curves and each unit's plan era are computed upstream by the
+aggregates step (:mod:`monitor.aggregates`) and read here from its tables; what remains here is
+words, not numbers: which flags changed since each unit's previous cycle and what each correction
+changed (from the load report, or by comparing the stored reductions of the two deliveries).
 """
 
 from __future__ import annotations
@@ -21,15 +21,13 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import OPTIONS, Config, Party
-from monitor.inputs import UNIT_KEYS, reduced_contests
+from monitor.inputs import reduced_contests
 from monitor.measures import registry
-from monitor.measures.swing import seat_share_at
-from monitor.national import (contest_shares, excess_by_drawer, measured, national_summary, plans_of_units,
-                              share_histogram)
-from monitor.reduce import describe_changes, reduce_contests
+from monitor.reduce import describe_changes
 from monitor.results import results_export
 from monitor.publish.paths import unique_slugs
-from store import history, queries, tables
+from store import aggregates, history, tables
+from store import reductions as stored_reductions
 
 #: Chamber codes of the sample contract, in display order, with their labels.
 CHAMBER_LABELS = {"federal": "Federal lower chamber", "state_lower": "State legislature, lower chamber"}
@@ -93,6 +91,7 @@ class SiteData:
     site_time: dt.datetime
     national: pd.DataFrame = field(default_factory=pd.DataFrame)
     drawers: pd.DataFrame = field(default_factory=pd.DataFrame)
+    seats_votes: pd.DataFrame = field(default_factory=pd.DataFrame)
     corrections: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=CORRECTION_COLUMNS))
     base_url: str = ""
     state_slugs: dict[str, str] = field(default_factory=dict)
@@ -200,42 +199,40 @@ def latest_time(stamps) -> dt.datetime | None:
 
 
 def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
-    """Read the store into a :class:`SiteData` (no writes)."""
-    tables = {name: _table(db, name) for name in _COLUMNS}
-    units = tables.pop("units")
-    contests = _contests(db, config)
-    plans = tables["plans"]
-    for col in ("inferred",):
-        plans[col] = plans[col].fillna(0).astype(int)
-    states = history.state_names(db)
-    loaded = tables["loads"][tables["loads"]["outcome"] == "loaded"]
-    site_time = source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH
-    curves, points = seats_votes_curves(contests)
-    unit_plans = plans_of_units(units, plans)
+    """Read the store into a :class:`SiteData` (no writes, no computation of numbers: the national
+    aggregates, curves and each unit's plan come from the aggregates step's tables)."""
+    frames = {name: _table(db, name) for name in _COLUMNS}
+    units = frames.pop("units")
+    plans = frames["plans"]
+    plans["inferred"] = plans["inferred"].fillna(0).astype(int)
+    derived = {name: aggregates.read(db, name) for name in aggregates.TABLES}
+    derived["unit_plans"]["inferred"] = derived["unit_plans"]["inferred"].fillna(0).astype(int)
+    loaded = frames["loads"][frames["loads"]["outcome"] == "loaded"]
     data = SiteData(
         parties={code: config.party(code) for code in ("a", "b")},
         policy=config.policy,
         settings=_settings(config),
         measure_docs=measure_docs(),
         thresholds=proposed_thresholds(),
-        loads=tables["loads"],
+        loads=frames["loads"],
         units=units,
-        contests=contests,
-        measures=tables["measures"],
-        pool=tables["pool_seats"],
-        tails=tables["tails"],
-        events=tables["flag_events"],
-        watch=tables["watch"],
+        contests=reduced_contests(db),
+        measures=frames["measures"],
+        pool=frames["pool_seats"],
+        tails=frames["tails"],
+        events=frames["flag_events"],
+        watch=frames["watch"],
         plans=plans,
-        unit_plans=unit_plans,
-        state_names=states,
-        curves=curves,
-        curve_points=points,
-        histogram=share_histogram(contests),
+        unit_plans=derived["unit_plans"],
+        state_names=history.state_names(db),
+        curves=derived["swing_curves"],
+        curve_points=derived["swing_points"],
+        histogram=derived["national_histogram"],
         results=results_export(db),
-        site_time=site_time,
-        national=national_summary(contests, tables["measures"], tables["tails"], tables["pool_seats"], unit_plans),
-        drawers=excess_by_drawer(tables["pool_seats"], unit_plans),
+        site_time=source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH,
+        national=derived["national_summary"],
+        drawers=derived["national_drawers"],
+        seats_votes=derived["seats_votes"],
         corrections=corrections(db),
         base_url=config["site.base_url"],
     )
@@ -256,74 +253,6 @@ def _settings(config: Config) -> list[dict]:
     skip = ("parties.", "load.", "schedule.", "site.")
     return [{"name": opt.name, "value": config[opt.name], "default": opt.default, "help": opt.help}
             for opt in OPTIONS if not opt.name.startswith(skip)]
-
-
-def _contests(db: sqlite_utils.Database, config: Config) -> pd.DataFrame:
-    """Every current contest with its reduction, raw two-party share and the share that enters
-    the measures after the uncontested policy (:func:`monitor.national.contest_shares`)."""
-    return contest_shares(reduced_contests(db), config["uncontested.policy"], config["uncontested.winner_share"])
-
-
-def _measure_rows(contests: pd.DataFrame) -> pd.DataFrame:
-    rows = measured(contests)
-    return rows[[*UNIT_KEYS, "district", "votes_a_used", "votes_b_used", "share_used", "imputed"]]
-
-
-def seats_votes_curves(contests: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """The seats-votes curve under uniform swing of the latest cycle of every (state, chamber)
-    with at least two districts.
-
-    Shifting every district share by the same amount ``d`` moves the statewide vote-weighted
-    share from ``V`` to ``V + d``; district ``i`` changes hands at ``v_i = V + 1/2 - x_i``. The
-    curve is the step function through those points: just above ``v_i`` the seat share counts
-    every district whose flip point lies at or below it. Returned as step vertices (state,
-    chamber, cycle, vote, seat_share) over ``v`` in [0, 1], plus the marked points (observed
-    result, statewide vote flipped to ``1 - V``, and 50 %), each evaluated with the measures
-    engine's :func:`~monitor.measures.swing.seat_share_at` so they agree with ``partisan_bias``
-    and ``seats_at_flipped_vote``.
-    """
-    cols = ["state", "chamber", "cycle", "vote", "seat_share"]
-    pcols = ["state", "chamber", "cycle", "point", "vote", "seat_share", "seats", "districts"]
-    rows = _measure_rows(contests)
-    if rows.empty:
-        return pd.DataFrame(columns=cols), pd.DataFrame(columns=pcols)
-    latest = rows.groupby(["state", "chamber"])["cycle"].transform("max")
-    rows = rows[rows["cycle"] == latest]
-    # like the engine's uniform-swing measures, a curve needs at least two districts
-    rows = rows[rows.groupby(UNIT_KEYS)["district"].transform("size") >= 2]
-    if rows.empty:
-        return pd.DataFrame(columns=cols), pd.DataFrame(columns=pcols)
-    rows = rows.sort_values([*UNIT_KEYS, "district"], kind="mergesort")
-    units = rows[UNIT_KEYS].drop_duplicates().reset_index(drop=True)
-    unit = rows.groupby(UNIT_KEYS, sort=False).ngroup().to_numpy(np.int64)
-    va, vb = rows["votes_a_used"].to_numpy(float), rows["votes_b_used"].to_numpy(float)
-    n_units = len(units)
-    count = np.bincount(unit, minlength=n_units)
-    V = np.bincount(unit, va, n_units) / np.bincount(unit, va + vb, n_units)
-    flip = V[unit] + 0.5 - va / (va + vb)
-    order = np.lexsort((flip, unit))
-    flip, u_sorted = flip[order], unit[order]
-    starts = np.concatenate([[0], np.cumsum(count)[:-1]])
-    rank = np.arange(flip.size) - starts[u_sorted] + 1
-    inside = (flip > 0) & (flip < 1)
-    # seat share at the ends of [0, 1] from the engine, then one vertex per flip point inside
-    s0 = seat_share_at(unit, va, vb, n_units, np.zeros(n_units))
-    s1 = seat_share_at(unit, va, vb, n_units, np.ones(n_units))
-    vertex = pd.DataFrame({"u": u_sorted[inside], "vote": flip[inside], "seat_share": rank[inside] / count[u_sorted[inside]]})
-    ends = pd.DataFrame({"u": np.concatenate([np.arange(n_units)] * 2),
-                         "vote": np.concatenate([np.zeros(n_units), np.ones(n_units)]),
-                         "seat_share": np.concatenate([s0, s1])})
-    curve = pd.concat([ends.iloc[:n_units], vertex, ends.iloc[n_units:]], ignore_index=True)
-    curve = curve.sort_values(["u", "vote"], kind="mergesort")
-    # several districts flipping at the same point: keep the last (highest) step
-    curve = curve.drop_duplicates(["u", "vote"], keep="last")
-    curve = units.reset_index().rename(columns={"index": "u"}).merge(curve, on="u")[cols]
-
-    points = []
-    for name, at in (("observed", V), ("flipped vote", 1.0 - V), ("even vote", np.full(n_units, 0.5))):
-        share = seat_share_at(unit, va, vb, n_units, at)
-        points.append(units.assign(point=name, vote=at, seat_share=share, seats=share * count, districts=count))
-    return curve.reset_index(drop=True), pd.concat(points, ignore_index=True)[pcols]
 
 
 def flag_changes(data: SiteData, chamber: str | None = None) -> pd.DataFrame:
@@ -423,13 +352,9 @@ def _compare_units(db: sqlite_utils.Database, rows) -> list[list[str]]:
     """What changed between each superseded unit and its successor, in the words of a load
     report: seats of each party, districts added or dropped, winners, vote totals, status."""
     ids = sorted({int(r.old_unit_id) for r in rows} | {int(r.unit_id) for r in rows})
-    votes = queries.unit_votes(db, ids)
     reduced = {}
-    for unit_id, part in votes.groupby("unit_id"):
-        contests = part.drop_duplicates("contest_id")[["contest_id", "seats", "district", "special"]]
-        red = reduce_contests(part, contests[["contest_id", "seats"]]).merge(
-            contests[["contest_id", "district", "special"]], on="contest_id")
-        red["key"] = list(zip(red["district"], red["special"].astype(int).astype(bool)))
+    for unit_id, red in stored_reductions.of_units(db, ids).groupby("unit_id"):
+        red = red.assign(key=list(zip(red["district"], red["special"].astype(int).astype(bool))))
         reduced[int(unit_id)] = red.set_index("key")
     empty = pd.DataFrame(columns=["seats_a", "seats_b", "votes_a", "votes_b", "votes_other", "winner"])
     out = []
