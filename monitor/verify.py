@@ -148,14 +148,14 @@ def _read(db: sqlite_utils.Database, table: str) -> pd.DataFrame:
 def compare(table: str, stored: pd.DataFrame, fresh: pd.DataFrame, key: list[str], columns: list[str],
             version: str | None = None) -> list[Difference]:
     """Row-by-row differences of two frames of one table, matched on ``key``."""
-    merged = fresh.merge(stored, on=key, how="outer", suffixes=("", "_stored"), indicator="side")
+    merged = fresh.merge(stored, on=key, how="outer", suffixes=("", "_stored"), indicator="_merge_side")
     out = []
     for r in merged.to_dict("records"):
         where = tuple(_plain(r[k]) for k in key)
-        if r["side"] == "left_only":
+        if r["_merge_side"] == "left_only":
             out.append(Difference(table, where, MISSING))
             continue
-        if r["side"] == "right_only":
+        if r["_merge_side"] == "right_only":
             out.append(Difference(table, where, EXTRA))
             continue
         if version and r[version] != r[f"{version}_stored"]:

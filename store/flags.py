@@ -61,32 +61,29 @@ def _where(clauses: list[str]) -> str:
     return f"WHERE {' AND '.join(clauses)}" if clauses else ""
 
 
-def watch_view(db: sqlite_utils.Database, cycle: int | None = None, chamber: str | None = None) -> pd.DataFrame:
-    """The watch list, most severe first (plans whose cycles include ``cycle``, when given)."""
+_PLAN = "LEFT JOIN plans p ON p.state = x.state AND p.chamber = x.chamber AND p.plan_id = x.plan_id"
+
+
+def _unit_filter(cycle, chamber, *, among_cycles: bool = False) -> tuple[list[str], list]:
+    """WHERE clauses and parameters for one chamber and one cycle (``among_cycles``: a cycle among a
+    watch entry's space-separated cycles)."""
     where, params = [], []
     if chamber is not None:
         where.append("x.chamber = ?")
         params.append(chamber)
     if cycle is not None:
-        where.append("(' ' || x.cycles || ' ') LIKE ?")
-        params.append(f"% {cycle} %")
+        where.append("(' ' || x.cycles || ' ') LIKE ?" if among_cycles else "x.cycle = ?")
+        params.append(f"% {cycle} %" if among_cycles else cycle)
+    return where, params
+
+
+def watch_view(db: sqlite_utils.Database, cycle: int | None = None, chamber: str | None = None) -> pd.DataFrame:
+    """The watch list, most severe first (plans whose cycles include ``cycle``, when given)."""
+    where, params = _unit_filter(cycle, chamber, among_cycles=True)
     return pd.read_sql_query(
         f"SELECT {', '.join('x.' + c for c in WATCH_VIEW_COLUMNS)} FROM watch x {_where(where)} "
         "ORDER BY x.severity DESC, x.concurring DESC, x.state, x.chamber, x.plan_id", db.conn, params=params)
 
-
-_PLAN = "LEFT JOIN plans p ON p.state = x.state AND p.chamber = x.chamber AND p.plan_id = x.plan_id"
-
-
-def _unit_filter(cycle, chamber) -> tuple[list[str], list]:
-    where, params = [], []
-    if chamber is not None:
-        where.append("x.chamber = ?")
-        params.append(chamber)
-    if cycle is not None:
-        where.append("x.cycle = ?")
-        params.append(cycle)
-    return where, params
 
 
 def changes_view(db: sqlite_utils.Database, cycle: int | None = None, chamber: str | None = None) -> pd.DataFrame:

@@ -1,11 +1,14 @@
-"""The docstring examples of the measures and the national pool run, every module has at least one
-(a module whose examples are all gone fails here instead of passing silently), and every public
-function of ``monitor.measures`` documents itself."""
+"""The docstring examples run: every module of the measures and the national pool must have at
+least one (a module whose examples are all gone fails here instead of passing silently), and so
+must every other module of ``monitor/`` and ``store/`` that shows one (an example in a comment or
+an unimported module would otherwise never run); every public function of ``monitor.measures``
+documents itself."""
 
 import doctest
 import importlib
 import inspect
 import pkgutil
+from pathlib import Path
 
 import pytest
 
@@ -18,11 +21,25 @@ def _modules(package) -> list[str]:
     return [n for n in names if not n.endswith(".__main__")]  # a command entry point, not a library module
 
 
-MODULES = _modules(m) + _modules(pool)
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def _showing_examples() -> list[str]:
+    """Every other module of monitor/ and store/ whose source shows a ``>>>`` example."""
+    out = []
+    for path in sorted([*ROOT.joinpath("monitor").rglob("*.py"), *ROOT.joinpath("store").rglob("*.py")]):
+        name = ".".join(path.relative_to(ROOT).with_suffix("").parts).removesuffix(".__init__")
+        if ">>>" in path.read_text(encoding="utf-8") and not name.startswith(("monitor.measures", "monitor.pool")):
+            out.append(name)
+    return out
+
+
+MODULES = _modules(m) + _modules(pool) + _showing_examples()
 
 
 def test_the_module_list_is_complete():
     assert "monitor.measures.engine" in MODULES and "monitor.pool.sampler" in MODULES
+    assert "monitor.publish.chartkit" in MODULES
     assert len(MODULES) >= 20
 
 
