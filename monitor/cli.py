@@ -151,7 +151,8 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
         tell(progress, "load", number - 1, len(files), str(path))
         try:
             report = load_file(db, path, config, mapping=mapping, source=source, dry_run=dry_run,
-                               skip_bad_rows=skip_bad_rows, encoding=encoding)
+                               skip_bad_rows=skip_bad_rows, encoding=encoding,
+                               report_dir=ws.folder("logs") / "loads")
             _clear(progress)
         except DataError as exc:
             _clear(progress)

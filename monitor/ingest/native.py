@@ -1,8 +1,9 @@
 """The native formats: long (one row per candidate line) and wide (one ``votes_<party>`` column per party).
 
 Long header: ``cycle,state,chamber,district,party,candidate,votes`` plus optional
-``seats,special,writein,status``. Wide header: ``cycle,state,chamber,district`` plus one
-``votes_<party label>`` column per party, optional ``seats,special,status``.
+``seats,special,runoff,writein,status``. Wide header: ``cycle,state,chamber,district`` plus one
+``votes_<party label>`` column per party, optional ``seats,special,runoff,status``. Native files
+refuse a candidate's repeated lines on one party line (a mapping can sum them).
 """
 
 from __future__ import annotations
@@ -15,9 +16,9 @@ from monitor.ingest.fields import shown
 from monitor.ingest.records import ParseContext, Record, contest_key, parse_record
 
 LONG_REQUIRED = ("cycle", "state", "chamber", "district", "party", "candidate", "votes")
-LONG_OPTIONAL = ("seats", "special", "writein", "status")
+LONG_OPTIONAL = ("seats", "special", "runoff", "writein", "status")
 WIDE_REQUIRED = ("cycle", "state", "chamber", "district")
-WIDE_OPTIONAL = ("seats", "special", "status")
+WIDE_OPTIONAL = ("seats", "special", "runoff", "status")
 VOTES_PREFIX = "votes_"
 
 
