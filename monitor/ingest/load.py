@@ -325,7 +325,7 @@ def _prepare_units(units: dict[tuple, list[Record]], decisions: dict[tuple, str 
     votes = pd.DataFrame(rows, columns=["contest_id", "party_code", "candidate", "votes"])
     contests = pd.DataFrame({"contest_id": np.arange(len(seats)), "seats": seats})
     reduced = reduce_contests(votes, contests).set_index("contest_id").sort_index()
-    reduced["left_out"] = left_out
+    reduced["left_out"] = pd.Series(left_out, index=reduced.index, dtype=object)
     reduced["decides"] = [why is None for why in left_out]
     reduced["placeholder"] = placeholder
     out = {}
@@ -379,9 +379,10 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport, codes_f
         ids = {ck: contest_id + i for ck, i in contest_keys.items()}
         contest_id += len(ids)
         seats = {_local(r): r.seats for r in records}
-        status, why, placeholder = (reduced[c].tolist() for c in ("status", "left_out", "placeholder"))
+        status, decides, placeholder = (reduced[c].tolist() for c in ("status", "decides", "placeholder"))
+        why = [None if d else w for d, w in zip(decides, reduced["left_out"].tolist())]
         queries.insert_contests(conn, [
-            (cid, unit_id, ck[0], seats[ck], int(ck[1]), int(ck[2]), status[i], int(why[i] is None), why[i],
+            (cid, unit_id, ck[0], seats[ck], int(ck[1]), int(ck[2]), status[i], int(decides[i]), why[i],
              int(placeholder[i]))
             for (ck, cid), i in zip(ids.items(), contest_keys.values())
         ])

@@ -132,4 +132,4 @@ class LoadReport:
 
 def _counts(counts: dict[str, int]) -> str:
     """``'label' (n), ...`` in the order given."""
-    return ", ".join(f"{shown(k)!r} ({v})" for k, v in counts.items())
+    return ", ".join(f"{shown(k)!r} ({v})" if k else f"(no party) ({v})" for k, v in counts.items())
