@@ -316,3 +316,13 @@ def test_a_dry_run_writes_its_report_file_and_nothing_else(lf):
     (path,) = (lf.root / "logs" / "loads").glob("dry-run-*-returns.csv.txt")
     assert "the runoff contest decides this seat" in path.read_text(encoding="utf-8")
     assert lf.dump() == before
+
+
+def test_contest_messages_name_cycle_state_chamber_and_district(lf):
+    wide = "cycle,state,chamber,district,votes_Harbour,votes_Upland\n2024,qv,Federal,4,,\n2024,QV,federal,5,3,4\n"
+    err = lf("load", lf.write("wide.csv", wide), code=1).stderr
+    assert "wide.csv:2: no votes_ column has a count: district '4', QV federal 2024 with no votes at all" in err
+    seats = ("cycle,state,chamber,district,party,candidate,votes,seats,special\n"
+             "2024,QV,federal,6,Harbour,Ann,5,1,1\n2024,QV,federal,6,Upland,Bo,4,2,1\n")
+    err = lf("load", lf.write("seats.csv", seats), code=1).stderr
+    assert "seats.csv:3:seats: seats 2 disagrees with 1 at row 2 for district '6' (special), QV federal 2024" in err

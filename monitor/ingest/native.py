@@ -13,7 +13,7 @@ from typing import Iterable
 
 from monitor.errors import DataError, Problem
 from monitor.ingest.fields import shown
-from monitor.ingest.records import ParseContext, Record, contest_key, parse_record
+from monitor.ingest.records import ParseContext, Record, contest_key, describe_contest, parse_record
 
 LONG_REQUIRED = ("cycle", "state", "chamber", "district", "party", "candidate", "votes")
 LONG_OPTIONAL = ("seats", "special", "runoff", "writein", "status")
@@ -133,9 +133,12 @@ def parse_native(
         row_records: list[Record] = []
         row_seen: set[Problem] = set()
         if not any(cells[i].strip() for _, i in parties):
-            row_problems.append(Problem(ctx.file, row, None, "no votes_ column has a count: a district "
+            key = contest_key(ctx, get)
+            where = (describe_contest(*key[:4], bool(key[4]), bool(key[5])) if None not in key[:4]
+                     else "a district")
+            row_problems.append(Problem(ctx.file, row, None, f"no votes_ column has a count: {where} "
                                                              "with no votes at all"))
-            ctx.bad_rows.append((row, contest_key(ctx, get)))
+            ctx.bad_rows.append((row, key))
             continue
         for label, i in parties:
             if not cells[i].strip():
