@@ -137,6 +137,9 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
 
     Each file loads whole or not at all. The same file twice changes nothing; a file that
     re-delivers a stored (cycle, state, chamber) is a correction and the report says what changed.
+    The printed report keeps long lists short; the full report of each load is written to
+    logs/loads/ in the workspace. Exit 1: a file is wrong (nothing of it stored); exit 2: a
+    usage or mapping error (such as a column the file does not have).
     """
     from monitor.ingest import load_file
     from monitor.ingest.mapping import load_mapping
