@@ -326,3 +326,19 @@ def test_contest_messages_name_cycle_state_chamber_and_district(lf):
              "2024,QV,federal,6,Harbour,Ann,5,1,1\n2024,QV,federal,6,Upland,Bo,4,2,1\n")
     err = lf("load", lf.write("seats.csv", seats), code=1).stderr
     assert "seats.csv:3:seats: seats 2 disagrees with 1 at row 2 for district '6' (special), QV federal 2024" in err
+
+
+def test_a_bad_row_takes_its_contest_with_it_when_the_key_is_translated(lf):
+    # their state names translate into our codes: a row too short to read, and a row whose state
+    # has no translation, still take their whole contest with them (never half a contest)
+    mapping = archive_mapping() + '\n[translate.state]\n"STATE OV" = "OV"\n'
+    mapping = mapping.replace('state = "state_po"', 'state = "state"')
+    rows = (other_district(2016, "OV", "1") + other_district(2016, "OV", "2")
+            + [line(2016, "OV", "3", "Cyra Holt", H, 355), line(2016, "OV", "3", "Edda Voss", M, 552)])
+    rows[1] = rows[1][:10]  # district 1's party-b row is cut short
+    rows[3][1] = "OVX"       # district 2's party-b row names a state the mapping cannot translate
+    out = load_archive(lf, rows, "--skip-bad-rows", mapping=mapping).stdout
+    assert "returns.csv:5:state: state 'OVX' has no translation in the mapping's [translate.state]" in out
+    assert "returns.csv:2:district: skipped with the rest of its contest (district '1', OV federal 2016)" in out
+    assert "returns.csv:4:district: skipped with the rest of its contest (district '2', OV federal 2016)" in out
+    assert lf.rows("SELECT DISTINCT district FROM district_results") == [("3",)]

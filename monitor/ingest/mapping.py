@@ -24,7 +24,7 @@ from monitor.errors import ConfigError, DataError, Problem
 from monitor.ingest.deciding import DecidingRules, parse_rules
 from monitor.ingest.fields import shown
 from monitor.ingest.native import cells_getter, width_problem
-from monitor.ingest.records import FIELDS, ParseContext, Record, contest_key, parse_record
+from monitor.ingest.records import FIELDS, KEY_FIELDS, ParseContext, Record, contest_key, parse_record
 
 REQUIRED_FIELDS = ("cycle", "state", "district", "party", "votes")
 TOP_KEYS = ("chamber", "candidate_lines", "repeated_lines", "encoding", "delimiter", "source",
@@ -295,7 +295,8 @@ def parse_mapped(ctx: ParseContext, mapping: Mapping, header: list[str],
         get = cells_getter(cells, field_index)
         if len(cells) != width:
             out.problems.append(width_problem(ctx.file, row, cells, names))
-            ctx.bad_rows.append((row, contest_key(ctx, get)))
+            get, _, unknown = _translated(ctx.file, row, get, mapping)
+            ctx.bad_rows.append((row, _bad_key(ctx, get, unknown)))
             continue
         if (any(keep_value(cells[i]) not in values for i, values in keep)
                 or exclude_value(cells[state_i]) in mapping.exclude_states):
@@ -305,10 +306,10 @@ def parse_mapped(ctx: ParseContext, mapping: Mapping, header: list[str],
         if label is not None:
             out.not_candidates[" ".join(label.split())] += 1
             continue
-        get, untranslated = _translated(ctx.file, row, get, mapping)
+        get, untranslated, unknown = _translated(ctx.file, row, get, mapping)
         if untranslated:
             out.problems.extend(untranslated)
-            ctx.bad_rows.append((row, contest_key(ctx, get)))
+            ctx.bad_rows.append((row, _bad_key(ctx, get, unknown)))
             continue
         record, problems = parse_record(ctx, row, get, columns)
         out.problems.extend(problems)
@@ -319,17 +320,25 @@ def parse_mapped(ctx: ParseContext, mapping: Mapping, header: list[str],
     return out
 
 
+def _bad_key(ctx: ParseContext, get, unknown: set[str]) -> tuple:
+    """What a bad row says about its contest, a field it has no translation for left unknown
+    (``None``: it fits any contest, so the row takes every contest it may belong to with it)."""
+    return tuple(None if name in unknown else value for name, value in zip(KEY_FIELDS, contest_key(ctx, get)))
+
+
 def _translated(file: str, row: int, get, mapping: Mapping):
-    """``get`` with the mapping's ``[translate.<field>]`` applied, and a problem for each cell
-    whose value has no translation (that cell then reads as written)."""
+    """``get`` with the mapping's ``[translate.<field>]`` applied, a problem for each cell whose
+    value has no translation (that cell then reads as written) and the set of those fields."""
     if not mapping.translate:
-        return get, []
+        return get, [], set()
     problems = []
     values: dict[str, str | None] = {}
+    unknown: set[str] = set()
     for ours, table in mapping.translate.items():
         cell = get(ours)
         hit = table.get(keep_value(cell or ""))
         if hit is None:
+            unknown.add(ours)
             known = ", ".join(repr(theirs) for theirs, _ in table.values())
             problems.append(Problem(file, row, shown(mapping.columns[ours]),
                                     f"{ours} {shown((cell or '').strip())!r} has no translation in the mapping's "
@@ -342,7 +351,7 @@ def _translated(file: str, row: int, get, mapping: Mapping):
     def get_translated(name: str) -> str | None:
         return values[name] if name in values else get(name)
 
-    return get_translated, problems
+    return get_translated, problems, unknown
 
 
 def quiet_labels(mapping: Mapping | None) -> set[str]:
