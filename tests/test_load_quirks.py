@@ -342,3 +342,14 @@ def test_a_bad_row_takes_its_contest_with_it_when_the_key_is_translated(lf):
     assert "returns.csv:2:district: skipped with the rest of its contest (district '1', OV federal 2016)" in out
     assert "returns.csv:4:district: skipped with the rest of its contest (district '2', OV federal 2016)" in out
     assert lf.rows("SELECT DISTINCT district FROM district_results") == [("3",)]
+
+
+def test_the_state_page_counts_each_seat_once_and_names_the_runoff(lf):
+    load_archive(lf, RUNOFF_ROWS)
+    lf("compute")
+    lf("publish")
+    page = (lf.root / "public" / "state" / "qn" / "federal.html").read_text(encoding="utf-8")
+    text = re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", page))
+    # two seats, both won by party a (the first round of district 2 is history, not a third seat)
+    assert "2020: Harbour Party 2, Upland League 0" in text
+    assert re.search(r"<td[^>]*>\s*2 \(runoff\)\s*</td>", page)
