@@ -127,7 +127,7 @@ def init(ws: Workspace) -> None:
 @click.option("--mapping", "mapping_path", type=click.Path(path_type=Path, dir_okay=False),
               help="TOML mapping that makes a foreign candidate-level CSV loadable.")
 @click.option("--source", help="Where the file came from (stored with the load's provenance).")
-@click.option("--dry-run", is_flag=True, help="Check and report, write nothing.")
+@click.option("--dry-run", is_flag=True, help="Check and report; write nothing to the store (the report file still goes to logs/loads/).")
 @click.option("--skip-bad-rows", is_flag=True, help="Load the good rows and report every skipped one.")
 @click.option("--encoding", help="Text encoding of the files (default UTF-8, with or without BOM).")
 @click.pass_obj
