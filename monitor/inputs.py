@@ -1,6 +1,10 @@
-"""What the measures see: the stored reductions of the current contests of every unit (written by
-:mod:`monitor.reductions`) as two-party votes after the uncontested policy, grouped into sorted
-unit arrays."""
+"""What the measures see: the stored reductions (written by :mod:`monitor.reductions`) of the
+current contests that decide their seats, in every unit, as two-party votes after the uncontested
+policy, grouped into sorted unit arrays.
+
+One contest per seat enters: the one the loader marked as deciding it (``contests.decides``:
+the regular contest, its runoff when there is one, or a special that replaced the regular
+election; see :mod:`monitor.ingest.deciding`). The others stay stored as history."""
 
 from __future__ import annotations
 
@@ -19,9 +23,14 @@ UNIT_KEYS = ["cycle", "state", "chamber"]
 
 def reduced_contests(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
     """One row per current contest (of ``cycle`` only, when given): unit keys, district, special,
-    seats and its stored reduction (``store.reductions.CONTEST_COLUMNS``), sorted by unit, district
-    and special."""
+    runoff, decides (whether it decides its seat), placeholder (no real count), seats and its stored
+    reduction (``store.reductions.CONTEST_COLUMNS``), sorted by unit, district, special and runoff."""
     return stored.current(db, cycle)
+
+
+def deciding_contests(contests: pd.DataFrame) -> pd.DataFrame:
+    """The contests that decide their seats (one per seat), from :func:`reduced_contests`."""
+    return contests[contests["decides"].astype(int) == 1]
 
 
 @dataclass
@@ -39,13 +48,13 @@ class UnitArrays:
 
 def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "") -> UnitArrays:
     """The unit arrays of the contests that enter the measures (their stored ``enters``, votes after
-    the policy and ``uncontested`` flag), keeping every unit that has current regular contests (a
-    unit with no eligible contest gets an empty segment: its measures are null with a reason).
-    ``salt`` (settings and method versions) enters every inputs hash."""
-    regular = contests[contests["special"].astype(int) == 0]
-    units = (regular[["unit_id", *UNIT_KEYS]].drop_duplicates()
+    the policy and ``uncontested`` flag), keeping every unit that has current contests deciding
+    their seats (a unit with no eligible contest gets an empty segment: its measures are null with
+    a reason). ``salt`` (settings and method versions) enters every inputs hash."""
+    deciding = deciding_contests(contests)
+    units = (deciding[["unit_id", *UNIT_KEYS]].drop_duplicates()
              .sort_values(UNIT_KEYS).reset_index(drop=True))
-    two = regular[regular["enters"].astype(int) == 1]
+    two = deciding[deciding["enters"].astype(int) == 1]
     index = pd.Series(units.index, index=units["unit_id"])
     two = two.assign(unit=index.reindex(two["unit_id"]).to_numpy())
     two = two.sort_values(["unit", "district"], kind="mergesort")

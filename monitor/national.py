@@ -22,6 +22,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from monitor.inputs import deciding_contests
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
 GROUP = ["cycle", "chamber"]
@@ -43,7 +44,7 @@ SUMMARY_FIELDS: list[tuple[str, str, str]] = [
     ("cycle", "integer", "election year"),
     ("chamber", "string", "chamber code as loaded (federal, state_lower, ...)"),
     ("states", "integer", "states with results in this cycle and chamber"),
-    ("districts", "integer", "districts with results (regular contests; special elections not counted)"),
+    ("districts", "integer", "districts with results (one contest per seat: the one that decides it)"),
     ("seats", "number", "seats filled in those districts"),
     ("seats_a", "number", "seats won by party a (a tie counts half a seat to each)"),
     ("seats_b", "number", "seats won by party b"),
@@ -171,8 +172,7 @@ def national_summary(contests: pd.DataFrame, measures: pd.DataFrame, tails: pd.D
     seats (cycle, state, chamber, excess_seats); ``unit_plans``: :func:`plans_of_units`."""
     if contests.empty:
         return pd.DataFrame(columns=SUMMARY_COLUMNS)
-    regular = contests[contests["special"].astype(int) == 0]
-    g = regular.groupby(GROUP)
+    g = deciding_contests(contests).groupby(GROUP)
     out = pd.DataFrame({
         "states": g["state"].nunique(),
         "districts": g.size(),

@@ -24,16 +24,18 @@ BATCH_UNITS = 2_000
 
 def reduce_units(lines: pd.DataFrame, contests: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
     """The rows of ``store.reductions.COLUMNS`` for ``contests`` (contest_id, unit_id, seats,
-    special) from their vote ``lines`` (:func:`monitor.reduce.reduce_contests`), with the raw
-    two-party share ``share_a`` and what enters the measures under ``policy``
-    (:func:`monitor.reduce.two_party_inputs` over the regular contests): ``enters``,
+    special, decides, placeholder) from their vote ``lines`` (:func:`monitor.reduce.reduce_contests`),
+    with the raw two-party share ``share_a`` and what enters the measures under ``policy``
+    (:func:`monitor.reduce.two_party_inputs` over the contests that decide their seats): ``enters``,
     ``uncontested``, ``votes_a_used``, ``votes_b_used``, ``share_used`` (NaN when the contest does
     not enter) and ``imputed``."""
     reduced = reduce_contests(lines, contests[["contest_id", "seats"]]).drop(columns=["seats"])
-    out = contests[["contest_id", "unit_id", "seats", "special"]].merge(reduced, on="contest_id", how="left")
+    out = contests[["contest_id", "unit_id", "seats", "special", "decides", "placeholder"]].merge(
+        reduced, on="contest_id", how="left")
     two = (out["votes_a"] + out["votes_b"]).astype(float)
     out["share_a"] = np.where(two > 0, out["votes_a"] / two.where(two > 0, 1.0), np.nan)
-    used = two_party_inputs(out[out["special"].astype(int) == 0], policy, winner_share).set_index("contest_id")
+    deciding = out[out["decides"].astype(int) == 1]
+    used = two_party_inputs(deciding, policy, winner_share).set_index("contest_id")
     out["enters"] = out["contest_id"].isin(used.index).astype(int)
     va = used["votes_a"].reindex(out["contest_id"]).to_numpy(float)
     vb = used["votes_b"].reindex(out["contest_id"]).to_numpy(float)

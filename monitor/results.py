@@ -8,7 +8,8 @@ import sqlite_utils
 from store import reductions
 
 RESULT_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id"]
-REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner"]
+REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner", "runoff",
+                     "decides"]
 
 
 def results_export(db: sqlite_utils.Database) -> pd.DataFrame:
@@ -17,5 +18,6 @@ def results_export(db: sqlite_utils.Database) -> pd.DataFrame:
     if lines.empty:
         return pd.DataFrame(columns=RESULT_COLUMNS + REDUCTION_COLUMNS)
     out = lines.rename(columns={"status": "contest_status", "certification": "status"})
-    out["special"] = out["special"].astype(int)
+    for flag in ("special", "runoff", "decides"):
+        out[flag] = out[flag].astype(int)
     return out[RESULT_COLUMNS + REDUCTION_COLUMNS].reset_index(drop=True)

@@ -6,7 +6,8 @@ statement of levelfield lives here, one module per concern:
 
 ==================  ==========================================================================
 ``tx``              transactions: snapshots, write transactions, read-compute-write
-``migrations``      the numbered schema migrations
+``schema``          the schema, as numbered migrations (SQL)
+``migrations``      applying them
 ``db``              opening the store (pragmas, then the migrations)
 ``queries``         loads, units, contests and vote lines as delivered (the loader's tables)
 ``history``         corrections: superseded units and the loads that replaced them

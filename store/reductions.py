@@ -19,7 +19,7 @@ COLUMNS = ["contest_id", "unit_id", "votes_a", "votes_b", "votes_other", "total"
            "uncontested", "votes_a_used", "votes_b_used", "share_used", "imputed"]
 #: the columns of a current contest with its unit's keys, as :func:`current` returns them
 CONTEST_COLUMNS = ["unit_id", "cycle", "state", "chamber", "certification", "load_id", "contest_id", "district",
-                   "seats", "special", *COLUMNS[2:]]
+                   "seats", "special", "runoff", "decides", "placeholder", *COLUMNS[2:]]
 
 
 def stale_units(db: sqlite_utils.Database, policy: str, *, every: bool = False) -> list[tuple[int, str]]:
@@ -32,14 +32,14 @@ def stale_units(db: sqlite_utils.Database, policy: str, *, every: bool = False) 
 
 
 def unit_contests(db: sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.DataFrame:
-    """contest_id, unit_id, seats and special of every contest of the units (with or without vote
-    lines)."""
+    """contest_id, unit_id, seats, special, decides and placeholder of every contest of the units
+    (with or without vote lines)."""
     if not unit_ids:
-        return pd.DataFrame(columns=["contest_id", "unit_id", "seats", "special"])
+        return pd.DataFrame(columns=["contest_id", "unit_id", "seats", "special", "decides", "placeholder"])
     marks = ",".join("?" for _ in unit_ids)
     return pd.read_sql_query(
-        f"SELECT id AS contest_id, unit_id, seats, special FROM contests WHERE unit_id IN ({marks}) ORDER BY id",
-        db.conn, params=list(unit_ids))
+        f"SELECT id AS contest_id, unit_id, seats, special, decides, placeholder FROM contests "
+        f"WHERE unit_id IN ({marks}) ORDER BY id", db.conn, params=list(unit_ids))
 
 
 def replace(conn: sqlite3.Connection, unit_ids: Sequence[int], rows: Sequence[tuple],
@@ -55,7 +55,7 @@ def replace(conn: sqlite3.Connection, unit_ids: Sequence[int], rows: Sequence[tu
 
 _CURRENT = (
     "SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.certification, u.load_id, c.id AS contest_id, "
-    "c.district, c.seats, c.special, " + ", ".join(f"r.{c}" for c in COLUMNS[2:]) + " "
+    "c.district, c.seats, c.special, c.runoff, c.decides, c.placeholder, " + ", ".join(f"r.{c}" for c in COLUMNS[2:]) + " "
     "FROM contests c JOIN units u ON u.id = c.unit_id JOIN reductions r ON r.contest_id = c.id "
     "WHERE u.superseded_by IS NULL"
 )
@@ -63,9 +63,9 @@ _CURRENT = (
 
 def current(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
     """Every current contest (of ``cycle`` only, when given) with its unit's keys and its reduction:
-    CONTEST_COLUMNS, sorted by cycle, state, chamber, district, special."""
+    CONTEST_COLUMNS, sorted by cycle, state, chamber, district, special, runoff."""
     where, params = ("AND u.cycle = ? ", [cycle]) if cycle is not None else ("", [])
-    frame = pd.read_sql_query(f"{_CURRENT} {where}ORDER BY u.cycle, u.state, u.chamber, c.district, c.special",
+    frame = pd.read_sql_query(f"{_CURRENT} {where}ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, c.runoff",
                               db.conn, params=params)
     return _flags(frame)[CONTEST_COLUMNS]
 
@@ -79,24 +79,26 @@ def _flags(frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def of_units(db: sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.DataFrame:
-    """The reductions of the given units (current or superseded) with each contest's district and
-    special: unit_id, contest_id, district, special and the reduction columns."""
-    cols = ["unit_id", "contest_id", "district", "special", *COLUMNS[2:]]
+    """The reductions of the given units (current or superseded) with each contest's district,
+    special, runoff and decides, and the reduction columns."""
+    cols = ["unit_id", "contest_id", "district", "special", "runoff", "decides", *COLUMNS[2:]]
     if not unit_ids:
         return pd.DataFrame(columns=cols)
     marks = ",".join("?" for _ in unit_ids)
     return pd.read_sql_query(
-        f"SELECT r.unit_id, r.contest_id, c.district, c.special, {', '.join('r.' + c for c in COLUMNS[2:])} "
+        f"SELECT r.unit_id, r.contest_id, c.district, c.special, c.runoff, c.decides, "
+        f"{', '.join('r.' + c for c in COLUMNS[2:])} "
         f"FROM reductions r JOIN contests c ON c.id = r.contest_id WHERE r.unit_id IN ({marks}) "
-        "ORDER BY r.unit_id, c.district, c.special", db.conn, params=list(unit_ids)).pipe(_flags)
+        "ORDER BY r.unit_id, c.district, c.special, c.runoff", db.conn, params=list(unit_ids)).pipe(_flags)
 
 
 def result_lines(db: sqlite_utils.Database) -> pd.DataFrame:
-    """Every current vote line (the ``district_results`` columns and the contest's stored status)
-    with its contest's reduction: votes_a, votes_b, winner, share_a."""
+    """Every current vote line (the ``district_results`` columns and the contest's stored status,
+    ``runoff`` and ``decides``) with its contest's reduction: votes_a, votes_b, winner, share_a."""
     return pd.read_sql_query(
         "SELECT u.cycle, u.state, u.chamber, c.district, v.party, v.candidate, v.votes, "
-        "u.certification, u.load_id, c.special, c.seats, c.status, r.votes_a, r.votes_b, r.share_a, r.winner "
+        "u.certification, u.load_id, c.special, c.seats, c.status, r.votes_a, r.votes_b, r.share_a, r.winner, "
+        "c.runoff, c.decides "
         "FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
         "JOIN reductions r ON r.contest_id = c.id WHERE u.superseded_by IS NULL "
-        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, v.id", db.conn)
+        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, c.runoff, v.id", db.conn)

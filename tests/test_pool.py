@@ -495,8 +495,6 @@ def quantile_pool(M=3000, sd=0.12):
 
 def observed_measures(states):
     """The states' own values of the default null measures, from monitor.measures."""
-    from monitor import measures
-
     unit = np.repeat(np.arange(len(states)), [len(s) for s in states])
     x = np.concatenate(states)
     va, vb = 1000 * x, 1000 * (1 - x)

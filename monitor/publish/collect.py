@@ -354,7 +354,8 @@ def _compare_units(db: sqlite_utils.Database, rows) -> list[list[str]]:
     ids = sorted({int(r.old_unit_id) for r in rows} | {int(r.unit_id) for r in rows})
     reduced = {}
     for unit_id, red in stored_reductions.of_units(db, ids).groupby("unit_id"):
-        red = red.assign(key=list(zip(red["district"], red["special"].astype(int).astype(bool))))
+        red = red.assign(key=list(zip(red["district"], red["special"].astype(int).astype(bool),
+                                      red["runoff"].astype(int).astype(bool))))
         reduced[int(unit_id)] = red.set_index("key")
     empty = pd.DataFrame(columns=["seats_a", "seats_b", "votes_a", "votes_b", "votes_other", "winner"])
     out = []
