@@ -246,8 +246,9 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
 def plans(ws: Workspace, file: Path) -> None:
     """Load plan eras (who drew each map) from FILE.
 
-    Columns: state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source; drawn_by is one of
-    party_a, party_b, split, commission, court, other. The file replaces the plans of every
+    Columns: state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source, and optionally
+    districts,seats (how many the plan has; seats default to the districts), which each unit's
+    coverage is measured against; drawn_by is one of party_a, party_b, split, commission, court, other. The file replaces the plans of every
     state and chamber it names. Units outside every era get an inferred plan (a new plan from each
     cycle ending in 2), marked inferred wherever it shows.
     """
@@ -352,11 +353,48 @@ def export_results(ws: Workspace, fmt: str, out: Path | None) -> None:
 @click.pass_obj
 @guarded
 def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy."""
-    from monitor.compute import measures_export
+    """Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy
+    (fixed, in this order), then reason (why a value is undefined) and the unit's coverage and vote
+    shares: districts_in_measures, districts_expected, seats_in_measures, seats_expected,
+    seat_coverage, incomplete (yes/no), expected_from, missing_or_left_out, vote_share_as_cast,
+    vote_share_after_policy, national_vote_share_as_cast, national_vote_share_after_policy."""
+    from monitor.exports import measures_export
     from monitor.output import to_text, write
 
     write(to_text(measures_export(ws.open_store()), fmt), out)
+
+
+@export.command("expected-seats")
+@workspace_option
+@FORMAT
+@OUT
+@click.pass_obj
+@guarded
+def export_expected_seats(ws: Workspace, fmt: str, out: Path | None) -> None:
+    """Expected seats from the national pool, per unit (the site's expected-seats download):
+    cycle,state,chamber,districts,vote_share,seats_a,expected_seats,low,high,percentile,excess_seats,
+    draws,ess,mc_se,reason,method_version. excess_seats = seats_a - expected_seats (positive favours a)."""
+    from monitor.exports import expected_seats_export
+    from monitor.output import to_text, write
+
+    write(to_text(expected_seats_export(ws.open_store()), fmt), out)
+
+
+@export.command("tails")
+@workspace_option
+@FORMAT
+@OUT
+@click.pass_obj
+@guarded
+def export_tails(ws: Workspace, fmt: str, out: Path | None) -> None:
+    """Every unit and measure against its national-pool null, flagged or not and why (the site's
+    flagged-units download): cycle,state,chamber,measure,value,null_percentile,null_low,null_high,
+    p_value,cross_percentile,robust_z,flagged,favours,basis,plan_id,reason,incomplete. Percentiles
+    are fractions 0-1; flagged is 1 or 0."""
+    from monitor.exports import tails_export
+    from monitor.output import to_text, write
+
+    write(to_text(tails_export(ws.open_store()), fmt), out)
 
 
 @export.command("national")

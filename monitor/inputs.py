@@ -11,6 +11,7 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
+from monitor.eligibility import deciding
 from monitor.reduce import reduce_contests, two_party_inputs
 from store import queries
 
@@ -49,7 +50,7 @@ def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "") -> Un
     """Apply the uncontested policy and build the unit arrays, keeping every unit that has
     current contests (a unit with no eligible contest gets an empty segment: its measures are
     null with a reason). ``salt`` (settings and method versions) enters every inputs hash."""
-    regular = contests[contests["special"].astype(int) == 0]
+    regular = contests[deciding(contests)]
     units = (regular[["unit_id", *UNIT_KEYS]].drop_duplicates()
              .sort_values(UNIT_KEYS).reset_index(drop=True))
     two = two_party_inputs(regular, config["uncontested.policy"], config["uncontested.winner_share"])

@@ -22,6 +22,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from monitor.eligibility import deciding
 from monitor.reduce import two_party_inputs
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
@@ -106,7 +107,7 @@ def contest_shares(contests: pd.DataFrame, policy: str, winner_share: float) -> 
     contests = contests.sort_values([*UNIT_KEYS, "district", "special"], kind="mergesort").reset_index(drop=True)
     two = (contests["votes_a"] + contests["votes_b"]).astype(float)
     contests["share_a"] = np.where(two > 0, contests["votes_a"] / two.where(two > 0, 1.0), np.nan)
-    regular = contests[contests["special"].astype(int) == 0]
+    regular = contests[deciding(contests)]
     used = two_party_inputs(regular, policy, winner_share).set_index("contest_id")
     va = used["votes_a"].reindex(contests["contest_id"]).to_numpy(float)
     vb = used["votes_b"].reindex(contests["contest_id"]).to_numpy(float)
@@ -201,7 +202,7 @@ def national_summary(contests: pd.DataFrame, measures: pd.DataFrame, tails: pd.D
     seats (cycle, state, chamber, excess_seats); ``unit_plans``: :func:`plans_of_units`."""
     if contests.empty:
         return pd.DataFrame(columns=SUMMARY_COLUMNS)
-    regular = contests[contests["special"].astype(int) == 0]
+    regular = contests[deciding(contests)]
     g = regular.groupby(GROUP)
     out = pd.DataFrame({
         "states": g["state"].nunique(),
