@@ -364,6 +364,26 @@ def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
     write(to_text(measures_export(ws.open_store()), fmt), out)
 
 
+@export.command("coverage")
+@workspace_option
+@FORMAT
+@OUT
+@click.option("--districts", is_flag=True,
+              help="One row per district missing or left out of the measures (cycle,state,chamber,district,seats,"
+                   "gap,reason) instead of one row per unit.")
+@click.pass_obj
+@guarded
+def export_coverage(ws: Workspace, fmt: str, out: Path | None, districts: bool) -> None:
+    """What the measures cover, one row per unit (the site's coverage download): cycle,state,chamber,
+    districts_in_measures,districts_expected,seats_in_measures,seats_expected,seat_coverage,incomplete,
+    expected_from,missing_or_left_out,vote_share_as_cast,vote_share_after_policy,
+    national_vote_share_as_cast,national_vote_share_after_policy. Computed by `levelfield compute`."""
+    from monitor.exports import coverage_export
+    from monitor.output import to_text, write
+
+    write(to_text(coverage_export(ws.open_store(), districts=districts), fmt), out)
+
+
 @export.command("expected-seats")
 @workspace_option
 @FORMAT

@@ -1,4 +1,4 @@
-"""What ``levelfield export measures | expected-seats | tails`` write, and the columns the site's
+"""What ``levelfield export measures | coverage | expected-seats | tails`` write, and the columns the site's
 downloads of the same tables share with them.
 
 Column lists are ``(name, Table Schema type, meaning)`` tuples, as in :mod:`monitor.national`:
@@ -53,6 +53,12 @@ COVERAGE_FIELDS: list[tuple[str, str, str]] = [
      "the share after the uncontested policy, nationwide for the cycle and chamber"),
 ]
 
+GAP_FIELDS: list[tuple[str, str, str]] = [
+    *KEYS, ("district", "string", "district code (empty: more districts expected than stored, codes not known)"),
+    ("seats", "integer", "seats of the district (or of the unknown districts)"),
+    ("gap", "string", "missing | left out"), ("reason", "string", "why it is missing or left out"),
+]
+
 EXPECTED_SEATS_FIELDS: list[tuple[str, str, str]] = [
     *KEYS, ("districts", "integer", "districts of the unit"), ("vote_share", "number", "party a's statewide two-party share"),
     ("seats_a", "number", "seats won by party a"), ("expected_seats", "number", "expected seats of party a"),
@@ -81,19 +87,27 @@ def names(fields) -> list[str]:
     return [f[0] for f in fields]
 
 
+def typed(frame: pd.DataFrame, fields) -> pd.DataFrame:
+    """Integer fields as integers (a column with a null is read back as floats: 2000.0)."""
+    out = frame.copy()
+    for name, kind, _ in fields:
+        if kind == "integer" and name in out:
+            out[name] = pd.to_numeric(out[name], errors="coerce").round().astype("Int64")
+    return out
+
+
 MEASURES_EXPORT_COLUMNS = [*MEASURE_COLUMNS, REASON_FIELD[0], *names(COVERAGE_FIELDS)]
 
 
-def coverage_columns(db) -> pd.DataFrame:
-    """Per unit: the :data:`COVERAGE_FIELDS` columns from the stored coverage."""
-    units = stored_coverage(db).units
+def coverage_columns(units: pd.DataFrame) -> pd.DataFrame:
+    """Per unit: the :data:`COVERAGE_FIELDS` columns of the stored coverage rows ``units``."""
     if units.empty:
         return pd.DataFrame(columns=[*UNIT_KEYS, *names(COVERAGE_FIELDS)])
     out = with_shares(units).merge(national_shares(units), on=["cycle", "chamber"], how="left")
     out = out.rename(columns={"districts_measured": "districts_in_measures", "seats_measured": "seats_in_measures",
                               "note": "missing_or_left_out"})
     out["incomplete"] = np.where(out["incomplete"].astype(int) == 1, "yes", "no")
-    return out[[*UNIT_KEYS, *names(COVERAGE_FIELDS)]]
+    return typed(out[[*UNIT_KEYS, *names(COVERAGE_FIELDS)]], [*KEYS, *COVERAGE_FIELDS])
 
 
 def with_unit_coverage(frame: pd.DataFrame, coverage: pd.DataFrame, columns: list[str]) -> pd.DataFrame:
@@ -110,14 +124,24 @@ def measures_export(db) -> pd.DataFrame:
     shares of each row's unit."""
     m = queries.read_table(db, "measures", [*MEASURE_COLUMNS, "reason"], "cycle, state, chamber, measure")
     m["reason"] = m["reason"].where(m["reason"].astype(str).str.len() > 0, None)  # stored "" for a defined value
-    out = with_unit_coverage(m, coverage_columns(db), names(COVERAGE_FIELDS))
+    out = with_unit_coverage(m, coverage_columns(stored_coverage(db).units), names(COVERAGE_FIELDS))
     return out[MEASURES_EXPORT_COLUMNS]
+
+
+def coverage_export(db, districts: bool = False) -> pd.DataFrame:
+    """``levelfield export coverage``: one row per unit (``[*KEYS, *COVERAGE_FIELDS]``), or with
+    ``districts`` one row per missing or left-out district (:data:`GAP_FIELDS`)."""
+    stored = stored_coverage(db)
+    if districts:
+        return typed(stored.gaps[names(GAP_FIELDS)], GAP_FIELDS)
+    return coverage_columns(stored.units)
 
 
 def expected_seats_export(db) -> pd.DataFrame:
     """``levelfield export expected-seats``: the national pool's expected seats per unit (the
     columns of the site's expected-seats download)."""
-    return queries.read_table(db, "pool_seats", names(EXPECTED_SEATS_FIELDS), "cycle, state, chamber")
+    return typed(queries.read_table(db, "pool_seats", names(EXPECTED_SEATS_FIELDS), "cycle, state, chamber"),
+                 EXPECTED_SEATS_FIELDS)
 
 
 def tails_export(db) -> pd.DataFrame:
@@ -125,5 +149,5 @@ def tails_export(db) -> pd.DataFrame:
     or not and why (the columns of the site's flagged-units download)."""
     stored = [n for n in names(TAILS_FIELDS) if n not in ("favours", "incomplete")] + ["direction"]
     t = queries.read_table(db, "tails", stored, "cycle, state, chamber, measure").rename(columns={"direction": "favours"})
-    t = with_unit_coverage(t, coverage_columns(db), ["incomplete"])
-    return t[names(TAILS_FIELDS)]
+    t = with_unit_coverage(t, coverage_columns(stored_coverage(db).units), ["incomplete"])
+    return typed(t[names(TAILS_FIELDS)], TAILS_FIELDS)

@@ -19,7 +19,7 @@ from collections.abc import Iterator
 
 import pandas as pd
 
-from monitor.exports import COVERAGE_FIELDS, EXPECTED_SEATS_FIELDS, KEYS, TAILS_FIELDS
+from monitor.exports import COVERAGE_FIELDS, EXPECTED_SEATS_FIELDS, GAP_FIELDS, KEYS, TAILS_FIELDS
 from monitor.national import HISTOGRAM_FIELDS, SUMMARY_FIELDS
 from monitor.publish import formats as F
 from monitor.publish.collect import SiteData
@@ -48,15 +48,25 @@ RESOURCES: list[dict] = [
                 ("winner", "string", "a | b | other | split")]},
     {"name": "measures", "title": "Measures per state, chamber and cycle",
      "description": "One row per unit and measure. Signed measures are positive when they favour party a. "
-                    "low/high: 95% interval where given; reason: why a value is undefined. Then the unit's "
-                    "coverage (districts and seats in the measures and expected, incomplete, what is missing or "
-                    "left out and why) and party a's two-party vote share as cast and after the uncontested "
-                    "policy, for the state and nationwide: the columns levelfield export measures adds.",
+                    "low/high: 95% interval where given; reason: why a value is undefined. Each unit's coverage "
+                    "and vote shares are in the coverage download (levelfield export measures repeats them on "
+                    "every row).",
      "fields": [*KEYS, ("measure", "string", "measure name (see the methods page)"), ("value", "number", "value"),
                 ("low", "number", "95% interval, low end"), ("high", "number", "95% interval, high end"),
                 ("p_value", "number", "p-value where the measure has a test"),
                 ("reason", "string", "why the value is undefined"), ("method_version", "string", "method version"),
-                ("policy", "string", "uncontested policy the value was computed under"), *COVERAGE_FIELDS]},
+                ("policy", "string", "uncontested policy the value was computed under")]},
+    {"name": "coverage", "title": "Coverage and vote shares per state, chamber and cycle",
+     "description": "One row per unit: the districts and seats it should have and those that enter the measures, "
+                    "whether it is incomplete and what is missing or left out (and why), and party a's two-party "
+                    "vote share as cast and after the uncontested policy, for the state and nationwide. The same "
+                    "columns as levelfield export coverage (and the columns export measures adds after reason).",
+     "fields": [*KEYS, *COVERAGE_FIELDS]},
+    {"name": "coverage-gaps", "title": "Districts missing or left out of the measures",
+     "description": "One row per district of a unit that is missing (results in the previous cycle of the same "
+                    "plan, none now; or more districts expected than stored) or left out of the measures, with "
+                    "why. The same columns as levelfield export coverage --districts.",
+     "fields": GAP_FIELDS},
     {"name": "expected-seats", "title": "Expected seats from the national pool",
      "description": "Seats of party a against delegations of the same size and statewide vote drawn from the "
                     "cycle's districts nationwide. excess_seats = seats_a - expected_seats (positive favours a).",
@@ -122,6 +132,10 @@ def _frame(data: SiteData, name: str) -> pd.DataFrame:
         return data.results
     if name == "measures":
         return data.measures
+    if name == "coverage":
+        return data.coverage_export
+    if name == "coverage-gaps":
+        return data.coverage_gaps
     if name == "expected-seats":
         return data.pool
     if name == "flagged-units":
