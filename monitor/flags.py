@@ -246,10 +246,11 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     t["basis"] = np.where(by_null & by_p, "null tail and p-value",
                           np.where(by_null, "null tail", np.where(by_p, "p-value", None)))
     small = np.nan_to_num(n, nan=0) < minimum
-    t["reason"] = np.where(small & t["reason"].isna(), f"fewer than {minimum} districts: not flagged",
-                           t["reason"])
+    # no reason yet: null, or the engine's "" for a defined value (the lopsided rows come from measures)
+    unexplained = t["reason"].isna() | (t["reason"] == "")
+    t["reason"] = np.where(small & unexplained, f"fewer than {minimum} districts: not flagged", t["reason"])
     coverage_reason = [not_flagged_reason(x, config["flags.min_coverage"]) for x in share]
-    t["reason"] = np.where(thin & t["reason"].isna(), coverage_reason, t["reason"])
+    t["reason"] = np.where(thin & ~small & unexplained, coverage_reason, t["reason"])
     return t
 
 
