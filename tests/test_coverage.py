@@ -275,8 +275,13 @@ def test_judge_leaves_units_below_min_coverage_unflagged(tmp_path):
 
 def test_exports_have_the_columns_of_the_site_downloads_in_order(lf):
     lf.configure(SETTINGS)
-    load(lf, "qv.csv", lopsided_state(2014, "QV") + lopsided_state(2014, "QF"))
+    load(lf, "qv.csv", lopsided_state(2014, "QV") + lopsided_state(2014, "QF") + contested(2014, "QG", 1, 600, 400))
     lf("compute")
+    # export measures says why a value is undefined, in the column after the fixed ones
+    rows = list(csv.reader(io.StringIO(lf("export", "measures").stdout)))
+    assert rows[0][10] == "reason"
+    eg = {(r[1], r[3]): r[10] for r in rows[1:]}
+    assert eg[("QG", "efficiency_gap")] == "fewer than 2 districts" and eg[("QV", "efficiency_gap")] == ""
     fields = {spec["name"]: [f[0] for f in spec["fields"]] for spec in RESOURCES}
     for command, resource in (("expected-seats", "expected-seats"), ("tails", "flagged-units"),
                               ("coverage", "coverage")):
@@ -288,7 +293,7 @@ def test_exports_have_the_columns_of_the_site_downloads_in_order(lf):
     assert fields["flagged-units"] == [f[0] for f in TAILS_FIELDS]
     assert fields["coverage"] == [f[0] for f in [*KEYS, *COVERAGE_FIELDS]]
     seats = records(lf, "expected-seats")
-    assert len(seats) == 2 and isinstance(seats[0]["draws"], int) and seats[0]["districts"] == 8
+    assert len(seats) == 3 and isinstance(seats[0]["draws"], int) and seats[0]["districts"] == 8
     # every command and option is in --help
     help_text = lf("export", "--help").stdout
     assert {"coverage", "expected-seats", "tails"} <= set(help_text.split())
@@ -324,3 +329,27 @@ def test_a_plans_file_with_bad_counts_is_refused_with_row_and_column(lf):
     assert "plans.csv:2:districts: districts '0' is not a whole number of at least 1" in out
     assert "plans.csv:3:districts: seats is given without districts: give both" in out
     assert "plans.csv:4:seats: seats 3 is fewer than districts 4" in out
+
+
+def test_a_flag_cleared_by_the_coverage_rule_says_why(lf):
+    lf.configure(SETTINGS + "[flags]\nmin_coverage = 0.75\n")
+    rows = lopsided_state(2014, "QV", minor_wins(2014, "QV", (9, 10)))
+    rows += [r for d, x in enumerate([0.4, 0.45, 0.55, 0.6, 0.52, 0.5], 1) for r in contested(2014, "QF", d, int(1000 * x), 1000 - int(1000 * x))]
+    load(lf, "flags.csv", rows)
+    lf("compute")
+    lf.configure(SETTINGS)  # back to the default 0.9: QV's 80% is below it
+    lf("compute")
+    changes = json.loads(lf("flags", "--changes", "--format", "json").stdout)
+    cleared = [c for c in changes if c["state"] == "QV" and c["event"] == "cleared"]
+    assert cleared and {c["why"] for c in cleared} == {
+        "the measures cover 80% of the seats, below flags.min_coverage (90%): not flagged"}
+
+
+def test_the_watch_list_names_its_incomplete_cycles():
+    from monitor.flags import _incomplete_cycles
+
+    watch = pd.DataFrame([{"state": "QV", "chamber": "federal", "cycles": "2012 2014 2016"},
+                          {"state": "QF", "chamber": "federal", "cycles": "2012 2014"}])
+    cover = pd.DataFrame([(2014, "QV", "federal", 1), (2016, "QV", "federal", 0), (2012, "QF", "federal", 0)],
+                         columns=["cycle", "state", "chamber", "incomplete"])
+    assert _incomplete_cycles(watch, cover)["incomplete_cycles"].tolist() == ["2014", ""]
