@@ -581,4 +581,8 @@ def _num(value) -> str:
 def _setting(value) -> str:
     if isinstance(value, bool):
         return "true" if value else "false"
+    if isinstance(value, dict):  # coverage.expected, the one table option: chamber.STATE = count
+        return "; ".join(f"{chamber}.{state} = " + (
+            ", ".join(f"{k} {v}" for k, v in count.items()) if isinstance(count, dict) else f"{count} districts")
+            for chamber, states in value.items() for state, count in states.items()) or "none"
     return str(value)
