@@ -62,52 +62,74 @@ def unit_coverage(contests: pd.DataFrame, policy: str, winner_share: float, unit
     if contests.empty:
         return Coverage(pd.DataFrame(columns=unit_cols), pd.DataFrame(columns=tables.GAP_COLUMNS))
     c = contests.reset_index(drop=True)
-    c = c.assign(reason=classify(c, policy).to_numpy(), decides=deciding(c))
+    reason = classify(c, policy).to_numpy(object)
+    decides = deciding(c)
+    units = (c[["unit_id", *UNIT_KEYS]].drop_duplicates("unit_id").sort_values(UNIT_KEYS, kind="mergesort")
+             .reset_index(drop=True))
+    n = len(units)
+    u = pd.Index(units["unit_id"]).get_indexer(c["unit_id"])   # unit index of each contest
+    dc, _ = pd.factorize(c["district"])                        # district code of each contest
     # one row per district: its deciding contest when one is stored, else its (special) contest
-    d = (c.sort_values([*UNIT_KEYS, "district", "decides"], ascending=[True, True, True, True, False], kind="mergesort")
-         .drop_duplicates([*UNIT_KEYS, "district"]))
-    d = d.assign(measured=d["reason"] == ENTERS, seats=d["seats"].astype(int))
-    g = d.groupby(UNIT_KEYS, sort=True)
-    units = pd.DataFrame({
-        "unit_id": g["unit_id"].first(),
-        "districts_stored": g.size(),
-        "seats_stored": g["seats"].sum(),
-        "districts_measured": g["measured"].sum(),
-        "seats_measured": d["seats"].where(d["measured"], 0).groupby([d[k] for k in UNIT_KEYS]).sum(),
-    })
-    decisive = c[c["decides"]]
-    cast = decisive.groupby(UNIT_KEYS)[["votes_a", "votes_b"]].sum()
-    used = two_party_inputs(decisive, policy, winner_share).groupby(UNIT_KEYS)[["votes_a", "votes_b"]].sum()
-    units["votes_a_cast"] = cast["votes_a"].reindex(units.index).fillna(0).astype(np.int64)
-    units["votes_b_cast"] = cast["votes_b"].reindex(units.index).fillna(0).astype(np.int64)
-    units["votes_a_measured"] = used["votes_a"].reindex(units.index).fillna(0.0).astype(float)
-    units["votes_b_measured"] = used["votes_b"].reindex(units.index).fillna(0.0).astype(float)
-    units = units.reset_index()
+    order = np.lexsort((~decides, dc, u))
+    head = np.r_[True, (u[order][1:] != u[order][:-1]) | (dc[order][1:] != dc[order][:-1])]
+    first = order[head]
+    d = c.iloc[first].assign(reason=reason[first], measured=reason[first] == ENTERS,
+                             seats=c["seats"].to_numpy(int)[first], u=u[first], dc=dc[first])
+    du, seats, measured = d["u"].to_numpy(), d["seats"].to_numpy(int), d["measured"].to_numpy(bool)
+    units["districts_stored"] = np.bincount(du, minlength=n)
+    units["seats_stored"] = np.bincount(du, seats, n).astype(np.int64)
+    units["districts_measured"] = np.bincount(du[measured], minlength=n)
+    units["seats_measured"] = np.bincount(du, seats * measured, n).astype(np.int64)
+    # votes as cast: the raw votes of the deciding contests; after the policy: the measures' inputs
+    units["votes_a_cast"] = np.bincount(u[decides], c["votes_a"].to_numpy(float)[decides], n).astype(np.int64)
+    units["votes_b_cast"] = np.bincount(u[decides], c["votes_b"].to_numpy(float)[decides], n).astype(np.int64)
+    used = two_party_inputs(c[decides], policy, winner_share)
+    uu = u[used.index.to_numpy()]
+    units["votes_a_measured"] = np.bincount(uu, used["votes_a"].to_numpy(float), n)
+    units["votes_b_measured"] = np.bincount(uu, used["votes_b"].to_numpy(float), n)
 
     units, missing = _previous_cycle(units, d, unit_plans)
     units = _expected(units, plan_counts, declared)
-    gaps = _gaps(units, missing, d[~d["measured"]])
+    gaps = _gaps(units, missing, d[~measured])
     units = _summarise(units, gaps)
     return Coverage(units[unit_cols].reset_index(drop=True), gaps)
 
 
 def _previous_cycle(units: pd.DataFrame, d: pd.DataFrame, unit_plans: pd.DataFrame):
     """Each unit's previous cycle under the same plan, its district and seat counts, and the
-    districts it had that the unit lacks (named missing districts)."""
+    districts it had that the unit lacks (named missing districts). ``units`` are sorted by
+    cycle, state, chamber; ``d`` has one row per stored district with its unit index ``u`` and
+    district code ``dc``."""
+    n = len(units)
     plans = unit_plans[[*UNIT_KEYS, "plan_id"]] if len(unit_plans) else pd.DataFrame(columns=[*UNIT_KEYS, "plan_id"])
-    units = units.merge(plans, on=UNIT_KEYS, how="left").sort_values(["state", "chamber", "cycle"], kind="mergesort")
-    by = units.groupby(["state", "chamber"], sort=False)
-    prev_cycle, prev_plan = by["cycle"].shift(1), by["plan_id"].shift(1)
-    same = prev_plan.notna() & (prev_plan == units["plan_id"])
-    units["previous_cycle"] = prev_cycle.where(same).astype("Int64")
-    link = units.loc[units["previous_cycle"].notna(), [*UNIT_KEYS, "previous_cycle"]].astype({"previous_cycle": int})
-    before = d[[*UNIT_KEYS, "district", "seats"]].rename(columns={"cycle": "previous_cycle"})
-    known = link.merge(before, on=["state", "chamber", "previous_cycle"])
-    counts = known.groupby(UNIT_KEYS).agg(previous_districts=("district", "size"), previous_seats=("seats", "sum"))
-    units = units.merge(counts.reset_index(), on=UNIT_KEYS, how="left")
-    now = d[[*UNIT_KEYS, "district"]].assign(present=True)
-    known = known.merge(now, on=[*UNIT_KEYS, "district"], how="left")
-    missing = known[known["present"].isna()].drop(columns=["present"])
+    units = units.merge(plans, on=UNIT_KEYS, how="left")
+    chrono = units.sort_values(["state", "chamber", "cycle"], kind="mergesort")
+    by = chrono.groupby(["state", "chamber"], sort=False)
+    prev_index, prev_plan = by.cumcount(), by["plan_id"].shift(1)
+    previous = np.full(n, -1)
+    later = (prev_index > 0).to_numpy() & (prev_plan.notna() & (prev_plan == chrono["plan_id"])).to_numpy()
+    rows = chrono.index.to_numpy()
+    previous[rows[1:][later[1:]]] = rows[:-1][later[1:]]   # chrono's previous row is the previous cycle
+    cycles = units["cycle"].to_numpy()
+    units["previous_cycle"] = pd.array([cycles[p] if p >= 0 else pd.NA for p in previous], dtype="Int64")
+    # each unit is the previous of at most one unit: carry the previous unit's districts over to it
+    next_of = np.full(n, -1)
+    next_of[previous[previous >= 0]] = np.flatnonzero(previous >= 0)
+    du, dc, seats = d["u"].to_numpy(), d["dc"].to_numpy(), d["seats"].to_numpy(int)
+    target = next_of[du]
+    carried = target >= 0
+    has = previous >= 0
+    units["previous_districts"] = pd.Series(np.bincount(target[carried], minlength=n), dtype="Int64").where(has)
+    units["previous_seats"] = pd.Series(np.bincount(target[carried], seats[carried], n).astype(np.int64),
+                                        dtype="Int64").where(has)
+    width = int(dc.max()) + 1 if len(dc) else 1
+    present = du.astype(np.int64) * width + dc
+    absent = carried & ~np.isin(target.astype(np.int64) * width + dc, present)
+    t = target[absent]
+    missing = pd.DataFrame({"cycle": units["cycle"].to_numpy()[t], "state": units["state"].to_numpy()[t],
+                            "chamber": units["chamber"].to_numpy()[t],
+                            "previous_cycle": cycles[du[absent]],
+                            "district": d["district"].to_numpy()[absent], "seats": seats[absent]})
     return units, missing
 
 
@@ -167,30 +189,30 @@ def _summarise(units: pd.DataFrame, gaps: pd.DataFrame) -> pd.DataFrame:
                         units["seats_stored"].to_numpy(float) + missing.reindex(key).fillna(0).to_numpy(float))
     with np.errstate(invalid="ignore", divide="ignore"):
         units["seat_coverage"] = np.where(should > 0, units["seats_measured"].to_numpy(float) / should, np.nan)
-    notes = {k: note(part) for k, part in gaps.groupby(UNIT_KEYS, sort=False)}
+    notes = notes_by_unit(gaps)
     units["note"] = [notes.get(k) for k in zip(units["cycle"], units["state"], units["chamber"])]
     units["incomplete"] = units["note"].notna().astype(int)
     return units.sort_values(UNIT_KEYS, kind="mergesort")
 
 
-def note(gaps: pd.DataFrame) -> str | None:
-    """What is missing and what is left out, and why, in plain words: ``missing: district 7 (in
-    the 2010 results ...); left out: districts 3, 9 (won by a minor party or an independent)``."""
-    parts = []
-    for gap in (MISSING, LEFT_OUT):
-        rows = gaps[gaps["gap"] == gap]
-        if rows.empty:
-            continue
-        groups = []
-        for reason, part in rows.groupby("reason", sort=False):
-            codes = [d for d in part["district"] if d]
-            if not codes:
-                groups.append(reason)
-                continue
+def notes_by_unit(gaps: pd.DataFrame) -> dict[tuple, str]:
+    """What is missing and what is left out of each unit, and why, in plain words (one pass over
+    the gaps): ``missing: district 7 (in the 2010 results ...); left out: districts 3, 9 (won by a
+    minor party or an independent)``."""
+    grouped: dict[tuple, list[str]] = {}  # (unit keys, gap, reason) -> district codes, in order
+    for key in zip(*(gaps[k].tolist() for k in (*UNIT_KEYS, "gap", "reason", "district"))):
+        grouped.setdefault(key[:-1], []).append(key[-1])
+    parts: dict[tuple, dict[str, list[str]]] = {}
+    for (cycle, state, chamber, gap, reason), codes in grouped.items():
+        codes = [c for c in codes if c]
+        if codes:
             shown = ", ".join(codes[:NOTE_CODES]) + (f" and {len(codes) - NOTE_CODES} more" if len(codes) > NOTE_CODES else "")
-            groups.append(f"district{'s' if len(codes) > 1 else ''} {shown} ({reason})")
-        parts.append(f"{gap}: " + "; ".join(groups))
-    return "; ".join(parts) or None
+            text = f"district{'s' if len(codes) > 1 else ''} {shown} ({reason})"
+        else:
+            text = reason
+        parts.setdefault((cycle, state, chamber), {}).setdefault(gap, []).append(text)
+    return {key: "; ".join(f"{gap}: " + "; ".join(by_gap[gap]) for gap in (MISSING, LEFT_OUT) if gap in by_gap)
+            for key, by_gap in parts.items()}
 
 
 # --- shares --------------------------------------------------------------------------------------
