@@ -227,7 +227,10 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
 
     Flags are computed by `levelfield compute`. A flag is an indicator that a unit sits in the
     tail of the national distribution, not a legal finding. Inferred plans (no loaded era) are
-    marked in the `inferred` column.
+    marked in the `inferred` column. Flagged units show their coverage (`incomplete`,
+    `seat_coverage`, `missing_or_left_out`: which districts the measures lack, and why); the watch
+    list names its `incomplete_cycles`. A unit whose measures cover less than flags.min_coverage
+    of its seats is never flagged (`levelfield export tails` says why).
     """
     from monitor.flags import flag_table
     from monitor.output import to_text, write
