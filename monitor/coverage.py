@@ -293,15 +293,22 @@ def coverage_lines(units: pd.DataFrame, minimum: float, detail: int = 0) -> list
     out = [f"coverage: {int(incomplete.sum())} of {len(units)} unit(s) incomplete (districts missing or left out "
            f"of the measures); {int(low.sum())} cover less than {percent(minimum)} of their seats (never flagged)"]
     if detail and incomplete.any():
+        # cycles of one state and chamber with the same gaps are one line
         shown = units[incomplete].assign(_low=low[incomplete].astype(int))
-        shown = shown.sort_values(["_low", "cycle", "seat_coverage", "state", "chamber"],
-                                  ascending=[False, False, True, True, True])
-        for _, r in shown.head(detail).iterrows():
-            flag = " [never flagged: below flags.min_coverage]" if r["_low"] else ""
-            out.append(f"  {int(r['cycle'])} {r['state']} {r['chamber']}: {summary(r)}{flag}; {r['note']}")
-        if len(shown) > detail:
-            out.append(f"  ... and {len(shown) - detail} more (levelfield export measures: columns incomplete, "
-                       "missing_or_left_out)")
+        groups = []
+        for _, part in shown.groupby(["state", "chamber", "note"], sort=False):
+            part = part.sort_values("cycle")
+            groups.append((-int(part["_low"].max()), -int(part["cycle"].max()), part))
+        groups.sort(key=lambda g: (g[0], g[1], g[2]["state"].iloc[0], g[2]["chamber"].iloc[0]))
+        for _, _, part in groups[:detail]:
+            r = part.iloc[-1]
+            cycles = (str(int(r["cycle"])) if len(part) == 1 else
+                      f"{len(part)} cycles {int(part['cycle'].min())}-{int(r['cycle'])}")
+            flag = " [never flagged: below flags.min_coverage]" if part["_low"].any() else ""
+            latest = f"; latest {int(r['cycle'])}: " if len(part) > 1 else ": "
+            out.append(f"  {r['state']} {r['chamber']} {cycles}: {r['note']}{latest}{summary(r)}{flag}")
+        if len(groups) > detail:
+            out.append(f"  ... and {len(groups) - detail} more (levelfield export coverage --districts)")
     return out
 
 

@@ -104,8 +104,9 @@ def test_a_district_missing_against_the_previous_cycle_is_listed_and_the_unit_in
     assert {(r["incomplete"], r["districts_in_measures"], r["districts_expected"]) for r in measures} == {("yes", 3, 4)}
     status = lf("status").stdout
     assert "coverage: 1 of 2 unit(s) incomplete" in status and "1 cover less than 90% of their seats" in status
-    assert ("2014 QV federal: 3 of 4 districts in the measures (3 of 4 seats, 75%; 4 districts expected from the "
-            "2012 results of the same plan) [never flagged: below flags.min_coverage]; missing: district 4") in status
+    assert ("QV federal 2014: missing: district 4 (in the 2012 results of the same plan; no result stored for this "
+            "cycle): 3 of 4 districts in the measures (3 of 4 seats, 75%; 4 districts expected from the 2012 results "
+            "of the same plan) [never flagged: below flags.min_coverage]") in status
 
 
 def test_a_new_plan_starts_without_an_expectation_and_a_plans_file_count_applies(lf):
