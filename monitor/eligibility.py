@@ -27,7 +27,6 @@ SPECIAL_ONLY = "special election only (special elections are not counted)"
 NO_MAJOR = "no major-party candidate"
 MINOR_WINNER = "won by a minor party or an independent"
 EXCLUDED_UNCONTESTED = "uncontested, left out under the exclude policy"
-MISSING = "no result stored"
 
 
 def multi_member(seats: int) -> str:

@@ -214,6 +214,8 @@ def test_pages_name_both_shares_and_show_coverage(lf):
     # nationwide with QF's 300-700: as cast 2000 / 3350 = 59.7%; after the policy over the districts
     # in the measures (1200 + 300) / (1800 + 1000) = 53.6%
     assert "two-party share, votes as cast" in cycle and "<td>59.7%</td><td>53.6%</td>" in cycle
+    # the states list marks QV (incomplete) and not QF
+    assert 'QV</a> <span class="badge badge-incomplete"' in cycle and 'QF</a> <span class="badge' not in cycle
 
 
 # -- flags: never below min_coverage, incomplete shown as such ----------------------------------------
@@ -383,3 +385,15 @@ def test_on_the_sample_history_coverage_agrees_with_the_measures_and_the_nationa
     shares = national_shares(cover.units).set_index(["cycle", "chamber"]).reindex(national.index)
     np.testing.assert_allclose(shares["national_vote_share_as_cast"], national["vote_share_as_cast"], atol=1e-12)
     np.testing.assert_allclose(shares["national_vote_share_after_policy"], national["vote_share"], atol=1e-12)
+
+
+def test_init_writes_the_coverage_options_commented_and_they_load_once_uncommented(lf, tmp_path):
+    from monitor.config import default_toml
+
+    text = default_toml()
+    assert "min_coverage = 0.9" in text
+    assert "# expected.federal.QV = 12\n# expected.state_lower.QV = { districts = 40, seats = 60 }" in text
+    path = tmp_path / "levelfield.toml"
+    path.write_text(text.replace("# expected.", "expected."), encoding="utf-8")
+    assert load_config(path)["coverage.expected"] == {"federal": {"QV": 12},
+                                                      "state_lower": {"QV": {"districts": 40, "seats": 60}}}

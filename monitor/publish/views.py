@@ -521,7 +521,8 @@ class Views:
                 by = by.assign(drawer=[self.drawer_group(k) for k in by["drawer"]])
                 drawer_chart = C.excess_by_drawer(f"drawer-{slug}", by, self.style, cycle, label)
             earlier = [c for c in d.chamber_cycles(chamber) if c < cycle]
-            states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber)}
+            states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber),
+                       "incomplete": (int(cycle), s, chamber) in self._incomplete_units}
                       for s in sorted(units.loc[units["chamber"] == chamber, "state"])]
             sections.append({"chamber": label, "charts": charts, "pool": pool_chart, "drawer": drawer_chart,
                              "states": states, "summary": self._national_rows(chamber, earlier[-1:] + [cycle]),
