@@ -127,7 +127,7 @@ def init(ws: Workspace) -> None:
 @click.option("--mapping", "mapping_path", type=click.Path(path_type=Path, dir_okay=False),
               help="TOML mapping that makes a foreign candidate-level CSV loadable.")
 @click.option("--source", help="Where the file came from (stored with the load's provenance).")
-@click.option("--dry-run", is_flag=True, help="Check and report, write nothing.")
+@click.option("--dry-run", is_flag=True, help="Check and report; write nothing to the store (the report file still goes to logs/loads/).")
 @click.option("--skip-bad-rows", is_flag=True, help="Load the good rows and report every skipped one.")
 @click.option("--encoding", help="Text encoding of the files (default UTF-8, with or without BOM).")
 @click.pass_obj
@@ -137,6 +137,9 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
 
     Each file loads whole or not at all. The same file twice changes nothing; a file that
     re-delivers a stored (cycle, state, chamber) is a correction and the report says what changed.
+    The printed report keeps long lists short; the full report of each load is written to
+    logs/loads/ in the workspace. Exit 1: a file is wrong (nothing of it stored); exit 2: a
+    usage or mapping error (such as a column the file does not have).
     """
     from monitor.ingest import load_file
     from monitor.ingest.mapping import load_mapping
@@ -151,7 +154,8 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
         tell(progress, "load", number - 1, len(files), str(path))
         try:
             report = load_file(db, path, config, mapping=mapping, source=source, dry_run=dry_run,
-                               skip_bad_rows=skip_bad_rows, encoding=encoding)
+                               skip_bad_rows=skip_bad_rows, encoding=encoding,
+                               report_dir=ws.folder("logs") / "loads")
             _clear(progress)
         except DataError as exc:
             _clear(progress)

@@ -1,5 +1,9 @@
-"""What the measures see: the current single-member contests of every unit as two-party votes
-after the uncontested policy, grouped into sorted unit arrays."""
+"""What the measures see: the current single-member contests that decide their seats, in every
+unit, as two-party votes after the uncontested policy, grouped into sorted unit arrays.
+
+One contest per seat enters: the one the loader marked as deciding it (``contests.decides``:
+the regular contest, its runoff when there is one, or a special that replaced the regular
+election; see :mod:`monitor.ingest.deciding`). The others stay stored as history."""
 
 from __future__ import annotations
 
@@ -19,18 +23,28 @@ UNIT_KEYS = ["cycle", "state", "chamber"]
 
 
 def reduced_contests(db: sqlite_utils.Database, where: str = "", params=()) -> pd.DataFrame:
-    """One row per current contest: unit keys, district, special, seats and its reduction."""
+    """One row per current contest: unit keys, district, special, runoff, decides (whether it
+    decides its seat; else left_out says why), placeholder (no real count), seats and its
+    reduction."""
     lines = queries.current_votes(db, where, params)
     if lines.empty:
         return pd.DataFrame(columns=["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id",
-                                     "district", "seats", "special", "votes_a", "votes_b", "votes_other",
+                                     "district", "seats", "special", "runoff", "decides", "left_out", "placeholder",
+                                     "votes_a", "votes_b", "votes_other",
                                      "total", "status", "seats_a", "seats_b", "seats_other", "winner",
                                      "candidates_a", "candidates_b", "candidates_other"])
     contests = lines.drop_duplicates("contest_id")[
-        ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "seats", "special"]
+        ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "seats", "special",
+         "runoff", "decides", "left_out", "placeholder"]
     ]
     reduced = reduce_contests(lines, contests[["contest_id", "seats"]]).drop(columns=["seats"])
     return contests.merge(reduced, on="contest_id", how="left")
+
+
+def deciding_contests(contests: pd.DataFrame) -> pd.DataFrame:
+    """The contests that decide their seats (one per seat), from :func:`reduced_contests`
+    (:func:`monitor.eligibility.deciding`)."""
+    return contests[deciding(contests)]
 
 
 @dataclass
@@ -50,10 +64,10 @@ def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "") -> Un
     """Apply the uncontested policy and build the unit arrays, keeping every unit that has
     current contests (a unit with no eligible contest gets an empty segment: its measures are
     null with a reason). ``salt`` (settings and method versions) enters every inputs hash."""
-    regular = contests[deciding(contests)]
-    units = (regular[["unit_id", *UNIT_KEYS]].drop_duplicates()
+    deciding = deciding_contests(contests)
+    units = (deciding[["unit_id", *UNIT_KEYS]].drop_duplicates()
              .sort_values(UNIT_KEYS).reset_index(drop=True))
-    two = two_party_inputs(regular, config["uncontested.policy"], config["uncontested.winner_share"])
+    two = two_party_inputs(deciding, config["uncontested.policy"], config["uncontested.winner_share"])
     index = pd.Series(units.index, index=units["unit_id"])
     two = two.assign(unit=index.reindex(two["unit_id"]).to_numpy())
     two = two.sort_values(["unit", "district"], kind="mergesort")

@@ -22,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from monitor.eligibility import deciding
+from monitor.inputs import deciding_contests
 from monitor.reduce import two_party_inputs
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
@@ -45,7 +45,7 @@ SUMMARY_FIELDS: list[tuple[str, str, str]] = [
     ("cycle", "integer", "election year"),
     ("chamber", "string", "chamber code as loaded (federal, state_lower, ...)"),
     ("states", "integer", "states with results in this cycle and chamber"),
-    ("districts", "integer", "districts with results (regular contests; special elections not counted)"),
+    ("districts", "integer", "districts with results (one contest per seat: the one that decides it)"),
     ("seats", "number", "seats filled in those districts"),
     ("seats_a", "number", "seats won by party a (a tie counts half a seat to each)"),
     ("seats_b", "number", "seats won by party b"),
@@ -96,11 +96,11 @@ def contest_shares(contests: pd.DataFrame, policy: str, winner_share: float) -> 
     """Every reduced contest (:func:`monitor.inputs.reduced_contests`) with its raw two-party share
     ``share_a``, the votes and share that enter the measures after the uncontested policy
     (``votes_a_used``, ``votes_b_used``, ``share_used``; NaN when the contest does not enter them:
-    special elections, multi-member contests, no major party, a minor-party winner, or an
-    uncontested contest under ``exclude``) and ``imputed`` (its share was imputed).
+    contests that do not decide their seat, multi-member contests, no major party, a minor-party
+    winner, or an uncontested contest under ``exclude``) and ``imputed`` (its share was imputed).
 
     The same reduction as the measures engine (:func:`monitor.reduce.two_party_inputs` over the
-    regular contests), so the numbers here are the ones the measures use."""
+    contests that decide their seats), so the numbers here are the ones the measures use."""
     contests = contests.copy()
     if contests.empty:
         for col in ("share_a", "share_used", "votes_a_used", "votes_b_used"):
@@ -110,8 +110,8 @@ def contest_shares(contests: pd.DataFrame, policy: str, winner_share: float) -> 
     contests = contests.sort_values([*UNIT_KEYS, "district", "special"], kind="mergesort").reset_index(drop=True)
     two = (contests["votes_a"] + contests["votes_b"]).astype(float)
     contests["share_a"] = np.where(two > 0, contests["votes_a"] / two.where(two > 0, 1.0), np.nan)
-    regular = contests[deciding(contests)]
-    used = two_party_inputs(regular, policy, winner_share).set_index("contest_id")
+    deciding = deciding_contests(contests)
+    used = two_party_inputs(deciding, policy, winner_share).set_index("contest_id")
     va = used["votes_a"].reindex(contests["contest_id"]).to_numpy(float)
     vb = used["votes_b"].reindex(contests["contest_id"]).to_numpy(float)
     contests["votes_a_used"], contests["votes_b_used"] = va, vb
@@ -205,8 +205,7 @@ def national_summary(contests: pd.DataFrame, measures: pd.DataFrame, tails: pd.D
     seats (cycle, state, chamber, excess_seats); ``unit_plans``: :func:`plans_of_units`."""
     if contests.empty:
         return pd.DataFrame(columns=SUMMARY_COLUMNS)
-    regular = contests[deciding(contests)]
-    g = regular.groupby(GROUP)
+    g = deciding_contests(contests).groupby(GROUP)
     out = pd.DataFrame({
         "states": g["state"].nunique(),
         "districts": g.size(),

@@ -17,6 +17,15 @@ fixed-share convention of the seats-votes literature, e.g. Gelman & King 1994, A
 from memory, not checked against the text), ``exclude`` leaves such contests out, ``none`` keeps
 the raw counts (a 100-0 district). Imputation changes results: the policy is stored with every
 measure.
+
+A placeholder contest (an unopposed candidate who was not on the ballot, loaded with a
+placeholder count instead of a count: ``contests.placeholder``) is an uncontested win with no
+real vote total. For the vote-weighted measures it is given one explicitly: the mean vote total
+of its unit's other contests that enter the measures with real counts (1 when the unit has none:
+with every district alike, any common total weighs them the same). This is a project choice,
+not a convention from the literature: a district that reported no count is weighed like the
+unit's typical district. Under ``impute`` and ``none`` it then splits as any uncontested
+contest; under ``exclude`` it is left out like them.
 """
 
 from __future__ import annotations
@@ -101,10 +110,15 @@ def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) ->
     r["uncontested"] = lopsided
     va = r["votes_a"].astype(float)
     vb = r["votes_b"].astype(float)
+    # the one major party that stood (in an uncontested contest)
+    a_side = (r["candidates_a"] > 0).to_numpy() if len(r) else np.zeros(0, dtype=bool)
+    total = assumed_totals(r)
+    if "placeholder" in r.columns:  # no count: the winner has the assumed total (a 100-0 district)
+        placeholder = r["placeholder"].astype(bool)
+        va = va.where(~placeholder, np.where(a_side, total, 0.0))
+        vb = vb.where(~placeholder, np.where(a_side, 0.0, total))
     if policy == "impute":
         # the one major party that stood gets the winner's share (even if it polled 0 votes)
-        a_side = (r["candidates_a"] > 0).to_numpy() if len(r) else np.zeros(0, dtype=bool)
-        total = r["total"].astype(float)
         va = va.where(~lopsided, np.where(a_side, winner_share, 1 - winner_share) * total)
         vb = vb.where(~lopsided, np.where(a_side, 1 - winner_share, winner_share) * total)
     r["votes_a"] = va.to_numpy()
@@ -112,26 +126,48 @@ def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) ->
     return r
 
 
+def assumed_totals(contests: pd.DataFrame) -> pd.Series:
+    """Each contest's vote total for the vote-weighted measures: its own ``total``, or for a
+    placeholder contest (``placeholder`` true: no real count) the mean total of the other
+    contests of its unit (``unit_id``; one unit without that column) that have real counts, 1
+    when there is none (see the module notes: a project choice)."""
+    total = contests["total"].astype(float)
+    if "placeholder" not in contests.columns or not len(contests):
+        return total
+    placeholder = contests["placeholder"].astype(bool)
+    units = contests["unit_id"] if "unit_id" in contests.columns else pd.Series(0, index=contests.index)
+    mean = total.where(~placeholder).groupby(units).transform("mean")
+    return total.where(~placeholder, mean.fillna(1.0))
+
+
 def describe_changes(old: pd.DataFrame, new: pd.DataFrame) -> list[str]:
     """Plain-words differences between two deliveries of a unit (a correction): seats of each
     party, districts added or dropped, winners, vote totals.
 
     ``old`` and ``new``: reduced contests (:func:`reduce_contests` columns) indexed by the
-    contest key ``(district, special)``.
+    contest key ``(district, special, runoff)`` (or ``(district, special)``), with an optional
+    ``decides`` column (whether the contest decides its seat).
     """
     changes = []
     for code in ("a", "b"):
         before, after = float(old[f"seats_{code}"].sum()), float(new[f"seats_{code}"].sum())
         if before != after:
             changes.append(f"seats of party {code}: {before:g} -> {after:g}")
+    both = "decides" in old.columns and "decides" in new.columns
     for key in sorted(set(old.index) | set(new.index)):
-        label = f"district {key[0]}" + (" (special)" if key[1] else "")
+        district, special, runoff = (*key, False)[:3]
+        kind = " ".join(k for k, on in (("special", special), ("runoff", runoff)) if on)
+        label = f"district {district}" + (f" ({kind})" if kind else "")
         if key not in new.index:
             changes.append(f"{label}: dropped")
         elif key not in old.index:
             changes.append(f"{label}: added")
-        elif old.at[key, "winner"] != new.at[key, "winner"]:
-            changes.append(f"{label}: winner {old.at[key, 'winner']} -> {new.at[key, 'winner']}")
+        else:
+            if old.at[key, "winner"] != new.at[key, "winner"]:
+                changes.append(f"{label}: winner {old.at[key, 'winner']} -> {new.at[key, 'winner']}")
+            if both and bool(old.at[key, "decides"]) != bool(new.at[key, "decides"]):
+                changes.append(f"{label}: " + ("now decides its seat" if new.at[key, "decides"]
+                                               else "no longer decides its seat"))
     for code in ("a", "b", "other"):
         before, after = int(old[f"votes_{code}"].sum()), int(new[f"votes_{code}"].sum())
         if before != after:

@@ -10,7 +10,8 @@ from monitor.reduce import reduce_contests
 from store import queries
 
 RESULT_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id"]
-REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner"]
+REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner", "runoff",
+                     "decides"]
 
 
 def current_lines(db: sqlite_utils.Database) -> pd.DataFrame:
@@ -33,5 +34,6 @@ def results_export(db: sqlite_utils.Database) -> pd.DataFrame:
         return pd.DataFrame(columns=RESULT_COLUMNS + REDUCTION_COLUMNS)
     out = lines.rename(columns={"certification": "status_", "status": "contest_status"})
     out = out.rename(columns={"status_": "status"})
-    out["special"] = out["special"].astype(int)
+    for flag in ("special", "runoff", "decides"):
+        out[flag] = out[flag].astype(int)
     return out[RESULT_COLUMNS + REDUCTION_COLUMNS].reset_index(drop=True)

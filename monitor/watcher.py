@@ -190,7 +190,7 @@ class Service:
         first_seen = self.inbox.since.get(path.name)
         db = self.ws.open_store()
         try:
-            report = load_file(db, path, self.ws.config())
+            report = load_file(db, path, self.ws.config(), report_dir=self.ws.folder("logs") / "loads")
         except DataError as exc:
             self._reject(path, [str(p) for p in exc.problems], exc.summary)
             return False
@@ -203,7 +203,7 @@ class Service:
         shutil.move(str(path), target)
         self.log("load", message=f"{path.name}: {report.outcome}" + (f" as load #{report.load_id}" if report.load_id else ""),
                  file=path.name, sha256=report.sha256, load_id=report.load_id, outcome=report.outcome,
-                 archived=str(target.relative_to(self.ws.root)),
+                 archived=str(target.relative_to(self.ws.root)), report=report.report_file,
                  units_new=report.count("new"), units_corrected=report.count("corrected"),
                  look=self.inbox.looks, first_seen_look=first_seen)
         if report.outcome != "loaded":

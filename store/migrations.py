@@ -246,7 +246,68 @@ MIGRATIONS: list[tuple[int, str, str]] = [
         );
         """,
     ),
-    # 4 is the loader's (placeholder contests, deciding rounds); it lands from another branch
+    (
+        4,
+        "contests: runoff round, which contest decides the seat, placeholder counts",
+        """
+        -- the views read contests: dropped here, made again below (a rename checks every view)
+        DROP VIEW district_results;
+        DROP VIEW current_contests;
+        -- contests gain the round (runoff), whether the contest decides its seat (decides; else
+        -- left_out says why) and whether its count is a placeholder (an unopposed candidate who
+        -- was not on the ballot: no real vote count). The UNIQUE key gains the round, which
+        -- SQLite cannot alter: the table is rebuilt with the same ids (votes keep pointing at
+        -- them), following SQLite's procedure for other ALTER TABLE changes (foreign keys off
+        -- while it runs, checked before the commit: see REBUILDS)
+        CREATE TABLE contests_rebuilt (
+            id INTEGER PRIMARY KEY,
+            unit_id INTEGER NOT NULL REFERENCES units(id),
+            district TEXT NOT NULL,
+            seats INTEGER NOT NULL DEFAULT 1,
+            special INTEGER NOT NULL DEFAULT 0,
+            runoff INTEGER NOT NULL DEFAULT 0,
+            status TEXT NOT NULL,
+            decides INTEGER NOT NULL DEFAULT 1,
+            left_out TEXT,
+            placeholder INTEGER NOT NULL DEFAULT 0,
+            UNIQUE (unit_id, district, special, runoff)
+        );
+        -- stored contests had no runoff and no placeholder; the default rule decides their seat:
+        -- a regular contest, else (no regular contest for the seat) the special one
+        INSERT INTO contests_rebuilt (id, unit_id, district, seats, special, runoff, status, decides, left_out, placeholder)
+            SELECT c.id, c.unit_id, c.district, c.seats, c.special, 0, c.status,
+                   CASE WHEN c.special = 0 OR NOT EXISTS (
+                       SELECT 1 FROM contests r WHERE r.unit_id = c.unit_id AND r.district = c.district
+                       AND r.special = 0) THEN 1 ELSE 0 END,
+                   CASE WHEN c.special = 0 OR NOT EXISTS (
+                       SELECT 1 FROM contests r WHERE r.unit_id = c.unit_id AND r.district = c.district
+                       AND r.special = 0) THEN NULL
+                       ELSE 'the general contest decides this seat (the default order: runoff, general, special runoff, special)' END,
+                   0
+            FROM contests c;
+        DROP TABLE contests;
+        ALTER TABLE contests_rebuilt RENAME TO contests;
+
+        -- district_results is a fixed contract read by other tools: keep its columns. It shows
+        -- the contest that decides each seat (one contest per seat); every contest, deciding or
+        -- not, is in current_contests.
+        CREATE VIEW district_results AS
+            SELECT u.cycle AS cycle, u.state AS state, u.chamber AS chamber,
+                   c.district AS district, v.party AS party, v.candidate AS candidate,
+                   v.votes AS votes, u.certification AS status, u.load_id AS load_id
+            FROM votes v
+            JOIN contests c ON c.id = v.contest_id
+            JOIN units u ON u.id = c.unit_id
+            WHERE u.superseded_by IS NULL AND c.decides = 1;
+        CREATE VIEW current_contests AS
+            SELECT c.id AS contest_id, u.cycle, u.state, u.chamber, c.district, c.seats,
+                   c.special, c.status, u.certification, u.load_id,
+                   (SELECT COALESCE(SUM(v.votes), 0) FROM votes v WHERE v.contest_id = c.id) AS total_votes,
+                   c.runoff, c.decides, c.left_out, c.placeholder
+            FROM contests c JOIN units u ON u.id = c.unit_id
+            WHERE u.superseded_by IS NULL;
+        """,
+    ),
     (
         5,
         "coverage of every unit: districts and seats expected, in the measures, missing or left out",
@@ -295,6 +356,11 @@ MIGRATIONS: list[tuple[int, str, str]] = [
 
 SCHEMA_VERSION = max(version for version, _, _ in MIGRATIONS)
 
+# migrations that rebuild a table another one references: run with foreign keys off (a pragma
+# that only takes effect outside a transaction), then checked with ``PRAGMA foreign_key_check``
+# before the commit, as SQLite's documentation of ALTER TABLE prescribes
+REBUILDS = {4}
+
 
 class SchemaTooNew(RuntimeError):
     """The store was written by a newer levelfield (its schema version is above ours)."""
@@ -327,17 +393,29 @@ def migrate(db: sqlite_utils.Database) -> list[int]:
     for version, description, sql in MIGRATIONS:
         if version in recorded:
             continue
-        with transaction(db) as conn:
-            # re-check inside the writer lock: another process may have migrated meanwhile
-            done = conn.execute("SELECT 1 FROM schema_version WHERE version = ?", [version]).fetchone()
-            if done:
-                continue
-            for statement in _statements(sql):
-                conn.execute(statement)
-            conn.execute(
-                "INSERT INTO schema_version(version, description, applied_at) VALUES (?, ?, ?)",
-                [version, description, _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")],
-            )
+        keys_on = db.execute("PRAGMA foreign_keys").fetchone()[0]
+        if version in REBUILDS:
+            db.execute("PRAGMA foreign_keys = OFF")
+        try:
+            with transaction(db) as conn:
+                # re-check inside the writer lock: another process may have migrated meanwhile
+                done = conn.execute("SELECT 1 FROM schema_version WHERE version = ?", [version]).fetchone()
+                if done:
+                    continue
+                for statement in _statements(sql):
+                    conn.execute(statement)
+                if version in REBUILDS:
+                    broken = conn.execute("PRAGMA foreign_key_check").fetchall()
+                    if broken:
+                        raise RuntimeError(f"migration {version} would break {len(broken)} foreign key(s), "
+                                           f"first {broken[0]}; nothing was changed")
+                conn.execute(
+                    "INSERT INTO schema_version(version, description, applied_at) VALUES (?, ?, ?)",
+                    [version, description, _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")],
+                )
+        finally:
+            if version in REBUILDS and keys_on:
+                db.execute("PRAGMA foreign_keys = ON")
         applied.append(version)
     return applied
 

@@ -70,10 +70,14 @@ def insert_unit(
     return new_id
 
 
+CONTEST_COLUMNS = ("id", "unit_id", "district", "seats", "special", "runoff", "status", "decides", "left_out",
+                   "placeholder")
+
+
 def insert_contests(conn: sqlite3.Connection, rows: Sequence[tuple]) -> None:
-    """rows: (id, unit_id, district, seats, special, status)."""
+    """rows: (id, unit_id, district, seats, special, runoff, status, decides, left_out, placeholder)."""
     conn.executemany(
-        "INSERT INTO contests (id, unit_id, district, seats, special, status) VALUES (?, ?, ?, ?, ?, ?)", rows
+        f"INSERT INTO contests ({', '.join(CONTEST_COLUMNS)}) VALUES ({', '.join('?' for _ in CONTEST_COLUMNS)})", rows
     )
 
 
@@ -92,15 +96,15 @@ def insert_votes(conn: sqlite3.Connection, rows: Sequence[tuple]) -> None:
 
 
 def unit_votes(conn: sqlite3.Connection | sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.DataFrame:
-    """Vote lines of the given units: unit_id, contest_id, district, seats, special, party,
-    party_code, candidate, votes."""
+    """Vote lines of the given units: unit_id, contest_id, district, seats, special, runoff, decides,
+    party, party_code, candidate, votes."""
     conn = getattr(conn, "conn", conn)
     if not unit_ids:
-        return pd.DataFrame(columns=["unit_id", "contest_id", "district", "seats", "special", "party",
-                                     "party_code", "candidate", "votes"])
+        return pd.DataFrame(columns=["unit_id", "contest_id", "district", "seats", "special", "runoff", "decides",
+                                     "party", "party_code", "candidate", "votes"])
     marks = ",".join("?" for _ in unit_ids)
     return pd.read_sql_query(
-        "SELECT c.unit_id, v.contest_id, c.district, c.seats, c.special, v.party, v.party_code, "
+        "SELECT c.unit_id, v.contest_id, c.district, c.seats, c.special, c.runoff, c.decides, v.party, v.party_code, "
         f"v.candidate, v.votes FROM votes v JOIN contests c ON c.id = v.contest_id "
         f"WHERE c.unit_id IN ({marks}) ORDER BY c.unit_id, v.contest_id, v.id",
         conn, params=list(unit_ids),
@@ -113,11 +117,11 @@ def current_votes(db: sqlite_utils.Database, where: str = "", params: Sequence =
     clause = f"AND ({where})" if where else ""
     return pd.read_sql_query(
         "SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.certification, u.load_id, "
-        "c.id AS contest_id, c.district, c.seats, c.special, c.status, "
+        "c.id AS contest_id, c.district, c.seats, c.special, c.runoff, c.decides, c.left_out, c.placeholder, c.status, "
         "v.party, v.party_code, v.candidate, v.votes "
         "FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
         f"WHERE u.superseded_by IS NULL {clause} "
-        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, v.id",
+        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, c.runoff, v.id",
         db.conn, params=list(params),
     )
 
@@ -172,14 +176,16 @@ def set_unit_digest(conn: sqlite3.Connection, rows: Sequence[tuple[str, int]]) -
 
 def unit_lines(conn: sqlite3.Connection, unit_ids: Sequence[int]) -> pd.DataFrame:
     """Every stored field of the units' vote lines: unit_id, district, special, seats, party,
-    party_code, candidate, votes, writein, certification."""
+    party_code, candidate, votes, writein, certification, runoff, decides, placeholder."""
     if not unit_ids:
         return pd.DataFrame(columns=["unit_id", "district", "special", "seats", "party", "party_code",
-                                     "candidate", "votes", "writein", "certification"])
+                                     "candidate", "votes", "writein", "certification", "runoff", "decides",
+                                     "placeholder"])
     marks = ",".join("?" for _ in unit_ids)
     return pd.read_sql_query(
         "SELECT c.unit_id, c.district, c.special, c.seats, v.party, v.party_code, v.candidate, v.votes, "
-        "v.writein, u.certification FROM votes v JOIN contests c ON c.id = v.contest_id "
+        "v.writein, u.certification, c.runoff, c.decides, c.placeholder FROM votes v "
+        "JOIN contests c ON c.id = v.contest_id "
         f"JOIN units u ON u.id = c.unit_id WHERE c.unit_id IN ({marks}) ORDER BY c.unit_id, v.id",
         conn, params=list(unit_ids),
     )

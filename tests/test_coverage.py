@@ -59,20 +59,24 @@ def gaps(lf, cycle, state) -> list[tuple]:
 
 def test_classify_gives_one_reason_per_contest_from_one_place():
     # hand-built reduced contests of one unit: each row exercises one rule
+    history = "the general contest decides this seat (the default order: runoff, general, special runoff, special)"
     frame = pd.DataFrame([
-        # district, special, seats, status, winner
-        ("1", 0, 1, "contested", "a"),      # enters
-        ("2", 0, 1, "uncontested", "b"),    # enters under impute and none, left out under exclude
-        ("3", 0, 2, "contested", "split"),  # multi-member
-        ("4", 0, 1, "no_major", "other"),   # no major party
-        ("5", 0, 1, "contested", "other"),  # a minor party won
-        ("6", 1, 1, "contested", "a"),      # special election only
-        ("1", 1, 1, "contested", "b"),      # special beside district 1's regular contest
-    ], columns=["district", "special", "seats", "status", "winner"]).assign(cycle=2014, state="QV", chamber="federal")
+        # district, decides, left_out, placeholder, seats, status, winner
+        ("1", 1, None, 0, 1, "contested", "a"),      # enters
+        ("2", 1, None, 0, 1, "uncontested", "b"),    # enters under impute and none, left out under exclude
+        ("3", 1, None, 0, 2, "contested", "split"),  # multi-member
+        ("4", 1, None, 0, 1, "no_major", "other"),   # no major party
+        ("5", 1, None, 0, 1, "contested", "other"),  # a minor party won
+        ("6", 1, None, 1, 1, "uncontested", "a"),    # a placeholder count: unopposed, not on the ballot
+        ("1", 0, history, 0, 1, "contested", "b"),   # a special beside district 1's general: history
+        ("7", 0, None, 0, 1, "contested", "a"),      # not deciding, no reason stored
+    ], columns=["district", "decides", "left_out", "placeholder", "seats", "status", "winner"]).assign(
+        cycle=2014, state="QV", chamber="federal", special=0)
     impute = E.classify(frame, "impute").tolist()
     assert impute == [E.ENTERS, E.ENTERS, "multi-member contest (2 seats)", E.NO_MAJOR, E.MINOR_WINNER,
-                      E.SPECIAL_ONLY, E.SPECIAL]
-    assert E.classify(frame, "exclude").tolist()[1] == E.EXCLUDED_UNCONTESTED
+                      E.ENTERS, history, E.NOT_DECIDING]
+    exclude = E.classify(frame, "exclude").tolist()
+    assert (exclude[1], exclude[5]) == (E.EXCLUDED_UNCONTESTED, E.EXCLUDED_PLACEHOLDER)
     assert E.classify(frame, "none").tolist()[1] == E.ENTERS
     with pytest.raises(ValueError, match="unknown uncontested policy"):
         E.classify(frame, "drop")
@@ -139,7 +143,7 @@ def test_a_count_declared_in_levelfield_toml_is_used_when_nothing_else_says(lf):
     assert gaps(lf, 2020, "QV")[0][:3] == ("", 2, "missing")
 
 
-def test_special_only_and_multi_member_districts_are_left_out_with_their_reason(lf):
+def test_multi_member_and_minor_party_districts_are_left_out_and_a_special_only_seat_counts(lf):
     lf.configure(SETTINGS)
     rows = [r for d in (1, 2, 3) for r in contested(2014, "QV", d, 600 - 50 * d, 400 + 50 * d)]
     rows += contested(2014, "QV", 1, 510, 490, special=1)               # a special beside district 1's general
@@ -149,19 +153,43 @@ def test_special_only_and_multi_member_districts_are_left_out_with_their_reason(
     rows += [line(2014, "QV", 6, "Harbour", 300), line(2014, "QV", 6, "Upland", 250), line(2014, "QV", 6, "Lantern", 450)]
     load(lf, "qv.csv", rows)
     lf("compute")
+    # district 4's special is the contest that decides its seat (no regular contest): it counts;
+    # district 1's special beside its general is history, not a gap
     assert gaps(lf, 2014, "QV") == [
-        ("4", 1, "left out", "special election only (special elections are not counted)"),
         ("5", 2, "left out", "multi-member contest (2 seats)"),
         ("6", 1, "left out", "won by a minor party or an independent"),
     ]
     u = unit(lf, 2014, "QV")
-    # districts 1-6 stored (7 seats), 1-3 in the measures (3 seats): 3 of 7
-    assert (u["districts_in_measures"], u["seats_in_measures"], u["seat_coverage"]) == (3, 3, pytest.approx(3 / 7))
+    # districts 1-6 stored (7 seats), 1-4 in the measures (4 seats): 4 of 7
+    assert (u["districts_in_measures"], u["seats_in_measures"], u["seat_coverage"]) == (4, 4, pytest.approx(4 / 7))
     assert u["incomplete"] == "yes"
-    assert "district 4 (special election only" in u["missing_or_left_out"]
-    # the measures count the same districts (one classifier): 3 districts
+    assert u["missing_or_left_out"] == ("left out: district 5 (multi-member contest (2 seats)); district 6 (won by "
+                                        "a minor party or an independent)")
+    # the measures count the same districts (one classifier): 4 districts
     m = {r["measure"]: r["value"] for r in records(lf, "measures") if r["cycle"] == 2014}
-    assert m["districts"] == 3
+    assert m["districts"] == 4
+    # votes as cast: the deciding contests' raw votes (district 1's general, not its special)
+    assert u["vote_share_as_cast"] == pytest.approx((550 + 500 + 450 + 530 + 1700 + 300) / (1000 * 4 + 3250 + 550))
+
+
+def test_a_seat_no_contest_decides_is_left_out_with_the_loaders_reason(lf):
+    # a mapping whose deciding order has no place for specials: district 2's only contest, a
+    # special, decides nothing, and the coverage says so in the loader's words
+    lf.configure(SETTINGS)
+    mapping = lf.write("map.toml", "chamber = \"federal\"\n[columns]\ncycle = \"year\"\nstate = \"st\"\n"
+                                   "district = \"dist\"\nparty = \"party\"\ncandidate = \"name\"\nvotes = \"votes\"\n"
+                                   "special = \"special\"\n[deciding]\norder = [\"general\"]\n")
+    rows = [[2014, "QV", d, party, f"{party}{d}", v, sp] for d, sp, (a, b) in
+            ((1, 0, (600, 400)), (2, 1, (450, 550)), (3, 0, (520, 480))) for party, v in (("Harbour", a), ("Upland", b))]
+    data = lf.write("archive.csv", "year,st,dist,party,name,votes,special\n" + "".join(
+        ",".join(map(str, r)) + "\n" for r in rows))
+    lf("load", data, "--mapping", mapping)
+    lf("compute")
+    (gap,) = gaps(lf, 2014, "QV")
+    assert gap[:3] == ("2", 1, "left out")
+    assert gap[3] == ("the mapping's [deciding] order (general) has no place for a special contest: no contest "
+                      "decides this seat")
+    assert unit(lf, 2014, "QV")["districts_in_measures"] == 2
 
 
 def test_two_vote_shares_differ_under_impute_and_are_both_named(lf):

@@ -48,11 +48,11 @@ DATA_ERRORS = [
     ("empty district", H + "\n" + OK + "2024,QV,federal,,Harbour,Ilse Varro,12\n",
      "bad.csv:4:district: district is empty"),
     ("same candidate twice on the same line", H + "\n" + OK + "2024,QV,federal,1,Harbour,Maren Olvas,3\n",
-     "bad.csv:4:candidate: candidate 'Maren Olvas' appears twice on the 'Harbour' line of district '1' "
-     "(first at row 2)"),
+     "bad.csv:4:candidate: candidate 'Maren Olvas' appears twice on the 'Harbour' line of district '1', QV "
+     "federal 2024 (first at row 2)"),
     ("contest with no votes", H + "\n" + OK + "2024,QV,federal,2,Harbour,Ilse Varro,0\n"
      "2024,QV,federal,2,Upland,Piet Amsel,0\n",
-     "bad.csv:4:votes: district '2' (QV federal 2024) has no votes at all"),
+     "bad.csv:4:votes: district '2', QV federal 2024 has no votes at all"),
     ("unit mixing certified and unofficial", H + ",status\n2024,QV,federal,1,Harbour,Maren Olvas,10,certified\n"
      "2024,QV,federal,2,Upland,Piet Amsel,9,unofficial\n",
      "bad.csv:3:status: QV federal 2024 mixes certified and unofficial rows (row 2 is certified, "

@@ -136,14 +136,23 @@ def test_the_same_bytes_through_another_mapping_are_a_new_load(lf):
     assert lf.rows("SELECT DISTINCT district FROM district_results WHERE state = 'RR'") == [("0",)]
 
 
-def test_a_column_named_in_the_mapping_but_absent_from_the_file(lf):
-    data, mapping = write_example(lf, MAPPING.replace('votes = "cand_votes"', 'votes = "total_votes"'))
-    result = lf("load", data, "--mapping", mapping, code=1)
-    message = "office.csv:1:total_votes: missing column (the mapping's [columns] votes = 'total_votes')"
-    assert message in result.stderr
-    # nothing loaded; the refusal is kept as provenance, with its first problem
+def test_a_column_named_in_the_mapping_but_absent_from_the_file_is_a_mapping_error(lf):
+    # the mapping is what needs fixing, not the file: a usage error (exit 2) with the close names
+    data, mapping = write_example(lf, MAPPING.replace('votes = "cand_votes"', 'votes = "cand_vote"')
+                                  .replace('round = ["GENERAL"]', 'rnd = ["GENERAL"]'))
+    result = lf("load", data, "--mapping", mapping, code=2)
+    assert "the mapping names 2 column(s) that office.csv does not have; nothing was loaded" in result.stderr
+    assert ("office.csv:1:cand_vote: the mapping's [columns] votes = 'cand_vote' names a column the file does "
+            "not have (did you mean 'cand_votes' or 'cand_name'?)") in result.stderr
+    assert "office.csv:1:rnd: the mapping's [keep] 'rnd' names a column the file does not have (did you mean " \
+           "'round'?)" in result.stderr
+    # nothing is close: the header is listed
+    data, mapping = write_example(lf, MAPPING.replace('votes = "cand_votes"', 'votes = "zzzz"'))
+    result = lf("load", data, "--mapping", mapping, code=2)
+    assert "(the header has 'election_year', 'st', 'dist_no', 'round', 'is_special', " in result.stderr
+    # nothing loaded, and no load recorded: the file was never read through a valid mapping
     assert lf.rows("SELECT COUNT(*) FROM votes") == [(0,)]
-    assert lf.rows("SELECT outcome, rows_read, rows_accepted, error FROM loads") == [("refused", 0, 0, message)]
+    assert lf.rows("SELECT COUNT(*) FROM loads") == [(0,)]
 
 
 def test_errors_in_mapped_files_name_their_own_column(lf):

@@ -101,7 +101,7 @@ def _unit(conn, load_id, previous=None, votes=10) -> int:
         queries.ensure_keys(conn, table, column, [value])
     unit_id = queries.insert_unit(conn, key, load_id, "certified", f"hash{votes}", previous)
     contest_id = queries.next_id(conn, "contests")
-    queries.insert_contests(conn, [(contest_id, unit_id, "1", 1, 0, "uncontested")])
+    queries.insert_contests(conn, [(contest_id, unit_id, "1", 1, 0, 0, "uncontested", 1, None, 0)])
     queries.insert_votes(conn, [(contest_id, "Harbour", "a", "Maren Olvas", votes, 0, 2)])
     return unit_id
 
@@ -167,6 +167,96 @@ def test_migration_3_records_where_the_party_codes_of_earlier_loads_came_from(tm
         (1, "config", None), (2, "mapping", None)]
     assert new.execute("SELECT COUNT(*) FROM party_labels").fetchone() == (0,)
     new.close()
+
+
+def _schema_3_store(path, monkeypatch):
+    """A store as levelfield wrote it before migration 4: one unit with a regular contest, a
+    special beside a regular one (district 2) and a special alone (district 3), each with votes."""
+    from store import migrations
+
+    monkeypatch.setattr(migrations, "MIGRATIONS", MIGRATIONS[:3])
+    monkeypatch.setattr(migrations, "SCHEMA_VERSION", 3)
+    old = store.connect(path)
+    assert store.schema_version(old) == 3
+    with store.transaction(old) as conn:
+        load_id = _load(conn, sha="e" * 64)
+        for table, column, value in (("cycles", "year", 2024), ("states", "code", "QV"), ("chambers", "code", "federal")):
+            queries.ensure_keys(conn, table, column, [value])
+        unit_id = queries.insert_unit(conn, (2024, "QV", "federal"), load_id, "certified", "h", None)
+        conn.executemany("INSERT INTO contests (id, unit_id, district, seats, special, status) VALUES (?, ?, ?, 1, ?, ?)",
+                         [(7, unit_id, "1", 0, "contested"), (8, unit_id, "2", 0, "contested"),
+                          (9, unit_id, "2", 1, "uncontested"), (11, unit_id, "3", 1, "contested")])
+        conn.executemany("INSERT INTO votes (contest_id, party, party_code, candidate, votes, writein, source_row) "
+                         "VALUES (?, ?, ?, ?, ?, 0, ?)",
+                         [(7, "Harbour", "a", "A1", 10, 2), (7, "Upland", "b", "B1", 8, 3),
+                          (8, "Harbour", "a", "A2", 5, 4), (8, "Upland", "b", "B2", 9, 5),
+                          (9, "Harbour", "a", "A3", 4, 6),
+                          (11, "Harbour", "a", "A4", 6, 7), (11, "Upland", "b", "B4", 7, 8)])
+        conn.execute("INSERT INTO measures (cycle, state, chamber, measure, value, method_version, policy, "
+                     "inputs_hash, unit_id, computed_at) VALUES (2024, 'QV', 'federal', 'efficiency_gap', 0.1, "
+                     "'1', 'impute:0.75', 'x', ?, 'now')", [unit_id])
+    old.close()
+    monkeypatch.undo()
+    return unit_id
+
+
+def test_migration_4_rebuilds_contests_keeping_every_row_and_marks_the_deciding_contests(tmp_path, monkeypatch):
+    path = tmp_path / "old.sqlite"
+    _schema_3_store(path, monkeypatch)
+    before = sqlite3.connect(path)
+    tables = ["loads", "units", "contests", "votes", "measures", "states", "chambers", "cycles"]
+    kept = {t: before.execute(f"SELECT * FROM {t} ORDER BY 1").fetchall() for t in tables}
+    before.close()
+
+    new = store.connect(path)
+    assert store.schema_version(new) == store.SCHEMA_VERSION
+    # every row kept, ids unchanged (votes still point at their contests)
+    for table in tables:
+        rows = new.execute(f"SELECT * FROM {table} ORDER BY 1").fetchall()
+        if table == "contests":
+            rows = [r[:5] + (r[6],) for r in rows]  # the columns a schema-3 contest had
+        assert rows == kept[table], table
+    # the default rule: a regular contest decides; a special decides only a seat without one
+    assert new.execute("SELECT id, district, special, runoff, decides, left_out IS NOT NULL, placeholder "
+                       "FROM contests ORDER BY id").fetchall() == [
+        (7, "1", 0, 0, 1, 0, 0), (8, "2", 0, 0, 1, 0, 0), (9, "2", 1, 0, 0, 1, 0), (11, "3", 1, 0, 1, 0, 0)]
+    assert new.execute("SELECT left_out FROM contests WHERE id = 9").fetchone()[0].startswith(
+        "the general contest decides this seat")
+    # foreign keys are on again and hold; the round is part of the contest's key now
+    assert new.execute("PRAGMA foreign_keys").fetchone()[0] == 1
+    assert new.execute("PRAGMA foreign_key_check").fetchall() == []
+    with pytest.raises(sqlite3.IntegrityError):
+        new.execute("INSERT INTO votes (contest_id, party, party_code, candidate, votes) VALUES (999, 'x', 'a', 'y', 1)")
+    with pytest.raises(sqlite3.IntegrityError):
+        new.execute("INSERT INTO contests (unit_id, district, special, runoff, status) VALUES (1, '1', 0, 0, 'x')")
+    new.execute("INSERT INTO contests (unit_id, district, special, runoff, status) VALUES (1, '1', 0, 1, 'x')")
+    # district_results: the fixed columns, one contest per seat (the special beside district 2's
+    # regular contest is history); current_contests: every contest with its round and standing
+    assert [c.name for c in new["district_results"].columns] == RESULT_VIEW_COLUMNS
+    assert new.execute("SELECT district, candidate FROM district_results ORDER BY candidate").fetchall() == [
+        ("1", "A1"), ("2", "A2"), ("3", "A4"), ("1", "B1"), ("2", "B2"), ("3", "B4")]
+    assert new.execute("SELECT contest_id, special, runoff, decides, total_votes FROM current_contests "
+                       "WHERE contest_id <= 11 ORDER BY contest_id").fetchall() == [
+        (7, 0, 0, 1, 18), (8, 0, 0, 1, 14), (9, 1, 0, 0, 4), (11, 1, 0, 1, 13)]
+    new.close()
+
+
+def test_migration_4_changes_nothing_when_a_foreign_key_would_break(tmp_path, monkeypatch):
+    """The rebuild runs with foreign keys off; a store whose votes already point nowhere is
+    refused by the check before the commit, and stays at schema 3."""
+    path = tmp_path / "old.sqlite"
+    _schema_3_store(path, monkeypatch)
+    conn = sqlite3.connect(path)
+    conn.execute("INSERT INTO votes (contest_id, party, party_code, candidate, votes) VALUES (999, 'x', 'a', 'y', 1)")
+    conn.commit()
+    conn.close()
+    with pytest.raises(RuntimeError, match="migration 4 would break 1 foreign key"):
+        store.connect(path)
+    again = store.connect(path, migrate=False)
+    assert store.schema_version(again) == 3
+    assert again.execute("SELECT COUNT(*) FROM contests").fetchone()[0] == 4
+    assert again.execute("PRAGMA foreign_keys").fetchone()[0] == 1
+    again.close()
 
 
 def test_two_connections_see_each_others_commits(tmp_path):

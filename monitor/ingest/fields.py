@@ -37,6 +37,15 @@ def parse_votes(cell: str, max_votes: int):
     return value, None
 
 
+def placeholder_count(cell: str, counts: frozenset[int]) -> str:
+    """The cell's text when it holds one of the declared placeholder ``counts`` (a whole number,
+    perhaps negative, such as ``-1``), else ``""``."""
+    text = cell.strip()
+    if counts and re.match(r"^[+-]?\d{1,12}$", text) and int(text) in counts:
+        return text
+    return ""
+
+
 def parse_cycle(cell: str):
     text = cell.strip()
     if not re.match(r"^\d{4}$", text) or not YEAR_RANGE[0] <= int(text) <= YEAR_RANGE[1]:

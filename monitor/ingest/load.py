@@ -11,7 +11,7 @@ import datetime as dt
 import json
 import sqlite3
 from collections import Counter, defaultdict
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -21,74 +21,19 @@ import sqlite_utils
 from monitor.config import Config, normalise_label
 from monitor.errors import DataError, Problem, UsageError
 from monitor.ingest import labels as L
+from monitor.ingest.deciding import DecidingRules, decide, kind_of
 from monitor.ingest.fields import shown
-from monitor.ingest.mapping import Mapping, parse_mapped, quiet_labels, sum_candidate_lines
+from monitor.ingest.lines import combine_repeated_lines, mark_placeholders, sum_candidate_lines
+from monitor.ingest.mapping import Mapping, parse_mapped, quiet_labels
 from monitor.ingest.native import detect_format, parse_native
 from monitor.ingest.reader import csv_rows, decode, decompressed, read_raw
-from monitor.ingest.records import ParseContext, Record, content_hash, key_matches
+from monitor.ingest.records import ParseContext, Record, content_hash, describe_contest, key_matches
+from monitor.ingest.report import LoadReport, UnitChange
 from monitor.ingest.validate import check_records
 from monitor.reduce import describe_changes, reduce_contests
 from store import queries, transaction
 
-
-@dataclass
-class UnitChange:
-    cycle: int
-    state: str
-    chamber: str
-    action: str  # new | corrected | unchanged
-    contests: int
-    changes: list[str] = field(default_factory=list)
-
-
-@dataclass
-class LoadReport:
-    file: str
-    sha256: str
-    outcome: str  # loaded | already loaded | dry run (a refused load raises DataError)
-    format: str = ""
-    load_id: int | None = None
-    rows_read: int = 0
-    rows_accepted: int = 0
-    rows_rejected: int = 0
-    rows_filtered: int = 0
-    units: list[UnitChange] = field(default_factory=list)
-    other_labels: dict[str, int] = field(default_factory=dict)
-    skipped: list[str] = field(default_factory=list)
-    note: str = ""
-    warnings: list[str] = field(default_factory=list)
-
-    def count(self, action: str) -> int:
-        return sum(1 for u in self.units if u.action == action)
-
-    def lines(self) -> list[str]:
-        head = f"{self.file}: {self.outcome}"
-        if self.load_id is not None:
-            head += f" (load #{self.load_id})"
-        out = [head]
-        if self.note:
-            out.append(f"  {self.note}")
-        if self.outcome == "already loaded":
-            return out
-        out.extend(f"  warning: {w}" for w in self.warnings)
-        out.append(f"  format {self.format}; rows read {self.rows_read}, accepted {self.rows_accepted}, "
-                   f"rejected {self.rows_rejected}" + (f", filtered out {self.rows_filtered}" if self.rows_filtered else ""))
-        out.append(f"  units: {self.count('new')} new, {self.count('corrected')} corrected, "
-                   f"{self.count('unchanged')} unchanged")
-        for unit in self.units:
-            if unit.action == "corrected":
-                out.append(f"  correction {unit.cycle} {shown(unit.state)} {shown(unit.chamber)}:")
-                out.extend(f"    {c}" for c in unit.changes or ["no change in seats, winners or vote totals"])
-        if self.other_labels:
-            labels = ", ".join(f"{k!r} ({v})" for k, v in sorted(self.other_labels.items()))
-            out.append(f"  party labels counted as 'other': {labels}")
-        if self.skipped:
-            out.append(f"  skipped {self.rows_rejected} row(s):")
-            out.extend(f"    {s}" for s in self.skipped)
-        return out
-
-    def to_json(self) -> str:
-        return json.dumps(asdict(self), sort_keys=True)
+__all__ = ["LoadReport", "UnitChange", "load_file"]
 
 
 def load_file(
@@ -103,12 +48,15 @@ def load_file(
     encoding: str | None = None,
     now: dt.datetime | None = None,
     record_refusal: bool = True,
+    report_dir: Path | None = None,
 ) -> LoadReport:
     """Load ``path``; raise :class:`DataError` when it cannot load whole.
 
     A refused file writes none of its rows: the store only gains a provenance row in ``loads``
     (outcome ``refused``, rows read and rejected, the first problem), in its own transaction after
-    the load's own one rolled back (not for a dry run, or with ``record_refusal=False``)."""
+    the load's own one rolled back (not for a dry run, or with ``record_refusal=False``).
+    ``report_dir``: where to write the full report of a load or dry run (see
+    :meth:`LoadReport.write`)."""
     try:
         raw = read_raw(path)
     except FileNotFoundError:
@@ -120,12 +68,18 @@ def load_file(
     report = LoadReport(file=raw.name, sha256=raw.sha256, outcome="dry run" if dry_run else "loaded")
     stamp = (now or dt.datetime.now(dt.timezone.utc)).isoformat(timespec="seconds")
     try:
-        return _load(db, raw, config, report, stamp, mapping=mapping, source=source, dry_run=dry_run,
-                     skip_bad_rows=skip_bad_rows, encoding=encoding)
+        report = _load(db, raw, config, report, stamp, mapping=mapping, source=source, dry_run=dry_run,
+                       skip_bad_rows=skip_bad_rows, encoding=encoding)
     except DataError as exc:
         if not dry_run and record_refusal:
             _record_refusal(db, raw, mapping, source, stamp, report, exc)
         raise
+    if report_dir is not None and report.outcome != "already loaded":
+        try:
+            report.write(report_dir)
+        except OSError as exc:  # the load stands; say that its report file is missing
+            report.warnings.append(f"the full report could not be written to {report_dir} ({exc.strerror})")
+    return report
 
 
 def _load(db, raw, config: Config, report: LoadReport, stamp: str, *, mapping, source, dry_run,
@@ -142,19 +96,28 @@ def _load(db, raw, config: Config, report: LoadReport, stamp: str, *, mapping, s
         raise DataError([Problem(raw.name, 1, None, "the file is empty: no header row")])
     ctx = ParseContext(raw.name, config["load.max_votes_per_row"], config.label_codes())
     report.format = "mapped" if mapping is not None else detect_format(header[1])
+    set_aside = 0
     if mapping is None:
         report.format, records, problems, report.rows_read = parse_native(ctx, header[1], rows)
     else:
         report.format = "mapped"
-        records, problems, report.rows_read, report.rows_filtered = parse_mapped(ctx, mapping, header[1], rows)
-    cross, bad = check_records(raw.name, records)
+        parsed = parse_mapped(ctx, mapping, header[1], rows)
+        records, problems, report.rows_read, report.rows_filtered = (parsed.records, parsed.problems, parsed.read,
+                                                                      parsed.filtered)
+        report.not_candidates = dict(sorted(parsed.not_candidates.items(), key=lambda kv: (-kv[1], kv[0])))
+        set_aside = sum(parsed.not_candidates.values())
+    lone_counts = mapping.lone_counts if mapping else frozenset()
+    cross, bad = check_records(raw.name, records, repeated_lines=mapping.repeated_lines if mapping else "refuse",
+                               lone_counts=lone_counts)
     problems = sorted(problems + cross, key=lambda p: p.row or 0)
     if problems and not skip_bad_rows:
         report.rows_rejected = len({p.row for p in problems if p.row is not None})
         raise DataError(problems, f"{len(problems)} problem(s) in {raw.name}; nothing was loaded "
                                   "(fix the file, or pass --skip-bad-rows to load the rest)")
     # a row that cannot be read takes its whole contest with it (never half a contest)
-    skipped_with = _skipped_with_bad_rows(ctx, records, bad)
+    skipped = _BadContests(ctx.bad_rows + [(p.row, records[i].contest) for i, (p, scope) in bad.items()
+                                           if scope == "contest"])
+    skipped_with = _skipped_with_bad_rows(ctx, records, bad, skipped)
     # every skipped row is listed: rows with a problem, then rows dropped with their contest or unit
     named = {p.row for p in problems}
     report.skipped = [str(p) for p in problems] + [
@@ -163,18 +126,27 @@ def _load(db, raw, config: Config, report: LoadReport, stamp: str, *, mapping, s
     if skipped_with:
         records = [r for i, r in enumerate(records) if i not in skipped_with]
     report.rows_accepted = len({r.row for r in records})
-    report.rows_rejected = report.rows_read - report.rows_filtered - report.rows_accepted
+    report.rows_rejected = report.rows_read - report.rows_filtered - set_aside - report.rows_accepted
     if not records:
         raise DataError(problems or [Problem(raw.name, None, None, "no result rows to load")],
                         f"{raw.name}: no rows left to load; nothing was loaded")
     report.other_labels = _other_labels(records, mapping)
     _warn_without_major_parties(report, records, mapping)
+    if mapping is not None and mapping.repeated_lines == "sum":
+        records, report.lines_combined = combine_repeated_lines(records)
+    report.placeholders = [p.describe(raw.name) for p in mark_placeholders(records, lone_counts)]
     if mapping is not None and mapping.candidate_lines == "sum":
         records = sum_candidate_lines(records)
 
     units = _group_units(records)
+    decisions = _decide(records, mapping.deciding if mapping else DecidingRules(), skipped)
+    first_rows: dict[tuple, int] = {}
+    for rec in records:
+        first_rows[rec.contest] = min(rec.row, first_rows.get(rec.contest, rec.row))
+    report.left_out = [f"{raw.name}:{first_rows[key]}: {describe_contest(*key)}: {why}"
+                       for key, why in sorted(decisions.items(), key=lambda kv: first_rows[kv[0]]) if why]
     # the CPU work happens before the write lock is taken: the transaction only writes
-    prepared = _prepare_units(units)
+    prepared = _prepare_units(units, decisions)
     codes_from = L.MAPPING if mapping is not None and mapping.parties else L.CONFIG
     try:
         with transaction(db) as conn:
@@ -186,8 +158,31 @@ def _load(db, raw, config: Config, report: LoadReport, stamp: str, *, mapping, s
     return report
 
 
-def _skipped_with_bad_rows(ctx: ParseContext, records: list[Record],
-                           bad: dict[int, tuple[Problem, str]]) -> dict[int, str]:
+class _BadContests:
+    """What bad rows say about their contests: ``row_for(key)`` is the bad row whose contest is
+    ``key`` (an unreadable key cell fits any value; a row that names no contest at all, with
+    cycle, state, chamber and district unreadable, fits none and is skipped alone)."""
+
+    def __init__(self, bad_rows: list[tuple[int | None, tuple]]):
+        self.exact: dict[tuple, int | None] = {}
+        self.partial: list[tuple[int | None, tuple]] = []
+        for row, key in bad_rows:
+            if None not in key:
+                self.exact.setdefault(key, row)
+            elif any(k is not None for k in key[:4]):
+                self.partial.append((row, key))
+
+    def __bool__(self) -> bool:
+        return bool(self.exact or self.partial)
+
+    def row_for(self, key: tuple) -> int | None:
+        if key in self.exact:
+            return self.exact[key]
+        return next((r for r, pattern in self.partial if key_matches(pattern, key)), None)
+
+
+def _skipped_with_bad_rows(ctx: ParseContext, records: list[Record], bad: dict[int, tuple[Problem, str]],
+                           skipped: _BadContests) -> dict[int, str]:
     """Record indexes to skip, each with why: its contest or unit has a row with a problem."""
     out: dict[int, str] = {}
     for i, (problem, scope) in bad.items():
@@ -197,32 +192,38 @@ def _skipped_with_bad_rows(ctx: ParseContext, records: list[Record],
                       f"its unit ({shown(rec.state)} {shown(rec.chamber)} {rec.cycle}): row {problem.row} has a problem")
         else:
             out[i] = _with_contest(ctx.file, rec, problem.row)
-    # what each bad row says about its contest; an unreadable key cell matches any value, and a
-    # row that names no contest at all (cycle, state, chamber and district unreadable) is skipped alone
-    exact: dict[tuple, int] = {}
-    partial: list[tuple[int, tuple]] = []
-    for row, key in ctx.bad_rows:
-        if None not in key:
-            exact.setdefault(key, row)
-        elif any(k is not None for k in key[:4]):
-            partial.append((row, key))
-    if exact or partial:
+    if skipped:
         for i, rec in enumerate(records):
-            if i in out:
-                continue
-            row = exact.get(rec.contest)
-            if row is None:
-                row = next((r for r, key in partial if key_matches(key, rec.contest)), None)
-            if row is not None:
+            if i not in out and (row := skipped.row_for(rec.contest)) is not None:
                 out[i] = _with_contest(ctx.file, rec, row)
     return out
 
 
 def _with_contest(file: str, rec: Record, bad_row: int | None) -> str:
-    special = " (special)" if rec.special else ""
     return (f"{file}:{rec.row}:{shown(rec.columns.get('district', 'district'))}: skipped with the rest of its "
-            f"contest (district {shown(rec.district)!r}{special}, {shown(rec.state)} {shown(rec.chamber)} "
-            f"{rec.cycle}): row {bad_row} has a problem")
+            f"contest ({describe_contest(*rec.contest)}): row {bad_row} has a problem")
+
+
+def _decide(records: list[Record], rules: DecidingRules, skipped: _BadContests) -> dict[tuple, str | None]:
+    """Which contest decides each seat (``None``) and why each other one does not. A seat whose
+    deciding contest was skipped with a bad row gets no deciding contest: the one that would
+    take its place is not the seat's result."""
+    loaded = {rec.contest for rec in records}
+    if not skipped:
+        return decide(loaded, rules)
+    seats = {key[:4] for key in loaded}
+    ghosts = {(*seat, special, runoff): row for seat in seats for special in (False, True) for runoff in (False, True)
+              if (*seat, special, runoff) not in loaded
+              and (row := skipped.row_for((*seat, special, runoff))) is not None}
+    out = decide(loaded | set(ghosts), rules)
+    for key in loaded:
+        if out[key] is None:
+            continue
+        ghost = next((g for g in ghosts if g[:4] == key[:4] and out[g] is None), None)
+        if ghost is not None:
+            out[key] = (f"the {kind_of(ghost[4], ghost[5])} contest would decide this seat but was "
+                        f"skipped (row {ghosts[ghost]} has a problem): no contest decides this seat")
+    return {key: why for key, why in out.items() if key in loaded}
 
 
 def _other_labels(records: list[Record], mapping: Mapping | None) -> dict[str, int]:
@@ -286,9 +287,15 @@ def _group_units(records: list[Record]) -> dict[tuple, list[Record]]:
     return dict(sorted(units.items()))
 
 
-def _content_hash(records: list[Record]) -> str:
+def _content_hash(records: list[Record], decisions: dict[tuple, str | None]) -> str:
     return content_hash((r.district, r.special, r.seats, r.party, r.party_code, r.candidate, r.votes,
-                         r.writein, r.status) for r in records)
+                         r.writein, r.status, r.runoff, decisions[r.contest] is None, bool(r.placeholder))
+                        for r in records)
+
+
+def _local(rec: Record) -> tuple[str, bool, bool]:
+    """A contest's key within its unit: (district, special, runoff)."""
+    return (rec.district, rec.special, rec.runoff)
 
 
 @dataclass
@@ -297,30 +304,35 @@ class _Unit:
 
     records: list[Record]
     digest: str
-    contest_keys: dict[tuple, int]  # (district, special) -> position in ``reduced``
-    reduced: pd.DataFrame            # one row per contest, indexed by position
+    contest_keys: dict[tuple, int]  # (district, special, runoff) -> position in ``reduced``
+    reduced: pd.DataFrame            # one row per contest, indexed by position (with decides, left_out)
 
 
-def _prepare_units(units: dict[tuple, list[Record]]) -> dict[tuple, _Unit]:
+def _prepare_units(units: dict[tuple, list[Record]], decisions: dict[tuple, str | None]) -> dict[tuple, _Unit]:
     """Hash every unit and reduce every contest of the file in one vectorised call."""
-    rows, seats, spans = [], [], []
+    rows, seats, left_out, placeholder, spans = [], [], [], [], []
     for key, records in units.items():
         keys: dict[tuple, int] = {}
         base = len(seats)
         for rec in records:
-            local = keys.setdefault((rec.district, rec.special), len(keys))
+            local = keys.setdefault(_local(rec), len(keys))
             if local == len(seats) - base:
                 seats.append(rec.seats)
+                left_out.append(decisions[rec.contest])
+                placeholder.append(bool(rec.placeholder))
             rows.append((base + local, rec.party_code, rec.candidate, rec.votes))
         spans.append((key, records, keys, base))
     votes = pd.DataFrame(rows, columns=["contest_id", "party_code", "candidate", "votes"])
     contests = pd.DataFrame({"contest_id": np.arange(len(seats)), "seats": seats})
     reduced = reduce_contests(votes, contests).set_index("contest_id").sort_index()
+    reduced["left_out"] = pd.Series(left_out, index=reduced.index, dtype=object)
+    reduced["decides"] = [why is None for why in left_out]
+    reduced["placeholder"] = placeholder
     out = {}
     for key, records, keys, base in spans:
         part = reduced.iloc[base:base + len(keys)].copy()
         part.index = np.arange(len(keys))
-        out[key] = _Unit(records, _content_hash(records), keys, part)
+        out[key] = _Unit(records, _content_hash(records, decisions), keys, part)
     return out
 
 
@@ -366,14 +378,16 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport, codes_f
                                       before["id"] if before else None)
         ids = {ck: contest_id + i for ck, i in contest_keys.items()}
         contest_id += len(ids)
-        seats = {(r.district, r.special): r.seats for r in records}
-        status = reduced["status"].tolist()
+        seats = {_local(r): r.seats for r in records}
+        status, decides, placeholder = (reduced[c].tolist() for c in ("status", "decides", "placeholder"))
+        why = [None if d else w for d, w in zip(decides, reduced["left_out"].tolist())]
         queries.insert_contests(conn, [
-            (cid, unit_id, ck[0], seats[ck], int(ck[1]), status[i])
+            (cid, unit_id, ck[0], seats[ck], int(ck[1]), int(ck[2]), status[i], int(decides[i]), why[i],
+             int(placeholder[i]))
             for (ck, cid), i in zip(ids.items(), contest_keys.values())
         ])
         queries.insert_votes(conn, [
-            (ids[(r.district, r.special)], r.party, r.party_code, r.candidate, r.votes, int(r.writein), r.row)
+            (ids[_local(r)], r.party, r.party_code, r.candidate, r.votes, int(r.writein), r.row)
             for r in records
         ])
     queries.update_load(conn, load_id, {
@@ -387,9 +401,11 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport, codes_f
 def _describe_changes(conn, old_unit_id: int, new: pd.DataFrame, new_keys: dict[tuple, int]) -> list[str]:
     """Plain-words differences between a stored unit and its re-delivery."""
     old_votes = queries.unit_votes(conn, [old_unit_id])
-    old_votes["key"] = list(zip(old_votes["district"], old_votes["special"].astype(bool)))
-    old_contests = old_votes.drop_duplicates("contest_id")[["contest_id", "seats", "key"]]
+    old_votes["key"] = list(zip(old_votes["district"], old_votes["special"].astype(bool),
+                                old_votes["runoff"].astype(bool)))
+    old_contests = old_votes.drop_duplicates("contest_id")[["contest_id", "seats", "key", "decides"]]
     old = reduce_contests(old_votes, old_contests).set_index("contest_id")
+    old["decides"] = old_contests.set_index("contest_id")["decides"].reindex(old.index).astype(bool)
     old.index = old_contests.set_index("contest_id")["key"].reindex(old.index).tolist()
     new = new.loc[list(new_keys.values())].set_axis(list(new_keys.keys()))
     return describe_changes(old, new)

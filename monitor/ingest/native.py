@@ -1,8 +1,9 @@
 """The native formats: long (one row per candidate line) and wide (one ``votes_<party>`` column per party).
 
 Long header: ``cycle,state,chamber,district,party,candidate,votes`` plus optional
-``seats,special,writein,status``. Wide header: ``cycle,state,chamber,district`` plus one
-``votes_<party label>`` column per party, optional ``seats,special,status``.
+``seats,special,runoff,writein,status``. Wide header: ``cycle,state,chamber,district`` plus one
+``votes_<party label>`` column per party, optional ``seats,special,runoff,status``. Native files
+refuse a candidate's repeated lines on one party line (a mapping can sum them).
 """
 
 from __future__ import annotations
@@ -12,12 +13,12 @@ from typing import Iterable
 
 from monitor.errors import DataError, Problem
 from monitor.ingest.fields import shown
-from monitor.ingest.records import ParseContext, Record, contest_key, parse_record
+from monitor.ingest.records import ParseContext, Record, contest_key, describe_contest, parse_record
 
 LONG_REQUIRED = ("cycle", "state", "chamber", "district", "party", "candidate", "votes")
-LONG_OPTIONAL = ("seats", "special", "writein", "status")
+LONG_OPTIONAL = ("seats", "special", "runoff", "writein", "status")
 WIDE_REQUIRED = ("cycle", "state", "chamber", "district")
-WIDE_OPTIONAL = ("seats", "special", "status")
+WIDE_OPTIONAL = ("seats", "special", "runoff", "status")
 VOTES_PREFIX = "votes_"
 
 
@@ -132,9 +133,12 @@ def parse_native(
         row_records: list[Record] = []
         row_seen: set[Problem] = set()
         if not any(cells[i].strip() for _, i in parties):
-            row_problems.append(Problem(ctx.file, row, None, "no votes_ column has a count: a district "
+            key = contest_key(ctx, get)
+            where = (describe_contest(*key[:4], bool(key[4]), bool(key[5])) if None not in key[:4]
+                     else "a district")
+            row_problems.append(Problem(ctx.file, row, None, f"no votes_ column has a count: {where} "
                                                              "with no votes at all"))
-            ctx.bad_rows.append((row, contest_key(ctx, get)))
+            ctx.bad_rows.append((row, key))
             continue
         for label, i in parties:
             if not cells[i].strip():

@@ -9,9 +9,10 @@ from typing import Callable, Iterable
 from monitor.config import normalise_label
 from monitor.errors import Problem
 from monitor.ingest import fields as F
+from monitor.ingest.fields import shown
 
 FIELDS = ("cycle", "state", "chamber", "district", "party", "candidate", "votes",
-          "seats", "special", "writein", "status")
+          "seats", "special", "runoff", "writein", "status")
 
 
 @dataclass(slots=True)
@@ -30,14 +31,32 @@ class Record:
     writein: bool
     status: str         # certified | unofficial
     columns: dict[str, str]  # our field -> the file's column name, for messages
+    runoff: bool = False     # the runoff after a first round (False: the first or only round)
+    placeholder: str = ""    # the file's placeholder count ("-1") when the count is one; votes is then 0
 
     @property
     def unit(self) -> tuple[int, str, str]:
         return (self.cycle, self.state, self.chamber)
 
     @property
-    def contest(self) -> tuple[int, str, str, str, bool]:
-        return (self.cycle, self.state, self.chamber, self.district, self.special)
+    def contest(self) -> tuple[int, str, str, str, bool, bool]:
+        return (self.cycle, self.state, self.chamber, self.district, self.special, self.runoff)
+
+    @property
+    def seat(self) -> tuple[int, str, str, str]:
+        return (self.cycle, self.state, self.chamber, self.district)
+
+    def copy(self) -> "Record":
+        return Record(**{f: getattr(self, f) for f in Record.__slots__})
+
+
+def describe_contest(cycle, state: str, chamber: str, district: str, special: bool = False,
+                     runoff: bool = False) -> str:
+    """How every contest-level message names a contest: ``district '3' (special runoff), QV
+    federal 2024`` (district, kind, state, chamber and cycle)."""
+    kind = " ".join(k for k, on in (("special", special), ("runoff", runoff)) if on)
+    return (f"district {shown(str(district))!r}" + (f" ({kind})" if kind else "")
+            + f", {shown(str(state))} {shown(str(chamber))} {cycle}")
 
 
 @dataclass
@@ -47,6 +66,7 @@ class ParseContext:
     label_codes: dict[str, str]          # normalised label -> a | b
     at_large: str | None = None           # the file's code for an at-large seat
     fixed: dict[str, str] = field(default_factory=dict)  # field -> value for every row
+    placeholder_counts: frozenset[int] = frozenset()  # counts meaning "unopposed, not on the ballot"
     # rows that could not be read whole, with what they say about their contest (see contest_key):
     # a bad row takes every row of its contest with it under --skip-bad-rows
     bad_rows: list[tuple[int, tuple]] = field(default_factory=list)
@@ -65,12 +85,12 @@ def normalise_chamber(text: str) -> str:
     return text.lower()
 
 
-KEY_FIELDS = ("cycle", "state", "chamber", "district", "special")
+KEY_FIELDS = ("cycle", "state", "chamber", "district", "special", "runoff")
 
 
 def contest_key(ctx: ParseContext, get: Callable[[str], str | None]) -> tuple:
     """What a row's cells say about its contest, parsed and normalised as :func:`parse_record`
-    does: ``(cycle, state, chamber, district, special)``, each ``None`` when its cell is unreadable
+    does: ``(cycle, state, chamber, district, special, runoff)``, each ``None`` when its cell is unreadable
     (so that a bad row can take every row that may belong to its contest with it)."""
 
     def cell(name: str) -> str:
@@ -86,8 +106,9 @@ def contest_key(ctx: ParseContext, get: Callable[[str], str | None]) -> tuple:
     if district is not None and ctx.at_large is not None and district == ctx.at_large:
         district = "AL"
     special = F.parse_flag(cell("special"), "special")[0]
+    runoff = F.parse_flag(cell("runoff"), "runoff")[0]
     return (cycle, None if state is None else normalise_state(state),
-            None if chamber is None else normalise_chamber(chamber), district, special)
+            None if chamber is None else normalise_chamber(chamber), district, special, runoff)
 
 
 def key_matches(pattern: tuple, key: tuple) -> bool:
@@ -97,11 +118,17 @@ def key_matches(pattern: tuple, key: tuple) -> bool:
 
 def content_hash(lines: Iterable[tuple]) -> str:
     """The content hash of a unit: lines of (district, special, seats, party, party_code,
-    candidate, votes, writein, status), in any order."""
+    candidate, votes, writein, status, runoff, decides, placeholder), in any order.
+
+    The last three are written only where they differ from a first-round, deciding, counted
+    contest, so a unit stored before they existed keeps its hash."""
     text = sorted(
         f"{district}\x1f{int(special)}\x1f{seats}\x1f{party}\x1f{code}\x1f{candidate}"
         f"\x1f{votes}\x1f{int(writein)}\x1f{status}"
-        for district, special, seats, party, code, candidate, votes, writein, status in lines
+        + ("\x1frunoff" if runoff else "") + ("" if decides else "\x1fleft out")
+        + ("\x1fplaceholder" if placeholder else "")
+        for (district, special, seats, party, code, candidate, votes, writein, status, runoff, decides,
+             placeholder) in lines
     )
     return hashlib.sha256("\n".join(text).encode()).hexdigest()
 
@@ -134,15 +161,17 @@ def parse_record(
         district = "AL"
     party = take("party", F.parse_text(cell("party"), "party", required=False))
     candidate = take("candidate", F.parse_text(cell("candidate"), "candidate", required=False))
-    votes = take("votes", F.parse_votes(cell("votes"), ctx.max_votes))
+    placeholder = F.placeholder_count(cell("votes"), ctx.placeholder_counts)
+    votes = 0 if placeholder else take("votes", F.parse_votes(cell("votes"), ctx.max_votes))
     seats = take("seats", F.parse_seats(cell("seats")))
     special = take("special", F.parse_flag(cell("special"), "special"))
+    runoff = take("runoff", F.parse_flag(cell("runoff"), "runoff"))
     writein = take("writein", F.parse_flag(cell("writein"), "writein"))
     status = take("status", F.parse_certification(cell("status")))
     if problems:
         return None, problems
     return (
         Record(row, cycle, state, chamber, district, party, ctx.code(party), candidate, votes,
-               seats, special, writein, status, columns),
+               seats, special, writein, status, columns, runoff, placeholder),
         [],
     )

@@ -472,10 +472,12 @@ def _compare_units(db: sqlite_utils.Database, rows) -> list[list[str]]:
     votes = queries.unit_votes(db, ids)
     reduced = {}
     for unit_id, part in votes.groupby("unit_id"):
-        contests = part.drop_duplicates("contest_id")[["contest_id", "seats", "district", "special"]]
+        contests = part.drop_duplicates("contest_id")[["contest_id", "seats", "district", "special", "runoff",
+                                                       "decides"]]
         red = reduce_contests(part, contests[["contest_id", "seats"]]).merge(
-            contests[["contest_id", "district", "special"]], on="contest_id")
-        red["key"] = list(zip(red["district"], red["special"].astype(int).astype(bool)))
+            contests[["contest_id", "district", "special", "runoff", "decides"]], on="contest_id")
+        red["key"] = list(zip(red["district"], red["special"].astype(int).astype(bool),
+                              red["runoff"].astype(int).astype(bool)))
         reduced[int(unit_id)] = red.set_index("key")
     empty = pd.DataFrame(columns=["seats_a", "seats_b", "votes_a", "votes_b", "votes_other", "winner"])
     out = []

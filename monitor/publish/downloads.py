@@ -45,7 +45,9 @@ RESOURCES: list[dict] = [
                 ("votes_a", "integer", "contest votes of party a (fusion lines attributed)"),
                 ("votes_b", "integer", "contest votes of party b"),
                 ("share_a", "number", "party a's share of the contest's two-party vote (before any imputation)"),
-                ("winner", "string", "a | b | other | split")]},
+                ("winner", "string", "a | b | other | split"),
+                ("runoff", "boolean", "the runoff after a first round"),
+                ("decides", "boolean", "the contest that decides its seat (one per seat; the others are history)")]},
     {"name": "measures", "title": "Measures per state, chamber and cycle",
      "description": "One row per unit and measure. Signed measures are positive when they favour party a. "
                     "low/high: 95% interval where given; reason: why a value is undefined. Each unit's coverage "

@@ -480,17 +480,20 @@ class Views:
         c = self.by("contests", ("state", "chamber"), (state, chamber))
         out = []
         for cycle, part in sorted(c.groupby("cycle"), key=lambda kv: -kv[0]):
-            cols = {k: part[k].tolist() for k in ("district", "special", "seats", "votes_a", "votes_b", "votes_other",
-                                                  "share_a", "share_used", "imputed", "winner", "status")}
+            cols = {k: part[k].tolist() for k in ("district", "special", "runoff", "seats", "votes_a", "votes_b",
+                                                  "votes_other", "share_a", "share_used", "imputed", "winner", "status")}
             rows = [{
-                "district": dist + (" (special)" if int(spec) else ""), "seats": int(seats),
+                "district": dist + {(1, 0): " (special)", (0, 1): " (runoff)", (1, 1): " (special runoff)"}.get(
+                    (int(spec), int(run)), ""), "seats": int(seats),
                 "votes_a": F.count(va), "votes_b": F.count(vb), "votes_other": F.count(vo), "share": F.share(sa),
                 "share_used": F.share(su) + (" (imputed)" if imp else ""),
                 "winner": self.party(win) if win in ("a", "b") else win, "winner_code": win,
                 "status": status.replace("_", " "),
-            } for dist, spec, seats, va, vb, vo, sa, su, imp, win, status in zip(*cols.values())]
+            } for dist, spec, run, seats, va, vb, vo, sa, su, imp, win, status in zip(*cols.values())]
+            deciding = part[part["decides"].astype(int) == 1]  # one contest per seat
             out.append({"cycle": int(cycle), "unofficial": part["certification"].iloc[0] == "unofficial", "rows": rows,
-                        "seats_a": F.number(part["seats_a"].sum(), 1), "seats_b": F.number(part["seats_b"].sum(), 1),
+                        "seats_a": F.number(deciding["seats_a"].sum(), 1),
+                        "seats_b": F.number(deciding["seats_b"].sum(), 1),
                         "load": int(part["load_id"].iloc[0])})
         return out
 
