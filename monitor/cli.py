@@ -231,7 +231,10 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
 
     Flags are computed by `levelfield compute`. A flag is an indicator that a unit sits in the
     tail of the national distribution, not a legal finding. Inferred plans (no loaded era) are
-    marked in the `inferred` column.
+    marked in the `inferred` column. Flagged units show their coverage (`incomplete`,
+    `seat_coverage`, `missing_or_left_out`: which districts the measures lack, and why); the watch
+    list names its `incomplete_cycles`. A unit whose measures cover less than flags.min_coverage
+    of its seats is never flagged (`levelfield export tails` says why).
     """
     from monitor.flags import flag_table
     from monitor.output import to_text, write
@@ -250,8 +253,9 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
 def plans(ws: Workspace, file: Path) -> None:
     """Load plan eras (who drew each map) from FILE.
 
-    Columns: state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source; drawn_by is one of
-    party_a, party_b, split, commission, court, other. The file replaces the plans of every
+    Columns: state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source, and optionally
+    districts,seats (how many the plan has; seats default to the districts), which each unit's
+    coverage is measured against; drawn_by is one of party_a, party_b, split, commission, court, other. The file replaces the plans of every
     state and chamber it names. Units outside every era get an inferred plan (a new plan from each
     cycle ending in 2), marked inferred wherever it shows.
     """
@@ -356,11 +360,68 @@ def export_results(ws: Workspace, fmt: str, out: Path | None) -> None:
 @click.pass_obj
 @guarded
 def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy."""
-    from monitor.compute import measures_export
+    """Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy
+    (fixed, in this order), then reason (why a value is undefined) and the unit's coverage and vote
+    shares: districts_in_measures, districts_expected, seats_in_measures, seats_expected,
+    seat_coverage, incomplete (yes/no), expected_from, missing_or_left_out, vote_share_as_cast,
+    vote_share_after_policy, national_vote_share_as_cast, national_vote_share_after_policy."""
+    from monitor.exports import measures_export
     from monitor.output import to_text, write
 
     write(to_text(measures_export(ws.open_store()), fmt), out)
+
+
+@export.command("coverage")
+@workspace_option
+@FORMAT
+@OUT
+@click.option("--districts", is_flag=True,
+              help="One row per district missing or left out of the measures (cycle,state,chamber,district,seats,"
+                   "gap,reason) instead of one row per unit.")
+@click.pass_obj
+@guarded
+def export_coverage(ws: Workspace, fmt: str, out: Path | None, districts: bool) -> None:
+    """What the measures cover, one row per unit (the site's coverage download): cycle,state,chamber,
+    districts_in_measures,districts_expected,seats_in_measures,seats_expected,seat_coverage,incomplete,
+    expected_from,missing_or_left_out,vote_share_as_cast,vote_share_after_policy,
+    national_vote_share_as_cast,national_vote_share_after_policy. Computed by `levelfield compute`."""
+    from monitor.exports import coverage_export
+    from monitor.output import to_text, write
+
+    write(to_text(coverage_export(ws.open_store(), districts=districts), fmt), out)
+
+
+@export.command("expected-seats")
+@workspace_option
+@FORMAT
+@OUT
+@click.pass_obj
+@guarded
+def export_expected_seats(ws: Workspace, fmt: str, out: Path | None) -> None:
+    """Expected seats from the national pool, per unit (the site's expected-seats download):
+    cycle,state,chamber,districts,vote_share,seats_a,expected_seats,low,high,percentile,excess_seats,
+    draws,ess,mc_se,reason,method_version. excess_seats = seats_a - expected_seats (positive favours a)."""
+    from monitor.exports import expected_seats_export
+    from monitor.output import to_text, write
+
+    write(to_text(expected_seats_export(ws.open_store()), fmt), out)
+
+
+@export.command("tails")
+@workspace_option
+@FORMAT
+@OUT
+@click.pass_obj
+@guarded
+def export_tails(ws: Workspace, fmt: str, out: Path | None) -> None:
+    """Every unit and measure against its national-pool null, flagged or not and why (the site's
+    flagged-units download): cycle,state,chamber,measure,value,null_percentile,null_low,null_high,
+    p_value,cross_percentile,robust_z,flagged,favours,basis,plan_id,reason,incomplete. Percentiles
+    are fractions 0-1; flagged is 1 or 0."""
+    from monitor.exports import tails_export
+    from monitor.output import to_text, write
+
+    write(to_text(tails_export(ws.open_store()), fmt), out)
 
 
 @export.command("national")

@@ -26,6 +26,8 @@ class Option:
     default: Any
     help: str
     check: Callable[[Any], str | None] = field(default=lambda v: None, compare=False)
+    #: a table option (any keys below it): lines shown commented out in the default levelfield.toml
+    example: tuple[str, ...] = ()
 
     @property
     def name(self) -> str:
@@ -60,6 +62,32 @@ def _base_url(value):
         return f"must be a string, got {type(value).__name__} {value!r}"
     if value and not re.match(r"^https?://[^\s/?#]+(/[^\s?#]*)?$", value):
         return f'must be empty or an http(s) address like "https://example.org/watch/", got {value!r}'
+    return None
+
+
+def _count(value) -> bool:
+    return isinstance(value, int) and not isinstance(value, bool) and value >= 1
+
+
+def _expected_counts(value):
+    """``{chamber: {STATE: N | {districts = N, seats = M}}}``."""
+    if not isinstance(value, dict):
+        return f"must be a table like expected.federal.QV = 12, got {value!r}"
+    for chamber, states in value.items():
+        if not isinstance(states, dict):
+            return f"has {chamber} = {states!r}: must be a table of state codes, like expected.{chamber}.QV = 12"
+        for state, count in states.items():
+            where = f"has {chamber}.{state} = {count!r}"
+            if isinstance(count, dict):
+                unknown = sorted(set(count) - {"districts", "seats"})
+                if unknown:
+                    return f"{where}: unknown key(s) {', '.join(unknown)} (districts and seats only)"
+                if "districts" not in count:
+                    return f"{where}: give districts (and, optionally, seats)"
+                if not all(_count(v) for v in count.values()):
+                    return f"{where}: districts and seats must be whole numbers of at least 1"
+            elif not _count(count):
+                return f"{where}: must be a whole number of districts (at least 1) or {{ districts = N, seats = M }}"
     return None
 
 
@@ -152,12 +180,26 @@ OPTIONS: list[Option] = [
         _typed(int, low=2, high=10_000),
     ),
     Option(
+        "flags", "min_coverage", 0.9,
+        "units whose measures cover less than this share of their seats are never flagged, and say why "
+        "(default 0.9: project choice; no verified source)",
+        _typed(float, low=0.0, high=1.0),
+    ),
+    Option(
         "flags", "watch_cycles", 2, "a plan goes on watch when this many of its cycles are flagged ...",
         _typed(int, low=1, high=100),
     ),
     Option(
         "flags", "watch_measures", 2, "... each by at least this many measures agreeing in direction",
         _typed(int, low=1, high=10),
+    ),
+    Option(
+        "coverage", "expected", {},
+        "districts (and seats) each state's chamber should have, used when neither the plans file nor an "
+        "earlier cycle of the same plan says: expected.<chamber>.<STATE> = N (N single-member districts) or "
+        "= { districts = N, seats = M }",
+        _expected_counts,
+        example=('expected.federal.QV = 12', 'expected.state_lower.QV = { districts = 40, seats = 60 }'),
     ),
     Option(
         "load", "max_votes_per_row", 50_000_000,
@@ -275,7 +317,8 @@ def load_config(path: Path | None) -> Config:
 def _flatten(table: dict[str, Any], prefix: str = ""):
     for key, value in table.items():
         name = f"{prefix}.{key}" if prefix else key
-        if isinstance(value, dict):
+        opt = _BY_NAME.get(name)
+        if isinstance(value, dict) and not (opt is not None and isinstance(opt.default, dict)):
             yield from _flatten(value, name)
         else:
             yield name, value
@@ -294,6 +337,9 @@ def default_toml() -> str:
         lines.append(f"[{section}]")
         for opt in (o for o in OPTIONS if o.section == section):
             lines.append(f"# {opt.help}")
+            if opt.example:  # a table: empty by default, its keys shown as examples to uncomment
+                lines.extend(f"# {line}" for line in opt.example)
+                continue
             lines.append(f"{opt.key} = {_toml_value(opt.default)}")
     return "\n".join(lines) + "\n"
 

@@ -39,6 +39,7 @@ from monitor import measures as M
 from monitor import pool as P
 from monitor.compute import measure_settings, settings_salt
 from monitor.config import Config
+from monitor.coverage import not_flagged_reason, stored_coverage
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.plans import assign_plans, write_inferred
 from store import write_from_snapshot
@@ -207,11 +208,15 @@ def _f(x) -> float | None:
     return x if np.isfinite(x) else None
 
 
-def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config: Config) -> pd.DataFrame:
+def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config: Config,
+          seat_coverage: pd.Series | None = None) -> pd.DataFrame:
     """Add the flag decision to every tails row (and the p-value-based ``lopsided`` rows).
 
     ``pvals``: cycle, state, chamber, measure, value, p_value from the measures table.
     ``districts``: eligible districts per unit key (cycle, state, chamber).
+    ``seat_coverage``: the share of each unit's seats in the measures (:mod:`monitor.coverage`);
+    a unit below ``flags.min_coverage`` is never flagged and its rows say why (a unit without a
+    coverage row is judged as before).
     """
     alpha, p_cut, minimum = config["flags.tail"], config["flags.p_threshold"], config["flags.min_districts"]
     t = tails.copy()
@@ -228,6 +233,10 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     p = t["p_value"].to_numpy(float)
     v = t["value"].to_numpy(float)
     big = np.nan_to_num(n, nan=0) >= minimum
+    share = (seat_coverage.reindex(pd.MultiIndex.from_frame(t[UNIT_KEYS])).to_numpy(float)
+             if seat_coverage is not None else np.full(len(t), np.nan))
+    thin = np.isfinite(share) & (share < config["flags.min_coverage"])
+    big &= ~thin
     by_null = big & ((pct > 1 - alpha) | (pct < alpha))
     by_p = big & (p < p_cut) & np.isfinite(v) & (v != 0)
     direction_null = np.where(pct > 0.5, "a", "b")
@@ -236,9 +245,12 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     t["direction"] = np.where(by_null, direction_null, np.where(by_p, direction_p, None))
     t["basis"] = np.where(by_null & by_p, "null tail and p-value",
                           np.where(by_null, "null tail", np.where(by_p, "p-value", None)))
-    small = ~big
-    t["reason"] = np.where(small & t["reason"].isna(), f"fewer than {minimum} districts: not flagged",
-                           t["reason"])
+    small = np.nan_to_num(n, nan=0) < minimum
+    # no reason yet: null, or the engine's "" for a defined value (the lopsided rows come from measures)
+    unexplained = t["reason"].isna() | (t["reason"] == "")
+    t["reason"] = np.where(small & unexplained, f"fewer than {minimum} districts: not flagged", t["reason"])
+    coverage_reason = [not_flagged_reason(x, config["flags.min_coverage"]) for x in share]
+    t["reason"] = np.where(thin & ~small & unexplained, coverage_reason, t["reason"])
     return t
 
 
@@ -329,6 +341,8 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     pvals = pd.read_sql_query(
         "SELECT cycle, state, chamber, measure, value, p_value, reason FROM measures WHERE measure IN (?, ?)",
         db.conn, params=[P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
+    cover = stored_coverage(db).units
+    coverage_share = pd.to_numeric(cover.set_index(UNIT_KEYS)["seat_coverage"], errors="coerce").astype(float)
     seat_frames, tail_frames = [], []
     groups = units.groupby(["cycle", "chamber"], sort=True)
     for done, ((cycle, chamber), part) in enumerate(groups):
@@ -353,7 +367,7 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     seats = pd.concat(seat_frames, ignore_index=True) if seat_frames else pd.DataFrame(columns=[*UNIT_KEYS, "excess_seats"])
     tails = pd.concat(tail_frames, ignore_index=True) if tail_frames else pd.DataFrame(columns=[*UNIT_KEYS, "measure", "value"])
     districts = units.set_index(UNIT_KEYS)["districts_eligible"]
-    judged = context_stats(judge(tails, pvals, districts, config))
+    judged = context_stats(judge(tails, pvals, districts, config, coverage_share))
     judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
     watch = watch_list(judged, plans, seats, config)
     report.flags = int(judged["flagged"].sum())
@@ -461,6 +475,8 @@ def _unit_events(old: pd.DataFrame, new: pd.DataFrame, group_load: dict[tuple, i
             event, direction = "cleared", b["direction"]
             if now is None:
                 why = "the unit is no longer in the store"
+            elif str(now.get("reason") or "").endswith("not flagged"):  # too few districts or seats covered
+                why = now["reason"]
             elif now.get("value") is None or not np.isfinite(now.get("value") or np.nan):
                 why = f"{k[3]} is now undefined ({now.get('reason') or 'no value'})"
             elif now.get("null_percentile") is not None and np.isfinite(now.get("null_percentile") or np.nan):
@@ -537,7 +553,9 @@ def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None
     """What ``levelfield flags`` prints: flagged units, the watch list or the flag history.
 
     Every view says whether the plan is inferred (``inferred`` = 1: no loaded era covers it, a
-    plan per decade was assumed). Cycles are integers (empty for plan-level events)."""
+    plan per decade was assumed). Cycles are integers (empty for plan-level events). Flagged units
+    say whether the unit is incomplete (districts missing or left out of its measures: which, and
+    why); the watch list names the plan's flagged cycles that are incomplete."""
     if show not in ("flags", "watch", "changes"):
         raise ValueError(f"show must be flags, watch or changes, got {show!r}")
     where, params = [], []
@@ -549,9 +567,10 @@ def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None
             where.append("(' ' || x.cycles || ' ') LIKE ?")
             params.append(f"% {cycle} %")
         clause = f"WHERE {' AND '.join(where)}" if where else ""
-        return pd.read_sql_query(
+        watch = pd.read_sql_query(
             f"SELECT {', '.join('x.' + c for c in WATCH_CSV_COLUMNS)} FROM watch x {clause} "
             "ORDER BY x.severity DESC, x.concurring DESC, x.state, x.chamber, x.plan_id", db.conn, params=params)
+        return _incomplete_cycles(watch, stored_coverage(db).units)
     if cycle is not None:
         where.append("x.cycle = ?")
         params.append(cycle)
@@ -571,4 +590,25 @@ def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None
         f"x.value, x.null_percentile, x.p_value FROM tails x {plan} WHERE {' AND '.join(where)} "
         "ORDER BY x.cycle, x.state, x.chamber, x.measure", db.conn, params=params)
     frame["inferred"] = frame["inferred"].astype("Int64")
-    return frame
+    return _with_coverage(frame, stored_coverage(db).units)
+
+
+def _with_coverage(flagged: pd.DataFrame, cover: pd.DataFrame) -> pd.DataFrame:
+    """Flagged rows with their unit's coverage: ``incomplete`` (yes | no), ``seat_coverage`` and
+    ``missing_or_left_out`` (what is missing or left out of the measures, and why)."""
+    cover = cover[[*UNIT_KEYS, "incomplete", "seat_coverage", "note"]].rename(columns={"note": "missing_or_left_out"})
+    out = flagged.merge(cover, on=UNIT_KEYS, how="left")
+    out["incomplete"] = np.where(out["incomplete"].isna(), "unknown",
+                                 np.where(out["incomplete"].fillna(0).astype(int) == 1, "yes", "no"))
+    return out
+
+
+def _incomplete_cycles(watch: pd.DataFrame, cover: pd.DataFrame) -> pd.DataFrame:
+    """The watch list with ``incomplete_cycles``: those of each plan's flagged cycles whose unit
+    is incomplete (space separated; empty when none)."""
+    bad = {(int(c), s, ch) for c, s, ch, i in zip(cover["cycle"], cover["state"], cover["chamber"],
+                                                    cover["incomplete"]) if int(i) == 1}
+    watch = watch.copy()
+    watch["incomplete_cycles"] = [" ".join(c for c in str(cycles).split() if (int(c), st, ch) in bad)
+                                  for st, ch, cycles in zip(watch["state"], watch["chamber"], watch["cycles"])]
+    return watch

@@ -15,6 +15,7 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
+from monitor.eligibility import deciding
 from monitor.reduce import reduce_contests, two_party_inputs
 from store import queries
 
@@ -23,25 +24,27 @@ UNIT_KEYS = ["cycle", "state", "chamber"]
 
 def reduced_contests(db: sqlite_utils.Database, where: str = "", params=()) -> pd.DataFrame:
     """One row per current contest: unit keys, district, special, runoff, decides (whether it
-    decides its seat), placeholder (no real count), seats and its reduction."""
+    decides its seat; else left_out says why), placeholder (no real count), seats and its
+    reduction."""
     lines = queries.current_votes(db, where, params)
     if lines.empty:
         return pd.DataFrame(columns=["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id",
-                                     "district", "seats", "special", "runoff", "decides", "placeholder",
+                                     "district", "seats", "special", "runoff", "decides", "left_out", "placeholder",
                                      "votes_a", "votes_b", "votes_other",
                                      "total", "status", "seats_a", "seats_b", "seats_other", "winner",
                                      "candidates_a", "candidates_b", "candidates_other"])
     contests = lines.drop_duplicates("contest_id")[
         ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "seats", "special",
-         "runoff", "decides", "placeholder"]
+         "runoff", "decides", "left_out", "placeholder"]
     ]
     reduced = reduce_contests(lines, contests[["contest_id", "seats"]]).drop(columns=["seats"])
     return contests.merge(reduced, on="contest_id", how="left")
 
 
 def deciding_contests(contests: pd.DataFrame) -> pd.DataFrame:
-    """The contests that decide their seats (one per seat), from :func:`reduced_contests`."""
-    return contests[contests["decides"].astype(int) == 1]
+    """The contests that decide their seats (one per seat), from :func:`reduced_contests`
+    (:func:`monitor.eligibility.deciding`)."""
+    return contests[deciding(contests)]
 
 
 @dataclass

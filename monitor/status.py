@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import store
+from monitor.coverage import coverage_lines, stored_coverage
 from monitor.ingest.fields import shown
 from monitor.workspace import Workspace
 
@@ -21,6 +22,7 @@ class StoreStatus:
     rejected: list[str]
     measures: int = 0
     extra: dict[str, str] = field(default_factory=dict)
+    coverage: list[str] = field(default_factory=list)  # incomplete units, what is missing and why
 
     def lines(self) -> list[str]:
         out = [f"schema version {self.schema_version}"]
@@ -30,6 +32,7 @@ class StoreStatus:
             out.append(f"chamber {chamber}: {len(cycles)} cycle(s), {_spans(cycles)}")
         out.append(f"states {self.states}, current contests {self.contests}, vote lines {self.vote_lines}, "
                    f"measures {self.measures}")
+        out.extend(self.coverage)
         out.append(f"last loads ({len(self.loads)} shown):")
         for load in self.loads:
             if load["outcome"] == "refused":
@@ -73,6 +76,7 @@ def store_status(ws: Workspace, last: int = 5) -> StoreStatus:
                       if p.is_file() and not p.name.endswith(".error.txt"))
     result = StoreStatus(store.schema_version(db), by_chamber, states, contests, lines, loads, pending,
                          rejected, measures)
+    result.coverage = coverage_lines(stored_coverage(db).units, ws.config()["flags.min_coverage"], detail=10)
     result.extra.update(_watcher_state(ws))
     return result
 

@@ -1,8 +1,8 @@
 """Full verification: recompute everything from scratch and compare with what is stored.
 
 The store is copied (SQLite's online backup: one consistent snapshot, even while a load commits)
-into a scratch database in a temporary folder. On that copy the measures of every unit are
-recomputed, then the national pool, the tails, the flags and the watch list of every cycle and
+into a scratch database in a temporary folder. On that copy the measures and the coverage of every
+unit are recomputed, then the national pool, the tails, the flags and the watch list of every cycle and
 chamber (``full=True``: nothing is taken over from earlier runs). The tables as they were in the
 snapshot are then compared with the recomputed ones. The workspace's store is only read.
 
@@ -74,6 +74,11 @@ TABLES: dict[str, tuple[list[str], list[str], str | None]] = {
     "tails": (["cycle", "state", "chamber", "measure"],
               ["flagged", "direction", "basis", "value", "null_percentile", "null_low", "null_high",
                "null_dropped", "p_value", "cross_percentile", "robust_z", "robust_z_all", "plan_id", "reason"], None),
+    "coverage": (["cycle", "state", "chamber"],
+                 ["districts_stored", "seats_stored", "districts_measured", "seats_measured", "districts_expected",
+                  "seats_expected", "expected_from", "seat_coverage", "incomplete", "note", "votes_a_cast",
+                  "votes_b_cast", "votes_a_measured", "votes_b_measured", "policy"], None),
+    "coverage_gaps": (["cycle", "state", "chamber", "gap", "district"], ["seats", "reason"], None),
     "watch": (["state", "chamber", "plan_id"],
               ["favours", "severity", "seats_at_stake", "concurring", "cycles", "measures", "since",
                "drawn_by", "inferred"], None),

@@ -308,9 +308,53 @@ MIGRATIONS: list[tuple[int, str, str]] = [
             WHERE u.superseded_by IS NULL;
         """,
     ),
+    (
+        5,
+        "coverage of every unit: districts and seats expected, in the measures, missing or left out",
+        """
+        -- optional districts and seats of a plan era, from the plans file
+        ALTER TABLE plans ADD COLUMN districts INTEGER;
+        ALTER TABLE plans ADD COLUMN seats INTEGER;
+        -- one row per current unit, written with the measures (levelfield compute)
+        CREATE TABLE coverage (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            unit_id INTEGER REFERENCES units(id),
+            districts_stored INTEGER NOT NULL,
+            seats_stored INTEGER NOT NULL,
+            districts_measured INTEGER NOT NULL,
+            seats_measured INTEGER NOT NULL,
+            districts_expected INTEGER,
+            seats_expected INTEGER,
+            expected_from TEXT NOT NULL,
+            seat_coverage REAL,
+            incomplete INTEGER NOT NULL,
+            note TEXT,
+            votes_a_cast INTEGER NOT NULL,
+            votes_b_cast INTEGER NOT NULL,
+            votes_a_measured REAL NOT NULL,
+            votes_b_measured REAL NOT NULL,
+            policy TEXT NOT NULL,
+            computed_at TEXT NOT NULL,
+            PRIMARY KEY (cycle, state, chamber)
+        );
+        -- the districts of a unit that are missing or left out of its measures, with why
+        CREATE TABLE coverage_gaps (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            district TEXT NOT NULL,
+            seats INTEGER,
+            gap TEXT NOT NULL,
+            reason TEXT NOT NULL
+        );
+        CREATE INDEX coverage_gaps_unit ON coverage_gaps(cycle, state, chamber);
+        """,
+    ),
 ]
 
-SCHEMA_VERSION = MIGRATIONS[-1][0]
+SCHEMA_VERSION = max(version for version, _, _ in MIGRATIONS)
 
 # migrations that rebuild a table another one references: run with foreign keys off (a pragma
 # that only takes effect outside a transaction), then checked with ``PRAGMA foreign_key_check``
@@ -342,9 +386,12 @@ def migrate(db: sqlite_utils.Database) -> list[int]:
             f"the store is at schema version {current}, newer than this levelfield "
             f"({SCHEMA_VERSION}); upgrade levelfield"
         )
+    # every migration not recorded yet, in list order (not only those above the highest: a
+    # migration numbered below one already applied, from a branch merged later, still runs)
+    recorded = {row[0] for row in db.execute("SELECT version FROM schema_version")}
     applied = []
     for version, description, sql in MIGRATIONS:
-        if version <= current:
+        if version in recorded:
             continue
         keys_on = db.execute("PRAGMA foreign_keys").fetchone()[0]
         if version in REBUILDS:

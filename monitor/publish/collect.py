@@ -21,6 +21,8 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import OPTIONS, Config, Party
+from monitor.coverage import stored_coverage, with_shares
+from monitor.exports import coverage_columns, with_unit_coverage
 from monitor.inputs import UNIT_KEYS, reduced_contests
 from monitor.measures.swing import seat_share_at
 from monitor.national import (contest_shares, excess_by_drawer, measured, national_summary, plans_of_units,
@@ -92,6 +94,11 @@ class SiteData:
     results: pd.DataFrame
     site_time: dt.datetime
     national: pd.DataFrame = field(default_factory=pd.DataFrame)
+    #: per unit: the stored coverage with the two vote shares (monitor.coverage); its gaps
+    coverage: pd.DataFrame = field(default_factory=pd.DataFrame)
+    coverage_gaps: pd.DataFrame = field(default_factory=pd.DataFrame)
+    coverage_export: pd.DataFrame = field(default_factory=pd.DataFrame)  # the coverage download's rows
+    min_coverage: float = 0.9
     drawers: pd.DataFrame = field(default_factory=pd.DataFrame)
     corrections: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=CORRECTION_COLUMNS))
     base_url: str = ""
@@ -218,6 +225,10 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
     site_time = source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH
     curves, points = seats_votes_curves(contests)
     unit_plans = plans_of_units(units, plans)
+    # coverage and vote shares as the last recompute stored them, on every measures and tails row
+    stored = stored_coverage(db)
+    cover = coverage_columns(stored.units)
+    tables["tails"] = with_unit_coverage(tables["tails"], cover, ["incomplete"])
     data = SiteData(
         parties={code: config.party(code) for code in ("a", "b")},
         policy=config.policy,
@@ -244,6 +255,10 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
         drawers=excess_by_drawer(tables["pool_seats"], unit_plans),
         corrections=corrections(db),
         base_url=config["site.base_url"],
+        coverage=with_shares(stored.units),
+        coverage_export=cover,
+        coverage_gaps=stored.gaps,
+        min_coverage=config["flags.min_coverage"],
     )
     data.state_slugs = unique_slugs(units["state"])
     data.chamber_slugs = unique_slugs(units["chamber"])

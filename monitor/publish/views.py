@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from monitor.coverage import summary as coverage_summary
 from monitor.inputs import UNIT_KEYS
 from monitor.national import measured
 from monitor.publish import charts as C
@@ -129,7 +130,7 @@ class Views:
 
     def _watch_rows(self, watch: pd.DataFrame, root: str) -> list[dict]:
         rows = []
-        unofficial = self._unofficial_units
+        unofficial, incomplete = self._unofficial_units, self._incomplete_units
         for r in watch.itertuples():
             severity, stake = _severity_and_stake(r.severity, r.seats_at_stake)
             cycles = str(r.cycles or "").split()
@@ -142,7 +143,8 @@ class Views:
                 "seats_at_stake": stake, "stake_sort": _num(r.seats_at_stake),
                 "concurring": F.count(r.concurring), "concurring_sort": _num(r.concurring),
                 "measures": [SHORT.get(m, m.replace("_", " ")) for m in F.text(r.measures).split()],
-                "cycles": [{"cycle": c, "unofficial": (int(c), r.state, r.chamber) in unofficial} for c in cycles],
+                "cycles": [{"cycle": c, "unofficial": (int(c), r.state, r.chamber) in unofficial,
+                            "incomplete": (int(c), r.state, r.chamber) in incomplete} for c in cycles],
                 "cycles_count": len(cycles),
                 "unofficial_cycles": [c for c in cycles if (int(c), r.state, r.chamber) in unofficial],
                 "since": "" if F.missing(r.since) else str(int(r.since)),
@@ -156,6 +158,15 @@ class Views:
             u = self.d.units[self.d.units["certification"] == "unofficial"]
             self._unofficial_cache = {(int(c), s, ch) for c, s, ch in zip(u["cycle"], u["state"], u["chamber"])}
         return self._unofficial_cache
+
+    @property
+    def _incomplete_units(self) -> set:
+        """(cycle, state, chamber) of every unit with districts missing or left out of its measures."""
+        if not hasattr(self, "_incomplete_cache"):
+            c = self.d.coverage
+            c = c[c["incomplete"].astype(int) == 1] if len(c) else c
+            self._incomplete_cache = {(int(x), s, ch) for x, s, ch in zip(c["cycle"], c["state"], c["chamber"])}
+        return self._incomplete_cache
 
     @property
     def _pairs(self) -> set:
@@ -258,7 +269,7 @@ class Views:
                 "seats_a": F.number(r["seats_a"], 1), "seats_b": F.number(r["seats_b"], 1),
                 "seats_other": F.number(r["seats_other"], 1) if r["seats_other"] else "",
                 "votes_a": F.count(r["votes_a"]), "votes_b": F.count(r["votes_b"]),
-                "vote_share": F.share(r["vote_share"]),
+                "vote_share": F.share(r["vote_share"]), "vote_share_as_cast": F.share(r["vote_share_as_cast"]),
                 "uncontested": F.count(r["uncontested"]), "competitive": F.count(r["competitive"]),
                 "partial": (f"over the {F.count(r['measured_units'])} of {F.count(r['states'])} states with stored "
                             "measures") if partial else "",
@@ -340,6 +351,8 @@ class Views:
             "undefined": self._undefined_reasons(state, chamber) if not charts else [],
             "swing": swing, "swing_cycle": int(points["cycle"].iloc[0]) if not points.empty else None,
             "table": self._measure_table(state, chamber, units),
+            "coverage": self._coverage(state, chamber), "min_coverage": F.share(d.min_coverage, 0),
+            "vote": self._vote_headline(state, chamber),
             "results": self._results(state, chamber),
             "events": self._events(events, root),
             "corrections": self._corrections(state, chamber),
@@ -412,13 +425,47 @@ class Views:
                 flags.setdefault(int(cycle), []).append(f"{d.label(name)} ({self.party(direction)})")
         rows = []
         for cycle, cert in sorted(zip(units["cycle"].astype(int), units["certification"]), reverse=True):
+            incomplete = (cycle, state, chamber) in self._incomplete_units
+            flagged = ", ".join(flags.get(cycle, []))
+            if flagged and incomplete:  # a flag on a unit the measures do not wholly cover says so
+                flagged += " (on an incomplete unit: see coverage)"
             row = [cells.get((cycle, name), F.DASH) for name in present]
-            row += [excess.get(cycle, F.DASH), ", ".join(flags.get(cycle, [])) or F.DASH]
-            rows.append({"cycle": cycle, "unofficial": cert == "unofficial", "cells": row})
+            row += [excess.get(cycle, F.DASH), flagged or F.DASH]
+            rows.append({"cycle": cycle, "unofficial": cert == "unofficial", "incomplete": incomplete, "cells": row})
         labels = {"vote_share": f"{d.label('vote_share')}, two-party, after the uncontested policy",
                   "seat_share": f"{d.label('seat_share')}, districts in the measures"}
         return {"columns": [labels.get(n) or d.label(n) for n in present] + ["Excess seats (national pool)", "Flags"],
                 "rows": rows}
+
+    def _coverage(self, state: str, chamber: str) -> list[dict]:
+        """Each cycle's coverage, newest first: what the measures cover, what is missing or left
+        out and why, and whether the unit is below flags.min_coverage (never flagged)."""
+        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
+        gaps = self.by("coverage_gaps", ("state", "chamber"), (state, chamber))
+        by_cycle = {int(c): g for c, g in gaps.groupby("cycle")} if len(gaps) else {}
+        rows = []
+        for r in cov.sort_values("cycle", ascending=False).to_dict("records"):
+            cycle = int(r["cycle"])
+            share = r["seat_coverage"]
+            g = by_cycle.get(cycle, gaps.iloc[0:0])
+            rows.append({
+                "cycle": cycle, "summary": coverage_summary(r), "incomplete": int(r["incomplete"]) == 1,
+                "share": F.share(share, 0),
+                "never_flagged": not F.missing(share) and float(share) < self.d.min_coverage,
+                "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats), "reason": reason}
+                         for dist, seats, gap, reason in zip(g["district"], g["seats"], g["gap"], g["reason"])],
+            })
+        return rows
+
+    def _vote_headline(self, state: str, chamber: str) -> dict | None:
+        """The latest cycle's two vote shares of party a, each named: as cast and after the policy."""
+        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
+        if cov.empty:
+            return None
+        r = cov.sort_values("cycle").iloc[-1]
+        return {"cycle": int(r["cycle"]), "as_cast": F.share(r["vote_share_as_cast"]),
+                "after_policy": F.share(r["vote_share_after_policy"]), "policy": self.d.policy,
+                "differ": F.share(r["vote_share_as_cast"]) != F.share(r["vote_share_after_policy"])}
 
     def _corrections(self, state: str, chamber: str) -> list[dict]:
         """The corrections of this state and chamber, newest first, with what each changed."""
@@ -477,7 +524,8 @@ class Views:
                 by = by.assign(drawer=[self.drawer_group(k) for k in by["drawer"]])
                 drawer_chart = C.excess_by_drawer(f"drawer-{slug}", by, self.style, cycle, label)
             earlier = [c for c in d.chamber_cycles(chamber) if c < cycle]
-            states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber)}
+            states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber),
+                       "incomplete": (int(cycle), s, chamber) in self._incomplete_units}
                       for s in sorted(units.loc[units["chamber"] == chamber, "state"])]
             sections.append({"chamber": label, "charts": charts, "pool": pool_chart, "drawer": drawer_chart,
                              "states": states, "summary": self._national_rows(chamber, earlier[-1:] + [cycle]),
@@ -537,4 +585,8 @@ def _num(value) -> str:
 def _setting(value) -> str:
     if isinstance(value, bool):
         return "true" if value else "false"
+    if isinstance(value, dict):  # coverage.expected, the one table option: chamber.STATE = count
+        return "; ".join(f"{chamber}.{state} = " + (
+            ", ".join(f"{k} {v}" for k, v in count.items()) if isinstance(count, dict) else f"{count} districts")
+            for chamber, states in value.items() for state, count in states.items()) or "none"
     return str(value)
