@@ -236,7 +236,10 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
 
     Flags are computed by `levelfield compute`. A flag is an indicator that a unit sits in the
     tail of the national distribution, not a legal finding. Inferred plans (no loaded era) are
-    marked in the `inferred` column.
+    marked in the `inferred` column. Flagged units show their coverage (`incomplete`,
+    `seat_coverage`, `missing_or_left_out`: which districts the measures lack, and why); the watch
+    list names its `incomplete_cycles`. A unit whose measures cover less than flags.min_coverage
+    of its seats is never flagged (`levelfield export tails` says why).
     """
     from monitor.flags import flag_table
     from monitor.output import to_text, write
@@ -255,8 +258,9 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
 def plans(ws: Workspace, file: Path) -> None:
     """Load plan eras (who drew each map) from FILE.
 
-    Columns: state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source; drawn_by is one of
-    party_a, party_b, split, commission, court, other. The file replaces the plans of every
+    Columns: state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source, and optionally
+    districts,seats (how many the plan has; seats default to the districts), which each unit's
+    coverage is measured against; drawn_by is one of party_a, party_b, split, commission, court, other. The file replaces the plans of every
     state and chamber it names. Units outside every era get an inferred plan (a new plan from each
     cycle ending in 2), marked inferred wherever it shows.
     """
@@ -341,18 +345,21 @@ OUT = click.option("--out", type=click.Path(path_type=Path, dir_okay=False), hel
 
 
 def _export_command(item) -> click.Command:
-    """``levelfield export NAME``: the stored rows of one export, as CSV or JSON."""
+    """``levelfield export NAME``: the stored rows of one export (:data:`monitor.exports.EXPORTS`),
+    as CSV or JSON, with the export's flags as options."""
 
     @workspace_option
     @FORMAT
     @OUT
     @click.pass_obj
     @guarded
-    def command(ws: Workspace, fmt: str, out: Path | None) -> None:
+    def command(ws: Workspace, fmt: str, out: Path | None, **flags: bool) -> None:
         from monitor.output import to_text, write
 
-        write(to_text(item.frame(_store(ws)), fmt), out)
+        write(to_text(item.frame(_store(ws), **flags), fmt), out)
 
+    for flag, text in item.flags.items():
+        command = click.option(f"--{flag}", is_flag=True, help=text)(command)
     command.__doc__ = item.help
     return export.command(item.name)(command)
 

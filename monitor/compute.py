@@ -2,7 +2,8 @@
 
 A unit's inputs hash covers its two-party district inputs (after the uncontested policy), the
 policy and the measure settings; a stored measure is stale when that hash or the measure's method
-version differs. ``full=True`` recomputes everything.
+version differs. ``full=True`` recomputes everything. The coverage of every unit
+(:mod:`monitor.coverage`) is recomputed and stored in the same step.
 """
 
 from __future__ import annotations
@@ -17,6 +18,7 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
+from monitor.coverage import compute_coverage, coverage_lines, write_coverage
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.measures import MEASURE_VERSIONS, compute_measures
 from monitor.progress import tell
@@ -41,13 +43,14 @@ class ComputeReport:
     rows_written: int = 0
     units_removed: int = 0
     computed: list[tuple] = field(default_factory=list)
+    coverage: list[str] = field(default_factory=list)  # plain-words coverage lines
 
     def lines(self) -> list[str]:
         out = [f"measures: {self.units_computed} unit(s) computed, {self.units_unchanged} unchanged "
                f"(of {self.units_total}); {self.rows_written} rows written"]
         if self.units_removed:
             out.append(f"  {self.units_removed} unit(s) no longer in the store: their measures were removed")
-        return out
+        return out + self.coverage
 
 
 def compute_frame(config: Config, contests: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -101,6 +104,8 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     current = set(zip(units["cycle"], units["state"], units["chamber"]))
     gone = {k for k in zip(stored["cycle"], stored["state"], stored["chamber"])} - current
     report.units_removed = len(gone)
+    cover = compute_coverage(db, config, contests)
+    report.coverage = coverage_lines(cover.units, config["flags.min_coverage"])
 
     rows = []
     tell(progress, "measures", 1, 3, f"computing {len(stale)} unit(s)")
@@ -120,6 +125,7 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     def write(conn) -> ComputeReport:
         store_measures.replace_units(conn, report.computed + sorted(gone), rows)
         report.rows_written = len(rows)
+        write_coverage(conn, cover, config.policy, stamp)
         return report
 
     return write

@@ -12,6 +12,7 @@ The ``[parties.a]`` / ``[parties.b]`` tables are a fixed contract (other tools w
 
 from __future__ import annotations
 
+import copy
 import difflib
 import re
 import tomllib
@@ -35,6 +36,8 @@ class Option:
     help: str
     check: Callable[[Any], str | None] = field(default=lambda v: None, compare=False)
     note: str = ""
+    #: a table option (any keys below it): lines shown commented out in the default levelfield.toml
+    example: tuple[str, ...] = ()
 
     @property
     def name(self) -> str:
@@ -73,6 +76,32 @@ def _base_url(value):
         return f"must be a string, got {type(value).__name__} {value!r}"
     if value and not re.match(r"^https?://[^\s/?#]+(/[^\s?#]*)?$", value):
         return f'must be empty or an http(s) address like "https://example.org/watch/", got {value!r}'
+    return None
+
+
+def _count(value) -> bool:
+    return isinstance(value, int) and not isinstance(value, bool) and value >= 1
+
+
+def _expected_counts(value):
+    """``{chamber: {STATE: N | {districts = N, seats = M}}}``."""
+    if not isinstance(value, dict):
+        return f"must be a table like expected.federal.QV = 12, got {value!r}"
+    for chamber, states in value.items():
+        if not isinstance(states, dict):
+            return f"has {chamber} = {states!r}: must be a table of state codes, like expected.{chamber}.QV = 12"
+        for state, count in states.items():
+            where = f"has {chamber}.{state} = {count!r}"
+            if isinstance(count, dict):
+                unknown = sorted(set(count) - {"districts", "seats"})
+                if unknown:
+                    return f"{where}: unknown key(s) {', '.join(unknown)} (districts and seats only)"
+                if "districts" not in count:
+                    return f"{where}: give districts (and, optionally, seats)"
+                if not all(_count(v) for v in count.values()):
+                    return f"{where}: districts and seats must be whole numbers of at least 1"
+            elif not _count(count):
+                return f"{where}: must be a whole number of districts (at least 1) or {{ districts = N, seats = M }}"
     return None
 
 
@@ -188,12 +217,26 @@ OPTIONS: list[Option] = [
         _typed(int, low=2, high=10_000),
     ),
     Option(
+        "flags", "min_coverage", 0.9,
+        "units whose measures cover less than this share of their seats are never flagged, and say why "
+        "(default 0.9: project choice; no verified source)",
+        _typed(float, low=0.0, high=1.0),
+    ),
+    Option(
         "flags", "watch_cycles", 2, "a plan goes on watch when this many of its cycles are flagged ...",
         _typed(int, low=1, high=100),
     ),
     Option(
         "flags", "watch_measures", 2, "... each by at least this many measures agreeing in direction",
         _typed(int, low=1, high=10),
+    ),
+    Option(
+        "coverage", "expected", {},
+        "districts (and seats) each state's chamber should have, used when neither the plans file nor an "
+        "earlier cycle of the same plan says: expected.<chamber>.<STATE> = N (N single-member districts) or "
+        "= { districts = N, seats = M }",
+        _expected_counts,
+        example=('expected.federal.QV = 12', 'expected.state_lower.QV = { districts = 40, seats = 60 }'),
     ),
     Option(
         "load", "max_votes_per_row", 50_000_000,
@@ -258,7 +301,9 @@ def section_type(section: str, name: str, summary: str) -> type:
            ""]
     for opt in options:
         doc.append(f"``{opt.key}`` (default {opt.default!r}): {opt.help}." + (f" {opt.note}" if opt.note else ""))
-    fields_ = [(opt.key, type(opt.default), field(default=opt.default)) for opt in options]
+    fields_ = [(opt.key, type(opt.default),
+                field(default_factory=lambda d=opt.default: copy.deepcopy(d)) if isinstance(opt.default, (dict, list))
+                else field(default=opt.default)) for opt in options]
     return make_dataclass(name, fields_, frozen=True, namespace={
         "SECTION": section, "__doc__": "\n".join(doc), "__post_init__": _validate_section,
         "__module__": __name__})
@@ -271,10 +316,12 @@ UncontestedSettings = section_type("uncontested", "UncontestedSettings", "How un
 LoadSettings = section_type("load", "LoadSettings", "Limits of the loader.")
 ScheduleSettings = section_type("schedule", "ScheduleSettings", "When the watcher runs its jobs.")
 SiteSettings = section_type("site", "SiteSettings", "How the site is published.")
+CoverageSettings = section_type("coverage", "CoverageSettings", "What each unit's coverage is measured against.")
 
 #: the typed sections, by the name of the section they are built from
 SECTION_TYPES: dict[str, type] = {cls.SECTION: cls for cls in (
-    MeasureSettings, PoolSettings, FlagSettings, UncontestedSettings, LoadSettings, ScheduleSettings, SiteSettings)}
+    MeasureSettings, PoolSettings, FlagSettings, UncontestedSettings, LoadSettings, ScheduleSettings, SiteSettings,
+    CoverageSettings)}
 
 
 @dataclass(frozen=True)
@@ -378,7 +425,8 @@ def load_config(path: Path | None) -> Config:
 def _flatten(table: dict[str, Any], prefix: str = ""):
     for key, value in table.items():
         name = f"{prefix}.{key}" if prefix else key
-        if isinstance(value, dict):
+        opt = _BY_NAME.get(name)
+        if isinstance(value, dict) and not (opt is not None and isinstance(opt.default, dict)):
             yield from _flatten(value, name)
         else:
             yield name, value
@@ -397,6 +445,9 @@ def default_toml() -> str:
         lines.append(f"[{section}]")
         for opt in (o for o in OPTIONS if o.section == section):
             lines.append(f"# {opt.help}")
+            if opt.example:  # a table: empty by default, its keys shown as examples to uncomment
+                lines.extend(f"# {line}" for line in opt.example)
+                continue
             lines.append(f"{opt.key} = {_toml_value(opt.default)}")
     return "\n".join(lines) + "\n"
 

@@ -63,6 +63,8 @@ def unit_events(old: pd.DataFrame, new: pd.DataFrame, group_load: dict[tuple, in
             event, direction = "cleared", b["direction"]
             if now is None:
                 why = "the unit is no longer in the store"
+            elif str(now.get("reason") or "").endswith("not flagged"):  # too few districts or seats covered
+                why = now["reason"]
             elif now.get("value") is None or not np.isfinite(now.get("value") or np.nan):
                 why = f"{k[3]} is now undefined ({now.get('reason') or 'no value'})"
             elif now.get("null_percentile") is not None and np.isfinite(now.get("null_percentile") or np.nan):

@@ -29,6 +29,7 @@ import sqlite_utils
 
 from monitor import events as E
 from monitor.config import Config
+from monitor.coverage import stored_coverage
 from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
 from monitor.plans import assign_plans, write_inferred
 from monitor.tails import (JUDGED, NULL_FLAGGED, P_FLAGGED, POOL_METHOD_VERSION, context_stats, group_hash, judge,
@@ -137,7 +138,9 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     seats, tails = _pool_groups(arrays, (observed, undefined, actual_seats), old, store_flags.group_hashes(db),
                                 config, full, report, progress)
     districts = units.set_index(UNIT_KEYS)["districts_eligible"]
-    judged = context_stats(judge(tails, pvals, districts, config))
+    cover = stored_coverage(db).units
+    coverage_share = pd.to_numeric(cover.set_index(UNIT_KEYS)["seat_coverage"], errors="coerce").astype(float)
+    judged = context_stats(judge(tails, pvals, districts, config, coverage_share))
     judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
     watch = watch_list(judged, plans, seats, config)
     report.flags = int(judged["flagged"].sum())
@@ -220,11 +223,13 @@ def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None
     """What ``levelfield flags`` prints: flagged units, the watch list or the flag history.
 
     Every view says whether the plan is inferred (``inferred`` = 1: no loaded era covers it, a
-    plan per decade was assumed). Cycles are integers (empty for plan-level events)."""
+    plan per decade was assumed). Cycles are integers (empty for plan-level events). Flagged units
+    say whether the unit is incomplete (districts missing or left out of its measures: which, and
+    why); the watch list names the plan's flagged cycles that are incomplete."""
     if show not in ("flags", "watch", "changes"):
         raise ValueError(f"show must be flags, watch or changes, got {show!r}")
     if show == "watch":
-        return store_flags.watch_view(db, cycle, chamber)
+        return _incomplete_cycles(store_flags.watch_view(db, cycle, chamber), stored_coverage(db).units)
     if show == "changes":
         frame = store_flags.changes_view(db, cycle, chamber)
         for col in ("cycle", "load_id", "inferred"):
@@ -232,4 +237,25 @@ def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None
         return frame
     frame = store_flags.flagged_view(db, cycle, chamber)
     frame["inferred"] = frame["inferred"].astype("Int64")
-    return frame
+    return _with_coverage(frame, stored_coverage(db).units)
+
+
+def _with_coverage(flagged: pd.DataFrame, cover: pd.DataFrame) -> pd.DataFrame:
+    """Flagged rows with their unit's coverage: ``incomplete`` (yes | no), ``seat_coverage`` and
+    ``missing_or_left_out`` (what is missing or left out of the measures, and why)."""
+    cover = cover[[*UNIT_KEYS, "incomplete", "seat_coverage", "note"]].rename(columns={"note": "missing_or_left_out"})
+    out = flagged.merge(cover, on=UNIT_KEYS, how="left")
+    out["incomplete"] = np.where(out["incomplete"].isna(), "unknown",
+                                 np.where(out["incomplete"].fillna(0).astype(int) == 1, "yes", "no"))
+    return out
+
+
+def _incomplete_cycles(watch: pd.DataFrame, cover: pd.DataFrame) -> pd.DataFrame:
+    """The watch list with ``incomplete_cycles``: those of each plan's flagged cycles whose unit
+    is incomplete (space separated; empty when none)."""
+    bad = {(int(c), s, ch) for c, s, ch, i in zip(cover["cycle"], cover["state"], cover["chamber"],
+                                                    cover["incomplete"]) if int(i) == 1}
+    watch = watch.copy()
+    watch["incomplete_cycles"] = [" ".join(c for c in str(cycles).split() if (int(c), st, ch) in bad)
+                                  for st, ch, cycles in zip(watch["state"], watch["chamber"], watch["cycles"])]
+    return watch

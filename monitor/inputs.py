@@ -16,6 +16,7 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
+from monitor.eligibility import deciding
 from store import reductions as stored
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
@@ -23,14 +24,16 @@ UNIT_KEYS = ["cycle", "state", "chamber"]
 
 def reduced_contests(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
     """One row per current contest (of ``cycle`` only, when given): unit keys, district, special,
-    runoff, decides (whether it decides its seat), placeholder (no real count), seats and its stored
-    reduction (``store.reductions.CONTEST_COLUMNS``), sorted by unit, district, special and runoff."""
+    runoff, decides (whether it decides its seat; else left_out says why), placeholder (no real
+    count), seats and its stored reduction (``store.reductions.CONTEST_COLUMNS``), sorted by unit,
+    district, special and runoff."""
     return stored.current(db, cycle)
 
 
 def deciding_contests(contests: pd.DataFrame) -> pd.DataFrame:
-    """The contests that decide their seats (one per seat), from :func:`reduced_contests`."""
-    return contests[contests["decides"].astype(int) == 1]
+    """The contests that decide their seats (one per seat), from :func:`reduced_contests`
+    (:func:`monitor.eligibility.deciding`)."""
+    return contests[deciding(contests)]
 
 
 @dataclass

@@ -71,6 +71,9 @@ SUMMARY_FIELDS: list[tuple[str, str, str]] = [
         ("court", "whose plan a court drew"), ("other", "whose plan someone else drew"),
         ("inferred", "under inferred plan eras (who drew them is not recorded)"),
         ("no_plan", "that no plan era covers"))],
+    ("vote_share_as_cast", "number",
+     "party a's share of the two-party vote as cast, votes_a / (votes_a + votes_b): the raw votes of the "
+     "contests that decide the seats, what is usually quoted (vote_share is the share after the policy)"),
 ]
 SUMMARY_COLUMNS = [f[0] for f in SUMMARY_FIELDS]
 
@@ -189,6 +192,7 @@ def national_summary(contests: pd.DataFrame, measures: pd.DataFrame, tails: pd.D
     va, vb = mg["votes_a_used"].sum(), mg["votes_b_used"].sum()
     out["measured_districts"] = mg.size().reindex(out.index).fillna(0).astype(int)
     out["vote_share"] = (va / (va + vb).where(lambda s: s > 0)).reindex(out.index)
+    out["vote_share_as_cast"] = out["votes_a"] / (out["votes_a"] + out["votes_b"]).where(lambda s: s > 0)
 
     m = measures[measures["measure"].isin(["uncontested", "competitive"])]
     m = m.assign(value=pd.to_numeric(m["value"], errors="coerce").astype(float))

@@ -2,7 +2,9 @@
 
 ``levelfield plans FILE`` loads eras from a CSV with the columns
 ``state,chamber,plan_id,first_cycle,last_cycle,drawn_by,note,source`` (``last_cycle`` may be
-empty for a plan still in force). Units not covered by a loaded era get an *inferred* plan: a new
+empty for a plan still in force), and optionally ``districts`` and ``seats``: how many districts
+and seats the plan has (seats default to the districts), which the coverage of every unit of the
+era is measured against. Units not covered by a loaded era get an *inferred* plan: a new
 plan from each cycle ending in 2 (the first cycle after a decennial census), drawn by ``other``,
 marked ``inferred`` everywhere it shows, with the id ``{state}-{chamber}-{start}`` unless a loaded
 plan of that state and chamber has that id (then ``...-inferred``): loaded plans are never replaced.
@@ -25,9 +27,12 @@ from store import plans as store_plans
 from store import transaction
 
 DRAWN_BY = ("party_a", "party_b", "split", "commission", "court", "other")
-COLUMNS = ("state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "note", "source")
+COLUMNS = ("state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "note", "source",
+           "districts", "seats")
 REQUIRED = COLUMNS[:6]
 INFERRED_NOTE = "inferred: a new plan assumed from each cycle ending in 2"
+#: optional counts of the plan's districts and seats (seats default to the districts: one seat each)
+COUNTS = ("districts", "seats")
 
 
 def read_plans(path: Path) -> pd.DataFrame:
@@ -72,14 +77,35 @@ def read_plans(path: Path) -> pd.DataFrame:
         if rec["drawn_by"] not in DRAWN_BY:
             problems.append(Problem(raw.name, row, "drawn_by",
                                     f"drawn_by {rec['drawn_by']!r} is not one of {', '.join(DRAWN_BY)}"))
+        counts = {}
+        for col in COUNTS:
+            counts[col], why = _count(rec.get(col, ""), col)
+            if why:
+                problems.append(Problem(raw.name, row, col, why))
+        if counts["seats"] is not None and counts["districts"] is None:
+            problems.append(Problem(raw.name, row, "districts", "seats is given without districts: give both"))
+        elif counts["districts"] is not None and counts["seats"] is None:
+            counts["seats"] = counts["districts"]
+        elif None not in counts.values() and counts["seats"] < counts["districts"]:
+            problems.append(Problem(raw.name, row, "seats",
+                                    f"seats {counts['seats']} is fewer than districts {counts['districts']}"))
         out.append({**rec, "first_cycle": first, "last_cycle": last, "row": row,
-                    "note": rec.get("note", ""), "source": rec.get("source", "")})
+                    "note": rec.get("note", ""), "source": rec.get("source", ""), **counts})
     frame = pd.DataFrame(out, columns=[*COLUMNS, "row"])
     if not problems:
         problems += _overlaps(raw.name, frame)
     if problems:
         raise DataError(problems, f"{len(problems)} problem(s) in {raw.name}; no plan was loaded")
     return frame
+
+
+def _count(text: str, column: str) -> tuple[int | None, str | None]:
+    """An optional whole count of at least 1 (empty: not given)."""
+    if not text:
+        return None, None
+    if not text.isdigit() or int(text) < 1:
+        return None, f"{column} {text!r} is not a whole number of at least 1"
+    return int(text), None
 
 
 def _overlaps(name: str, frame: pd.DataFrame) -> list[Problem]:
@@ -108,7 +134,8 @@ def load_plans(db: sqlite_utils.Database, path: Path) -> dict:
     with transaction(db) as conn:
         store_plans.replace_loaded(conn, pairs, [
             (r.state, r.chamber, r.plan_id, int(r.first_cycle), None if pd.isna(r.last_cycle) else int(r.last_cycle),
-             r.drawn_by, r.note, r.source) for r in frame.itertuples()])
+             r.drawn_by, r.note, r.source, None if pd.isna(r.districts) else int(r.districts),
+             None if pd.isna(r.seats) else int(r.seats)) for r in frame.itertuples()])
     return {"plans": len(frame), "state_chambers": len(pairs)}
 
 

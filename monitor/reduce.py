@@ -33,6 +33,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from monitor.eligibility import ENTERS, contest_reasons
+
 STATUSES = ("contested", "uncontested", "same_party", "no_major")
 
 
@@ -101,9 +103,9 @@ def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) ->
     """The contests that enter the district-share measures, with ``votes_a``/``votes_b`` after the
     uncontested policy and an ``uncontested`` flag. Left out: multi-member contests and contests
     with no major party (no single two-party share per seat), and contests won by a minor party
-    or an independent (a two-party share would hand a major party a seat it did not win)."""
-    r = reduced[(reduced["seats"] == 1) & (reduced["status"] != "no_major")
-                & (reduced["winner"] != "other")].copy()
+    or an independent (a two-party share would hand a major party a seat it did not win); under
+    ``exclude``, uncontested contests. The rules are :func:`monitor.eligibility.contest_reasons`."""
+    r = reduced[contest_reasons(reduced, policy) == ENTERS].copy()
     lopsided = r["status"].isin(["uncontested", "same_party"])
     r["uncontested"] = lopsided
     va = r["votes_a"].astype(float)
@@ -119,11 +121,6 @@ def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) ->
         # the one major party that stood gets the winner's share (even if it polled 0 votes)
         va = va.where(~lopsided, np.where(a_side, winner_share, 1 - winner_share) * total)
         vb = vb.where(~lopsided, np.where(a_side, 1 - winner_share, winner_share) * total)
-    elif policy == "exclude":
-        r = r[~lopsided]
-        va, vb = va[~lopsided], vb[~lopsided]
-    elif policy != "none":
-        raise ValueError(f"unknown uncontested policy {policy!r}")
     r["votes_a"] = va.to_numpy()
     r["votes_b"] = vb.to_numpy()
     return r

@@ -14,6 +14,7 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
+from monitor.eligibility import deciding
 from monitor.reduce import reduce_contests, two_party_inputs
 from store import queries, write_from_snapshot
 from store import reductions as stored
@@ -34,8 +35,7 @@ def reduce_units(lines: pd.DataFrame, contests: pd.DataFrame, policy: str, winne
         reduced, on="contest_id", how="left")
     two = (out["votes_a"] + out["votes_b"]).astype(float)
     out["share_a"] = np.where(two > 0, out["votes_a"] / two.where(two > 0, 1.0), np.nan)
-    deciding = out[out["decides"].astype(int) == 1]
-    used = two_party_inputs(deciding, policy, winner_share).set_index("contest_id")
+    used = two_party_inputs(out[deciding(out)], policy, winner_share).set_index("contest_id")
     out["enters"] = out["contest_id"].isin(used.index).astype(int)
     va = used["votes_a"].reindex(out["contest_id"]).to_numpy(float)
     vb = used["votes_b"].reindex(out["contest_id"]).to_numpy(float)

@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 import sqlite_utils
 
 import store
+from monitor.coverage import coverage_lines, stored_coverage
 from monitor.ingest.fields import shown
 from monitor.lock import STATE_FILE, lock_holder, read_state
 from monitor.workspace import Workspace
@@ -25,6 +26,7 @@ class StoreStatus:
     rejected: list[str]
     measures: int = 0
     extra: dict[str, str] = field(default_factory=dict)
+    coverage: list[str] = field(default_factory=list)  # incomplete units, what is missing and why
 
     def lines(self) -> list[str]:
         out = [f"schema version {self.schema_version}"]
@@ -34,6 +36,7 @@ class StoreStatus:
             out.append(f"chamber {chamber}: {len(cycles)} cycle(s), {_spans(cycles)}")
         out.append(f"states {self.states}, current contests {self.contests}, vote lines {self.vote_lines}, "
                    f"measures {self.measures}")
+        out.extend(self.coverage)
         out.append(f"last loads ({len(self.loads)} shown):")
         for load in self.loads:
             if load["outcome"] == "refused":
@@ -66,6 +69,7 @@ def store_status(ws: Workspace, db: sqlite_utils.Database | None = None, last: i
                       if p.is_file() and not p.name.endswith(".error.txt"))
     result = StoreStatus(store.schema_version(db), held["cycles_by_chamber"], held["states"], held["contests"],
                          held["vote_lines"], held["loads"], pending, rejected, held["measures"])
+    result.coverage = coverage_lines(stored_coverage(db).units, ws.config()["flags.min_coverage"], detail=10)
     result.extra.update(_watcher_state(ws))
     return result
 

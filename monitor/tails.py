@@ -19,6 +19,7 @@ import pandas as pd
 
 from monitor import pool as P
 from monitor.config import Config
+from monitor.coverage import not_flagged_reason
 from monitor.inputs import UNIT_KEYS
 from monitor.measures import registry
 
@@ -152,12 +153,16 @@ def _f(x) -> float | None:
     return x if np.isfinite(x) else None
 
 
-def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config: Config) -> pd.DataFrame:
+def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config: Config,
+          seat_coverage: pd.Series | None = None) -> pd.DataFrame:
     """Add the flag decision to every tails row (and rows of the measures judged by their p-value
     alone, ``lopsided``).
 
     ``pvals``: cycle, state, chamber, measure, value, p_value, reason from the measures table.
     ``districts``: eligible districts per unit key (cycle, state, chamber).
+    ``seat_coverage``: the share of each unit's seats in the measures (:mod:`monitor.coverage`);
+    a unit below ``flags.min_coverage`` is never flagged and its rows say why (a unit without a
+    coverage row is judged as before).
     """
     alpha, p_cut, minimum = config["flags.tail"], config["flags.p_threshold"], config["flags.min_districts"]
     t = tails.copy()
@@ -179,6 +184,10 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     p = t["p_value"].to_numpy(float)
     v = t["value"].to_numpy(float)
     big = np.nan_to_num(n, nan=0) >= minimum
+    share = (seat_coverage.reindex(pd.MultiIndex.from_frame(t[UNIT_KEYS])).to_numpy(float)
+             if seat_coverage is not None else np.full(len(t), np.nan))
+    thin = np.isfinite(share) & (share < config["flags.min_coverage"])
+    big &= ~thin
     by_null = big & ((pct > 1 - alpha) | (pct < alpha))
     by_p = big & (p < p_cut) & np.isfinite(v) & (v != 0)
     direction_null = np.where(pct > 0.5, "a", "b")
@@ -187,9 +196,12 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     t["direction"] = np.where(by_null, direction_null, np.where(by_p, direction_p, None))
     t["basis"] = np.where(by_null & by_p, "null tail and p-value",
                           np.where(by_null, "null tail", np.where(by_p, "p-value", None)))
-    small = ~big
-    t["reason"] = np.where(small & t["reason"].isna(), f"fewer than {minimum} districts: not flagged",
-                           t["reason"])
+    small = np.nan_to_num(n, nan=0) < minimum
+    # no reason yet: null, or the engine's "" for a defined value (the lopsided rows come from measures)
+    unexplained = t["reason"].isna() | (t["reason"] == "")
+    t["reason"] = np.where(small & unexplained, f"fewer than {minimum} districts: not flagged", t["reason"])
+    coverage_reason = [not_flagged_reason(x, config["flags.min_coverage"]) for x in share]
+    t["reason"] = np.where(thin & ~small & unexplained, coverage_reason, t["reason"])
     return t
 
 

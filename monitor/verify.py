@@ -3,7 +3,7 @@
 The store is copied (SQLite's online backup: one consistent snapshot, even while a load commits)
 into a scratch database in a temporary folder. On that copy every derived step runs again with
 ``full=True`` (nothing is taken over from earlier runs, :func:`monitor.pipeline.recompute`): the
-contest reductions, the measures of every unit, the national pool, tails, flags and watch list of
+contest reductions, the measures and the coverage of every unit, the national pool, tails, flags and watch list of
 every cycle and chamber, and the aggregates (national summary, histogram, excess seats by who
 drew the plan, seats-votes curves, each unit's plan era). The tables as they were in the
 snapshot are then compared with the recomputed ones. The workspace's store is only read.
@@ -79,6 +79,11 @@ TABLES: dict[str, tuple[list[str], list[str], str | None]] = {
     "tails": (["cycle", "state", "chamber", "measure"],
               ["flagged", "direction", "basis", "value", "null_percentile", "null_low", "null_high",
                "null_dropped", "p_value", "cross_percentile", "robust_z", "robust_z_all", "plan_id", "reason"], None),
+    "coverage": (["cycle", "state", "chamber"],
+                 ["districts_stored", "seats_stored", "districts_measured", "seats_measured", "districts_expected",
+                  "seats_expected", "expected_from", "seat_coverage", "incomplete", "note", "votes_a_cast",
+                  "votes_b_cast", "votes_a_measured", "votes_b_measured", "policy"], None),
+    "coverage_gaps": (["cycle", "state", "chamber", "gap", "district"], ["seats", "reason"], None),
     "watch": (["state", "chamber", "plan_id"],
               ["favours", "severity", "seats_at_stake", "concurring", "cycles", "measures", "since",
                "drawn_by", "inferred"], None),

@@ -22,7 +22,7 @@ TABLES: dict[str, list[str]] = {
                          "votes_a", "votes_b", "votes_other", "measured_districts", "vote_share", "uncontested",
                          "competitive", "measured_units", "flagged_units", "pool_units", "excess_seats",
                          "excess_party_a", "excess_party_b", "excess_split", "excess_commission", "excess_court",
-                         "excess_other", "excess_inferred", "excess_no_plan"],
+                         "excess_other", "excess_inferred", "excess_no_plan", "vote_share_as_cast"],
     "national_histogram": ["cycle", "chamber", "bin_start", "bin_end", "kind", "side", "districts"],
     "national_drawers": ["cycle", "chamber", "drawer", "excess_seats", "units"],
     "swing_curves": ["state", "chamber", "cycle", "vote", "seat_share"],

@@ -10,9 +10,6 @@ import sqlite_utils
 
 UnitKey = tuple[int, str, str]
 
-#: What ``levelfield export measures`` writes, in this order (a fixed contract other tools read).
-EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value", "method_version", "policy"]
-
 #: The columns a measure row is written with, in this order.
 ROW_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value", "reason",
                "method_version", "policy", "inputs_hash", "unit_id", "computed_at"]

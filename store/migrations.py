@@ -42,9 +42,12 @@ def migrate(db: sqlite_utils.Database) -> list[int]:
             f"the store is at schema version {current}, newer than this levelfield "
             f"({SCHEMA_VERSION}); upgrade levelfield"
         )
+    # every migration not recorded yet, in list order (not only those above the highest: a
+    # migration numbered below one already applied, from a branch merged later, still runs)
+    recorded = {row[0] for row in db.execute("SELECT version FROM schema_version")}
     applied = []
     for version, description, sql in MIGRATIONS:
-        if version <= current:
+        if version in recorded:
             continue
         keys_on = db.execute("PRAGMA foreign_keys").fetchone()[0]
         if version in REBUILDS:

@@ -8,16 +8,16 @@ from typing import Iterable, Sequence
 import pandas as pd
 import sqlite_utils
 
-_INSERT = ("INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
-           "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)")
+_INSERT = ("INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred, "
+           "districts, seats) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)")
 
 
 def replace_loaded(conn: sqlite3.Connection, pairs: Iterable[tuple[str, str]], rows: Sequence[tuple]) -> None:
     """Delete the plans of every (state, chamber) in ``pairs``, then insert ``rows``:
-    (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source)."""
+    (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, districts, seats)."""
     for state, chamber in pairs:
         conn.execute("DELETE FROM plans WHERE state = ? AND chamber = ?", [state, chamber])
-    conn.executemany(_INSERT, [(*r, 0) for r in rows])
+    conn.executemany(_INSERT, [(*r[:8], 0, *r[8:]) for r in rows])
 
 
 def loaded(db: sqlite_utils.Database) -> pd.DataFrame:
@@ -31,4 +31,4 @@ def replace_inferred(conn: sqlite3.Connection, rows: Sequence[tuple], note: str)
     drawn by ``other``. Loaded plans are never touched: only ``inferred = 1`` rows are deleted and
     the new rows are plain inserts (an id equal to a loaded plan's fails the UNIQUE constraint)."""
     conn.execute("DELETE FROM plans WHERE inferred = 1")
-    conn.executemany(_INSERT, [(s, c, p, f, last, "other", note, None, 1) for s, c, p, f, last in rows])
+    conn.executemany(_INSERT, [(s, c, p, f, last, "other", note, None, 1, None, None) for s, c, p, f, last in rows])

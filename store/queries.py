@@ -117,7 +117,7 @@ def current_votes(db: sqlite_utils.Database, where: str = "", params: Sequence =
     clause = f"AND ({where})" if where else ""
     return pd.read_sql_query(
         "SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.certification, u.load_id, "
-        "c.id AS contest_id, c.district, c.seats, c.special, c.runoff, c.decides, c.placeholder, c.status, "
+        "c.id AS contest_id, c.district, c.seats, c.special, c.runoff, c.decides, c.left_out, c.placeholder, c.status, "
         "v.party, v.party_code, v.candidate, v.votes "
         "FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
         f"WHERE u.superseded_by IS NULL {clause} "
@@ -189,3 +189,4 @@ def unit_lines(conn: sqlite3.Connection, unit_ids: Sequence[int]) -> pd.DataFram
         f"JOIN units u ON u.id = c.unit_id WHERE c.unit_id IN ({marks}) ORDER BY c.unit_id, v.id",
         conn, params=list(unit_ids),
     )
+

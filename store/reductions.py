@@ -19,7 +19,7 @@ COLUMNS = ["contest_id", "unit_id", "votes_a", "votes_b", "votes_other", "total"
            "uncontested", "votes_a_used", "votes_b_used", "share_used", "imputed"]
 #: the columns of a current contest with its unit's keys, as :func:`current` returns them
 CONTEST_COLUMNS = ["unit_id", "cycle", "state", "chamber", "certification", "load_id", "contest_id", "district",
-                   "seats", "special", "runoff", "decides", "placeholder", *COLUMNS[2:]]
+                   "seats", "special", "runoff", "decides", "left_out", "placeholder", *COLUMNS[2:]]
 
 
 def stale_units(db: sqlite_utils.Database, policy: str, *, every: bool = False) -> list[tuple[int, str]]:
@@ -55,7 +55,8 @@ def replace(conn: sqlite3.Connection, unit_ids: Sequence[int], rows: Sequence[tu
 
 _CURRENT = (
     "SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.certification, u.load_id, c.id AS contest_id, "
-    "c.district, c.seats, c.special, c.runoff, c.decides, c.placeholder, " + ", ".join(f"r.{c}" for c in COLUMNS[2:]) + " "
+    "c.district, c.seats, c.special, c.runoff, c.decides, c.left_out, c.placeholder, "
+    + ", ".join(f"r.{c}" for c in COLUMNS[2:]) + " "
     "FROM contests c JOIN units u ON u.id = c.unit_id JOIN reductions r ON r.contest_id = c.id "
     "WHERE u.superseded_by IS NULL"
 )

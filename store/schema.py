@@ -301,7 +301,50 @@ MIGRATIONS: list[tuple[int, str, str]] = [
             WHERE u.superseded_by IS NULL;
         """,
     ),
-    # (5 is held for the coverage's migration, landing beside this one)
+    (
+        5,
+        "coverage of every unit: districts and seats expected, in the measures, missing or left out",
+        """
+        -- optional districts and seats of a plan era, from the plans file
+        ALTER TABLE plans ADD COLUMN districts INTEGER;
+        ALTER TABLE plans ADD COLUMN seats INTEGER;
+        -- one row per current unit, written with the measures (levelfield compute)
+        CREATE TABLE coverage (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            unit_id INTEGER REFERENCES units(id),
+            districts_stored INTEGER NOT NULL,
+            seats_stored INTEGER NOT NULL,
+            districts_measured INTEGER NOT NULL,
+            seats_measured INTEGER NOT NULL,
+            districts_expected INTEGER,
+            seats_expected INTEGER,
+            expected_from TEXT NOT NULL,
+            seat_coverage REAL,
+            incomplete INTEGER NOT NULL,
+            note TEXT,
+            votes_a_cast INTEGER NOT NULL,
+            votes_b_cast INTEGER NOT NULL,
+            votes_a_measured REAL NOT NULL,
+            votes_b_measured REAL NOT NULL,
+            policy TEXT NOT NULL,
+            computed_at TEXT NOT NULL,
+            PRIMARY KEY (cycle, state, chamber)
+        );
+        -- the districts of a unit that are missing or left out of its measures, with why
+        CREATE TABLE coverage_gaps (
+            cycle INTEGER NOT NULL,
+            state TEXT NOT NULL,
+            chamber TEXT NOT NULL,
+            district TEXT NOT NULL,
+            seats INTEGER,
+            gap TEXT NOT NULL,
+            reason TEXT NOT NULL
+        );
+        CREATE INDEX coverage_gaps_unit ON coverage_gaps(cycle, state, chamber);
+        """,
+    ),
     (
         6,
         "what is derived upstream and stored: contest reductions, each unit's plan, national aggregates, "
@@ -379,6 +422,7 @@ MIGRATIONS: list[tuple[int, str, str]] = [
             excess_other REAL,
             excess_inferred REAL,
             excess_no_plan REAL,
+            vote_share_as_cast REAL,
             PRIMARY KEY (cycle, chamber)
         );
         CREATE TABLE national_histogram (

@@ -23,6 +23,10 @@ from monitor.workspace import ENV_VAR, Workspace
 SETTINGS = "[pool]\ndraws = 300\n[measures]\ninterval_draws = 10\n"
 EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high", "p_value", "method_version",
                   "policy"]
+# added after the fixed columns (issue 13): why a value is undefined, then the unit's coverage and shares
+ADDED_COLUMNS = ["reason", "districts_in_measures", "districts_expected", "seats_in_measures", "seats_expected",
+                 "seat_coverage", "incomplete", "expected_from", "missing_or_left_out", "vote_share_as_cast",
+                 "vote_share_after_policy", "national_vote_share_as_cast", "national_vote_share_after_policy"]
 WATCH_LEADING = ["state", "chamber", "plan_id", "favours", "severity", "cycles", "measures"]
 
 
@@ -94,17 +98,22 @@ def test_a_method_version_bump_recomputes_that_measures_units(lf, monkeypatch):
     assert report_counts(lf("compute").stdout) == (0, 6, 6)
 
 
-def test_export_measures_has_exactly_the_contract_columns(lf):
+def test_export_measures_keeps_the_contract_columns_first_in_order_then_the_added_ones(lf):
     lf.configure(SETTINGS)
     lf("load", lf.write("history.csv", small_history()))
     lf("compute")
     text = lf("export", "measures").stdout
     reader = csv.reader(io.StringIO(text))
-    assert next(reader) == EXPORT_COLUMNS
+    assert next(reader) == EXPORT_COLUMNS + ADDED_COLUMNS
     assert len(list(reader)) == 6 * len(MEASURE_NAMES)
     records = json.loads(lf("export", "measures", "--format", "json").stdout)
     assert len(records) == 6 * len(MEASURE_NAMES)
-    assert all(list(r) == EXPORT_COLUMNS for r in records)
+    assert all(list(r) == EXPORT_COLUMNS + ADDED_COLUMNS for r in records)
+    # every unit here has its four districts in the measures, none expected from a plan yet in 2012
+    assert {(r["cycle"], r["districts_in_measures"], r["incomplete"], r["seat_coverage"]) for r in records} == {
+        (2012, 4, "no", 1.0), (2014, 4, "no", 1.0)}
+    assert {r["districts_expected"] for r in records if r["cycle"] == 2014} == {4}  # from 2012, same plan
+    assert {r["reason"] for r in records if r["measure"] == "efficiency_gap"} == {None}
     assert {r["policy"] for r in records} == {"impute:0.75"}
     out = lf.files / "measures.csv"
     lf("export", "measures", "--out", out)

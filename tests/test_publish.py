@@ -33,6 +33,7 @@ import site_fixture as sf
 import store
 from monitor.publish import build, collect
 from monitor.publish import downloads as D
+from monitor.publish import formats as F
 from monitor.publish import pages as PG
 from monitor.publish import paths as P
 from monitor.curves import seats_votes_curves
@@ -950,7 +951,10 @@ def test_every_cycle_page_shows_the_national_aggregates(fx, site):
         n = data.national[data.national["cycle"] == cycle]
         assert sorted(r[2] for r in mine) == sorted(f"{int(x['districts'])} ({int(x['measured_districts'])})"
                                                     for _, x in n.iterrows())
-        assert sorted(r[7] for r in mine) == sorted(str(int(x)) for x in n["competitive"])
+        # the two shares, each in its own named column: as cast, then after the uncontested policy
+        assert sorted((r[5], r[6]) for r in mine) == sorted((F.share(x["vote_share_as_cast"]), F.share(x["vote_share"]))
+                                                            for _, x in n.iterrows())
+        assert sorted(r[8] for r in mine) == sorted(str(int(x)) for x in n["competitive"])
         if cycle >= sf.CYCLES[-2]:  # the home page shows the latest two cycles of each chamber
             assert set(mine) <= set(home), (cycle, mine, home)
     # the competitive column is the sum of the stored measure

@@ -20,7 +20,8 @@ def test_every_section_but_the_parties_has_a_typed_form_with_exactly_its_options
     sections = {opt.section for opt in C.OPTIONS if not opt.section.startswith("parties.")}
     assert set(C.SECTION_TYPES) == sections
     for name, cls in C.SECTION_TYPES.items():
-        fields = {f.name: f.default for f in dataclasses.fields(cls)}
+        fields = {f.name: f.default if f.default is not dataclasses.MISSING else f.default_factory()
+                  for f in dataclasses.fields(cls)}
         assert fields == {opt.key: opt.default for opt in C.section_options(name)}, name
 
 
@@ -63,4 +64,6 @@ def test_a_float_setting_given_as_an_integer_is_stored_as_a_float():
 def test_the_default_file_lists_every_option():
     text = C.default_toml()
     for opt in C.OPTIONS:
-        assert f"\n{opt.key} = " in text, opt.name
+        # a table option (no value by default) shows its keys as commented examples
+        shown = f"\n# {opt.example[0]}" if opt.example else f"\n{opt.key} = "
+        assert shown in text, opt.name

@@ -21,6 +21,8 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import OPTIONS, Config, Party
+from monitor.coverage import stored_coverage, with_shares
+from monitor.exports import coverage_columns, with_unit_coverage
 from monitor.inputs import reduced_contests
 from monitor.measures import registry
 from monitor.reduce import describe_changes
@@ -90,6 +92,11 @@ class SiteData:
     results: pd.DataFrame
     site_time: dt.datetime
     national: pd.DataFrame = field(default_factory=pd.DataFrame)
+    #: per unit: the stored coverage with the two vote shares (monitor.coverage); its gaps
+    coverage: pd.DataFrame = field(default_factory=pd.DataFrame)
+    coverage_gaps: pd.DataFrame = field(default_factory=pd.DataFrame)
+    coverage_export: pd.DataFrame = field(default_factory=pd.DataFrame)  # the coverage download's rows
+    min_coverage: float = 0.9
     drawers: pd.DataFrame = field(default_factory=pd.DataFrame)
     seats_votes: pd.DataFrame = field(default_factory=pd.DataFrame)
     corrections: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=CORRECTION_COLUMNS))
@@ -200,7 +207,8 @@ def latest_time(stamps) -> dt.datetime | None:
 
 def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
     """Read the store into a :class:`SiteData` (no writes, no computation of numbers: the national
-    aggregates, curves and each unit's plan come from the aggregates step's tables)."""
+    aggregates, curves and each unit's plan come from the aggregates step's tables, the coverage
+    from the measures step's)."""
     frames = {name: _table(db, name) for name in _COLUMNS}
     units = frames.pop("units")
     plans = frames["plans"]
@@ -208,6 +216,10 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
     derived = {name: aggregates.read(db, name) for name in aggregates.TABLES}
     derived["unit_plans"]["inferred"] = derived["unit_plans"]["inferred"].fillna(0).astype(int)
     loaded = frames["loads"][frames["loads"]["outcome"] == "loaded"]
+    # coverage and vote shares as the last recompute stored them, on every tails row
+    stored = stored_coverage(db)
+    cover = coverage_columns(stored.units)
+    frames["tails"] = with_unit_coverage(frames["tails"], cover, ["incomplete"])
     data = SiteData(
         parties={code: config.party(code) for code in ("a", "b")},
         policy=config.policy,
@@ -235,6 +247,10 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
         seats_votes=derived["seats_votes"],
         corrections=corrections(db),
         base_url=config["site.base_url"],
+        coverage=with_shares(stored.units),
+        coverage_export=cover,
+        coverage_gaps=stored.gaps,
+        min_coverage=config["flags.min_coverage"],
     )
     data.state_slugs = unique_slugs(units["state"])
     data.chamber_slugs = unique_slugs(units["chamber"])

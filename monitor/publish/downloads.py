@@ -19,6 +19,7 @@ from collections.abc import Iterator
 
 import pandas as pd
 
+from monitor.exports import COVERAGE_FIELDS, EXPECTED_SEATS_FIELDS, GAP_FIELDS, KEYS, TAILS_FIELDS
 from monitor.national import HISTOGRAM_FIELDS, SUMMARY_FIELDS
 from monitor.publish import formats as F
 from monitor.publish.collect import SiteData
@@ -29,9 +30,6 @@ FRICTIONLESS_TYPES = {"string", "number", "integer", "boolean", "object", "array
 
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
-
-KEYS = [("cycle", "integer", "election year"), ("state", "string", "state code as loaded"),
-        ("chamber", "string", "chamber code as loaded (federal, state_lower, ...)")]
 
 
 RESOURCES: list[dict] = [
@@ -52,34 +50,33 @@ RESOURCES: list[dict] = [
                 ("decides", "boolean", "the contest that decides its seat (one per seat; the others are history)")]},
     {"name": "measures", "title": "Measures per state, chamber and cycle",
      "description": "One row per unit and measure. Signed measures are positive when they favour party a. "
-                    "low/high: 95% interval where given; reason: why a value is undefined.",
+                    "low/high: 95% interval where given; reason: why a value is undefined. Each unit's coverage "
+                    "and vote shares are in the coverage download (levelfield export measures repeats them on "
+                    "every row).",
      "fields": [*KEYS, ("measure", "string", "measure name (see the methods page)"), ("value", "number", "value"),
                 ("low", "number", "95% interval, low end"), ("high", "number", "95% interval, high end"),
                 ("p_value", "number", "p-value where the measure has a test"),
                 ("reason", "string", "why the value is undefined"), ("method_version", "string", "method version"),
                 ("policy", "string", "uncontested policy the value was computed under")]},
+    {"name": "coverage", "title": "Coverage and vote shares per state, chamber and cycle",
+     "description": "One row per unit: the districts and seats it should have and those that enter the measures, "
+                    "whether it is incomplete and what is missing or left out (and why), and party a's two-party "
+                    "vote share as cast and after the uncontested policy, for the state and nationwide. The same "
+                    "columns as levelfield export coverage (and the columns export measures adds after reason).",
+     "fields": [*KEYS, *COVERAGE_FIELDS]},
+    {"name": "coverage-gaps", "title": "Districts missing or left out of the measures",
+     "description": "One row per district of a unit that is missing (results in the previous cycle of the same "
+                    "plan, none now; or more districts expected than stored) or left out of the measures, with "
+                    "why. The same columns as levelfield export coverage --districts.",
+     "fields": GAP_FIELDS},
     {"name": "expected-seats", "title": "Expected seats from the national pool",
      "description": "Seats of party a against delegations of the same size and statewide vote drawn from the "
                     "cycle's districts nationwide. excess_seats = seats_a - expected_seats (positive favours a).",
-     "fields": [*KEYS, ("districts", "integer", "districts of the unit"), ("vote_share", "number", "party a's statewide two-party share"),
-                ("seats_a", "number", "seats won by party a"), ("expected_seats", "number", "expected seats of party a"),
-                ("low", "number", "95% interval of the expected seats, low end"), ("high", "number", "high end"),
-                ("percentile", "number", "percentile (0-1) of the actual seats among the simulated delegations"),
-                ("excess_seats", "number", "actual minus expected seats"), ("draws", "integer", "accepted simulated delegations"),
-                ("ess", "number", "effective sample size"), ("mc_se", "number", "Monte Carlo standard error of the expected seats"),
-                ("reason", "string", "why no expectation could be computed"), ("method_version", "string", "method version")]},
+     "fields": EXPECTED_SEATS_FIELDS},
     {"name": "flagged-units", "title": "National tails: every unit and measure judged",
      "description": "Each measure of each unit against its national-pool null (percentiles are fractions 0-1). "
                     "flagged units favour the party in favours.",
-     "fields": [*KEYS, ("measure", "string", "measure judged"), ("value", "number", "the unit's value"),
-                ("null_percentile", "number", "percentile within its national-pool null"),
-                ("null_low", "number", "lower tail bound of the null"), ("null_high", "number", "upper tail bound of the null"),
-                ("p_value", "number", "the measure's own p-value where it is judged by one"),
-                ("cross_percentile", "number", "percentile among the states of the cycle and chamber"),
-                ("robust_z", "number", "robust z (median and MAD) within the cycle and chamber"),
-                ("flagged", "boolean", "flagged at the tails"), ("favours", "string", "a | b when flagged"),
-                ("basis", "string", "null tail | p-value"), ("plan_id", "string", "plan in force"),
-                ("reason", "string", "why the unit was not judged")]},
+     "fields": TAILS_FIELDS},
     {"name": "flags", "title": "Flag history",
      "description": "Every flag raised or cleared, and every plan put on or taken off the watch list, with why and "
                     "the load that caused it.",
@@ -137,6 +134,10 @@ def _frame(data: SiteData, name: str) -> pd.DataFrame:
         return data.results
     if name == "measures":
         return data.measures
+    if name == "coverage":
+        return data.coverage_export
+    if name == "coverage-gaps":
+        return data.coverage_gaps
     if name == "expected-seats":
         return data.pool
     if name == "flagged-units":

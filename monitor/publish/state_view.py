@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import pandas as pd
 
+from monitor.coverage import summary as coverage_summary
 from monitor.inputs import UNIT_KEYS
 from monitor.measures import registry
 from monitor.publish import charts as C
@@ -66,6 +67,8 @@ class StatePage:
             "undefined": self._undefined_reasons(state, chamber) if not charts else [],
             "swing": swing, "swing_cycle": int(points["cycle"].iloc[0]) if not points.empty else None,
             "table": self._measure_table(state, chamber, units),
+            "coverage": self._coverage(state, chamber), "min_coverage": F.share(d.min_coverage, 0),
+            "vote": self._vote_headline(state, chamber),
             "results": self._results(state, chamber),
             "events": self._events(events, root),
             "corrections": self._corrections(state, chamber),
@@ -134,13 +137,47 @@ class StatePage:
                 flags.setdefault(int(cycle), []).append(f"{d.label(name)} ({self.party(direction)})")
         rows = []
         for cycle, cert in sorted(zip(units["cycle"].astype(int), units["certification"]), reverse=True):
+            incomplete = (cycle, state, chamber) in self._incomplete_units
+            flagged = ", ".join(flags.get(cycle, []))
+            if flagged and incomplete:  # a flag on a unit the measures do not wholly cover says so
+                flagged += " (on an incomplete unit: see coverage)"
             row = [cells.get((cycle, name), F.DASH) for name in present]
-            row += [excess.get(cycle, F.DASH), ", ".join(flags.get(cycle, [])) or F.DASH]
-            rows.append({"cycle": cycle, "unofficial": cert == "unofficial", "cells": row})
+            row += [excess.get(cycle, F.DASH), flagged or F.DASH]
+            rows.append({"cycle": cycle, "unofficial": cert == "unofficial", "incomplete": incomplete, "cells": row})
         labels = {"vote_share": f"{d.label('vote_share')}, two-party, after the uncontested policy",
                   "seat_share": f"{d.label('seat_share')}, districts in the measures"}
         return {"columns": [labels.get(n) or d.label(n) for n in present] + ["Excess seats (national pool)", "Flags"],
                 "rows": rows}
+
+    def _coverage(self, state: str, chamber: str) -> list[dict]:
+        """Each cycle's coverage, newest first: what the measures cover, what is missing or left
+        out and why, and whether the unit is below flags.min_coverage (never flagged)."""
+        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
+        gaps = self.by("coverage_gaps", ("state", "chamber"), (state, chamber))
+        by_cycle = {int(c): g for c, g in gaps.groupby("cycle")} if len(gaps) else {}
+        rows = []
+        for r in cov.sort_values("cycle", ascending=False).to_dict("records"):
+            cycle = int(r["cycle"])
+            share = r["seat_coverage"]
+            g = by_cycle.get(cycle, gaps.iloc[0:0])
+            rows.append({
+                "cycle": cycle, "summary": coverage_summary(r), "incomplete": int(r["incomplete"]) == 1,
+                "share": F.share(share, 0),
+                "never_flagged": not F.missing(share) and float(share) < self.d.min_coverage,
+                "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats), "reason": reason}
+                         for dist, seats, gap, reason in zip(g["district"], g["seats"], g["gap"], g["reason"])],
+            })
+        return rows
+
+    def _vote_headline(self, state: str, chamber: str) -> dict | None:
+        """The latest cycle's two vote shares of party a, each named: as cast and after the policy."""
+        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
+        if cov.empty:
+            return None
+        r = cov.sort_values("cycle").iloc[-1]
+        return {"cycle": int(r["cycle"]), "as_cast": F.share(r["vote_share_as_cast"]),
+                "after_policy": F.share(r["vote_share_after_policy"]), "policy": self.d.policy,
+                "differ": F.share(r["vote_share_as_cast"]) != F.share(r["vote_share_after_policy"])}
 
     def _corrections(self, state: str, chamber: str) -> list[dict]:
         """The corrections of this state and chamber, newest first, with what each changed."""

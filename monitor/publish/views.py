@@ -120,7 +120,7 @@ class Views(StatePage):
 
     def _watch_rows(self, watch: pd.DataFrame, root: str) -> list[dict]:
         rows = []
-        unofficial = self._unofficial_units
+        unofficial, incomplete = self._unofficial_units, self._incomplete_units
         for r in watch.itertuples():
             severity, stake = _severity_and_stake(r.severity, r.seats_at_stake)
             cycles = str(r.cycles or "").split()
@@ -133,7 +133,8 @@ class Views(StatePage):
                 "seats_at_stake": stake, "stake_sort": _num(r.seats_at_stake),
                 "concurring": F.count(r.concurring), "concurring_sort": _num(r.concurring),
                 "measures": [SHORT.get(m, m.replace("_", " ")) for m in F.text(r.measures).split()],
-                "cycles": [{"cycle": c, "unofficial": (int(c), r.state, r.chamber) in unofficial} for c in cycles],
+                "cycles": [{"cycle": c, "unofficial": (int(c), r.state, r.chamber) in unofficial,
+                            "incomplete": (int(c), r.state, r.chamber) in incomplete} for c in cycles],
                 "cycles_count": len(cycles),
                 "unofficial_cycles": [c for c in cycles if (int(c), r.state, r.chamber) in unofficial],
                 "since": "" if F.missing(r.since) else str(int(r.since)),
@@ -147,6 +148,15 @@ class Views(StatePage):
             u = self.d.units[self.d.units["certification"] == "unofficial"]
             self._unofficial_cache = {(int(c), s, ch) for c, s, ch in zip(u["cycle"], u["state"], u["chamber"])}
         return self._unofficial_cache
+
+    @property
+    def _incomplete_units(self) -> set:
+        """(cycle, state, chamber) of every unit with districts missing or left out of its measures."""
+        if not hasattr(self, "_incomplete_cache"):
+            c = self.d.coverage
+            c = c[c["incomplete"].astype(int) == 1] if len(c) else c
+            self._incomplete_cache = {(int(x), s, ch) for x, s, ch in zip(c["cycle"], c["state"], c["chamber"])}
+        return self._incomplete_cache
 
     @property
     def _pairs(self) -> set:
@@ -249,7 +259,7 @@ class Views(StatePage):
                 "seats_a": F.number(r["seats_a"], 1), "seats_b": F.number(r["seats_b"], 1),
                 "seats_other": F.number(r["seats_other"], 1) if r["seats_other"] else "",
                 "votes_a": F.count(r["votes_a"]), "votes_b": F.count(r["votes_b"]),
-                "vote_share": F.share(r["vote_share"]),
+                "vote_share": F.share(r["vote_share"]), "vote_share_as_cast": F.share(r["vote_share_as_cast"]),
                 "uncontested": F.count(r["uncontested"]), "competitive": F.count(r["competitive"]),
                 "partial": (f"over the {F.count(r['measured_units'])} of {F.count(r['states'])} states with stored "
                             "measures") if partial else "",
@@ -317,7 +327,8 @@ class Views(StatePage):
                 by = by.assign(drawer=[self.drawer_group(k) for k in by["drawer"]])
                 drawer_chart = C.excess_by_drawer(f"drawer-{slug}", by, self.style, cycle, label)
             earlier = [c for c in d.chamber_cycles(chamber) if c < cycle]
-            states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber)}
+            states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber),
+                       "incomplete": (int(cycle), s, chamber) in self._incomplete_units}
                       for s in sorted(units.loc[units["chamber"] == chamber, "state"])]
             sections.append({"chamber": label, "charts": charts, "pool": pool_chart, "drawer": drawer_chart,
                              "states": states, "summary": self._national_rows(chamber, earlier[-1:] + [cycle]),
@@ -363,4 +374,8 @@ def _num(value) -> str:
 def _setting(value) -> str:
     if isinstance(value, bool):
         return "true" if value else "false"
+    if isinstance(value, dict):  # coverage.expected, the one table option: chamber.STATE = count
+        return "; ".join(f"{chamber}.{state} = " + (
+            ", ".join(f"{k} {v}" for k, v in count.items()) if isinstance(count, dict) else f"{count} districts")
+            for chamber, states in value.items() for state, count in states.items()) or "none"
     return str(value)

@@ -130,6 +130,10 @@ def test_a_watcher_and_two_manual_loads_at_once_land_every_file_exactly_once(wor
 def test_two_recomputes_at_once_record_each_flag_event_once(workspace, tmp_path):
     data = tmp_path / "results.csv"
     write_results(data, Shape(states=6, districts=30), seed=4)
+    # a third of these random districts go to the minor party: keep such units flaggable (the
+    # coverage rule, flags.min_coverage, is not what this test is about)
+    with workspace.config_path.open("a", encoding="utf-8") as fh:
+        fh.write("\n[flags]\nmin_coverage = 0.0\n")
     env = {k: v for k, v in os.environ.items() if k != ENV_VAR}
     assert subprocess.run([sys.executable, "-m", "monitor", "-w", str(workspace.root), "load", str(data)],
                           capture_output=True, env=env).returncode == 0

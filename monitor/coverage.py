@@ -1,0 +1,358 @@
+"""Coverage of every unit: how much of a state's chamber the measures see, and why not all of it.
+
+For each unit (cycle, state, chamber) with stored results:
+
+* **expected**: the districts and seats the unit should have, from the first source that says:
+  the plans file (optional ``districts``/``seats`` of the plan era in force), else the previous
+  cycle of the same plan (its stored districts and seats), else ``[coverage] expected`` in
+  levelfield.toml, else unknown (said plainly);
+* **stored** and **in the measures**: the districts and seats with results, and those that enter
+  the measures;
+* **gaps**: each district missing (in the previous cycle of the same plan, absent now; or, when
+  the codes are not known, a count above what is stored) or left out, with its reason from
+  :func:`monitor.eligibility.classify`, the one place that decides what enters the measures;
+* **seat_coverage**: seats in the measures over the seats the unit should have (the expected
+  seats, or the stored and missing seats when they are more); ``incomplete`` when any district is
+  missing or left out;
+* the **two vote shares** of party a: the two-party share of the votes as cast (the raw votes of
+  the contests that decide the seats: what the public quotes) and the share after the
+  uncontested policy (the districts in the measures, imputed votes included: what the measures
+  use, equal to the measures' ``vote_share``).
+
+Computed with the measures (``levelfield compute``) and stored in ``coverage`` and
+``coverage_gaps``; the exports, the flags, ``status`` and the site read the stored rows.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from monitor.eligibility import ENTERS, classify, deciding
+from monitor.reduce import two_party_inputs
+from store import coverage as tables
+
+UNIT_KEYS = ["cycle", "state", "chamber"]
+MISSING, LEFT_OUT = "missing", "left out"
+UNKNOWN = "unknown"
+#: how many district codes a note lists per reason before "and N more"
+NOTE_CODES = 8
+
+
+@dataclass
+class Coverage:
+    """``units``: one row per unit (the ``coverage`` columns); ``gaps``: one row per missing or
+    left-out district (the ``coverage_gaps`` columns)."""
+
+    units: pd.DataFrame
+    gaps: pd.DataFrame
+
+
+def unit_coverage(contests: pd.DataFrame, policy: str, winner_share: float, unit_plans: pd.DataFrame,
+                  plan_counts: pd.DataFrame, declared: pd.DataFrame) -> Coverage:
+    """Pure step: the coverage of every unit of ``contests``.
+
+    ``contests``: every current contest with its reduction (:func:`monitor.inputs.reduced_contests`);
+    ``unit_plans``: cycle, state, chamber, plan_id (the plan in force); ``plan_counts``: state,
+    chamber, plan_id, districts, seats (from the plans file, null when not given); ``declared``:
+    state, chamber, districts, seats (``[coverage] expected``)."""
+    unit_cols = [c for c in tables.UNIT_COLUMNS if c not in ("policy", "computed_at")]
+    if contests.empty:
+        return Coverage(pd.DataFrame(columns=unit_cols), pd.DataFrame(columns=tables.GAP_COLUMNS))
+    c = contests.reset_index(drop=True)
+    reason = classify(c, policy).to_numpy(object)
+    decides = deciding(c)
+    units = (c[["unit_id", *UNIT_KEYS]].drop_duplicates("unit_id").sort_values(UNIT_KEYS, kind="mergesort")
+             .reset_index(drop=True))
+    n = len(units)
+    u = pd.Index(units["unit_id"]).get_indexer(c["unit_id"])   # unit index of each contest
+    dc, _ = pd.factorize(c["district"])                        # district code of each contest
+    # one row per district: its deciding contest when one is stored, else its (special) contest
+    order = np.lexsort((~decides, dc, u))
+    head = np.r_[True, (u[order][1:] != u[order][:-1]) | (dc[order][1:] != dc[order][:-1])]
+    first = order[head]
+    d = c.iloc[first].assign(reason=reason[first], measured=reason[first] == ENTERS,
+                             seats=c["seats"].to_numpy(int)[first], u=u[first], dc=dc[first])
+    du, seats, measured = d["u"].to_numpy(), d["seats"].to_numpy(int), d["measured"].to_numpy(bool)
+    units["districts_stored"] = np.bincount(du, minlength=n)
+    units["seats_stored"] = np.bincount(du, seats, n).astype(np.int64)
+    units["districts_measured"] = np.bincount(du[measured], minlength=n)
+    units["seats_measured"] = np.bincount(du, seats * measured, n).astype(np.int64)
+    # votes as cast: the raw votes of the deciding contests; after the policy: the measures' inputs
+    units["votes_a_cast"] = np.bincount(u[decides], c["votes_a"].to_numpy(float)[decides], n).astype(np.int64)
+    units["votes_b_cast"] = np.bincount(u[decides], c["votes_b"].to_numpy(float)[decides], n).astype(np.int64)
+    used = two_party_inputs(c[decides], policy, winner_share)
+    uu = u[used.index.to_numpy()]
+    units["votes_a_measured"] = np.bincount(uu, used["votes_a"].to_numpy(float), n)
+    units["votes_b_measured"] = np.bincount(uu, used["votes_b"].to_numpy(float), n)
+
+    units, missing = _previous_cycle(units, d, unit_plans)
+    units = _expected(units, plan_counts, declared)
+    gaps = _gaps(units, missing, d[~measured])
+    units = _summarise(units, gaps)
+    return Coverage(units[unit_cols].reset_index(drop=True), gaps)
+
+
+def _previous_cycle(units: pd.DataFrame, d: pd.DataFrame, unit_plans: pd.DataFrame):
+    """Each unit's previous cycle under the same plan, its district and seat counts, and the
+    districts it had that the unit lacks (named missing districts). ``units`` are sorted by
+    cycle, state, chamber; ``d`` has one row per stored district with its unit index ``u`` and
+    district code ``dc``."""
+    n = len(units)
+    plans = unit_plans[[*UNIT_KEYS, "plan_id"]] if len(unit_plans) else pd.DataFrame(columns=[*UNIT_KEYS, "plan_id"])
+    units = units.merge(plans, on=UNIT_KEYS, how="left")
+    chrono = units.sort_values(["state", "chamber", "cycle"], kind="mergesort")
+    by = chrono.groupby(["state", "chamber"], sort=False)
+    prev_index, prev_plan = by.cumcount(), by["plan_id"].shift(1)
+    previous = np.full(n, -1)
+    later = (prev_index > 0).to_numpy() & (prev_plan.notna() & (prev_plan == chrono["plan_id"])).to_numpy()
+    rows = chrono.index.to_numpy()
+    previous[rows[1:][later[1:]]] = rows[:-1][later[1:]]   # chrono's previous row is the previous cycle
+    cycles = units["cycle"].to_numpy()
+    units["previous_cycle"] = pd.array([cycles[p] if p >= 0 else pd.NA for p in previous], dtype="Int64")
+    # each unit is the previous of at most one unit: carry the previous unit's districts over to it
+    next_of = np.full(n, -1)
+    next_of[previous[previous >= 0]] = np.flatnonzero(previous >= 0)
+    du, dc, seats = d["u"].to_numpy(), d["dc"].to_numpy(), d["seats"].to_numpy(int)
+    target = next_of[du]
+    carried = target >= 0
+    has = previous >= 0
+    units["previous_districts"] = pd.Series(np.bincount(target[carried], minlength=n), dtype="Int64").where(has)
+    units["previous_seats"] = pd.Series(np.bincount(target[carried], seats[carried], n).astype(np.int64),
+                                        dtype="Int64").where(has)
+    width = int(dc.max()) + 1 if len(dc) else 1
+    present = du.astype(np.int64) * width + dc
+    absent = carried & ~np.isin(target.astype(np.int64) * width + dc, present)
+    t = target[absent]
+    missing = pd.DataFrame({"cycle": units["cycle"].to_numpy()[t], "state": units["state"].to_numpy()[t],
+                            "chamber": units["chamber"].to_numpy()[t],
+                            "previous_cycle": cycles[du[absent]],
+                            "district": d["district"].to_numpy()[absent], "seats": seats[absent]})
+    return units, missing
+
+
+def _expected(units: pd.DataFrame, plan_counts: pd.DataFrame, declared: pd.DataFrame) -> pd.DataFrame:
+    """districts_expected, seats_expected and expected_from: the plans file, else the previous
+    cycle of the same plan, else levelfield.toml, else unknown."""
+    plan = plan_counts.rename(columns={"districts": "plan_districts", "seats": "plan_seats"})
+    units = units.merge(plan[["state", "chamber", "plan_id", "plan_districts", "plan_seats"]],
+                        on=["state", "chamber", "plan_id"], how="left")
+    units = units.merge(declared.rename(columns={"districts": "declared_districts", "seats": "declared_seats"}),
+                        on=["state", "chamber"], how="left")
+    from_plan = units["plan_districts"].notna().to_numpy()
+    from_previous = ~from_plan & units["previous_districts"].notna().to_numpy()
+    from_config = ~from_plan & ~from_previous & units["declared_districts"].notna().to_numpy()
+    pick = lambda a, b, c: np.select([from_plan, from_previous, from_config],  # noqa: E731
+                                     [units[a].astype(float), units[b].astype(float), units[c].astype(float)], np.nan)
+    units["districts_expected"] = pd.array(pick("plan_districts", "previous_districts", "declared_districts"), dtype="Int64")
+    units["seats_expected"] = pd.array(pick("plan_seats", "previous_seats", "declared_seats"), dtype="Int64")
+    units["expected_from"] = np.select(
+        [from_plan, from_previous, from_config],
+        ["plans file (plan " + units["plan_id"].astype(str) + ")",
+         "the " + units["previous_cycle"].astype(str) + " results of the same plan",
+         pd.Series("levelfield.toml [coverage] expected", index=units.index)], UNKNOWN)
+    return units
+
+
+def _gaps(units: pd.DataFrame, missing: pd.DataFrame, left_out: pd.DataFrame) -> pd.DataFrame:
+    """Every missing or left-out district of every unit, with its reason."""
+    rows = [missing.assign(gap=MISSING, reason=lambda m: "in the " + m["previous_cycle"].astype(str)
+                           + " results of the same plan; no result stored for this cycle")]
+    named = missing.groupby(UNIT_KEYS).agg(named=("district", "size"), named_seats=("seats", "sum"))
+    u = units.merge(named.reset_index(), on=UNIT_KEYS, how="left").fillna({"named": 0, "named_seats": 0})
+    known = u["districts_expected"].notna()
+    extra = (u["districts_expected"].astype(float) - u["districts_stored"] - u["named"]).where(known, 0).clip(lower=0)
+    extra_seats = (u["seats_expected"].astype(float) - u["seats_stored"] - u["named_seats"]).where(known, 0).clip(lower=0)
+    more = u[extra > 0].assign(extra=extra[extra > 0].astype(int), extra_seats=extra_seats[extra > 0].astype(int))
+    if len(more):
+        rows.append(pd.DataFrame({
+            **{k: more[k].to_numpy() for k in UNIT_KEYS}, "district": "", "seats": more["extra_seats"].to_numpy(),
+            "gap": MISSING,
+            "reason": [f"{n} more district{'s' if n != 1 else ''} expected ({src}) than stored; which is not known"
+                       for n, src in zip(more["extra"], more["expected_from"])]}))
+    rows.append(left_out[[*UNIT_KEYS, "district", "seats", "reason"]].assign(gap=LEFT_OUT))
+    gaps = pd.concat([r[tables.GAP_COLUMNS] for r in rows], ignore_index=True)
+    gaps["cycle"] = gaps["cycle"].astype(int)
+    gaps["seats"] = gaps["seats"].astype(int)
+    order = gaps.assign(_k=(gaps["gap"] == LEFT_OUT).astype(int))
+    return (order.sort_values([*UNIT_KEYS, "_k", "district"], kind="mergesort")
+            .drop(columns="_k").reset_index(drop=True))
+
+
+def _summarise(units: pd.DataFrame, gaps: pd.DataFrame) -> pd.DataFrame:
+    """seat_coverage, incomplete and the plain-words note of every unit."""
+    missing = gaps[gaps["gap"] == MISSING].groupby(UNIT_KEYS)["seats"].sum()
+    key = pd.MultiIndex.from_frame(units[UNIT_KEYS])
+    should = np.maximum(units["seats_expected"].astype(float).fillna(0).to_numpy(),
+                        units["seats_stored"].to_numpy(float) + missing.reindex(key).fillna(0).to_numpy(float))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        units["seat_coverage"] = np.where(should > 0, units["seats_measured"].to_numpy(float) / should, np.nan)
+    notes = notes_by_unit(gaps)
+    units["note"] = [notes.get(k) for k in zip(units["cycle"], units["state"], units["chamber"])]
+    units["incomplete"] = units["note"].notna().astype(int)
+    return units.sort_values(UNIT_KEYS, kind="mergesort")
+
+
+def notes_by_unit(gaps: pd.DataFrame) -> dict[tuple, str]:
+    """What is missing and what is left out of each unit, and why, in plain words (one pass over
+    the gaps): ``missing: district 7 (in the 2010 results ...); left out: districts 3, 9 (won by a
+    minor party or an independent)``."""
+    grouped: dict[tuple, list[str]] = {}  # (unit keys, gap, reason) -> district codes, in order
+    for key in zip(*(gaps[k].tolist() for k in (*UNIT_KEYS, "gap", "reason", "district"))):
+        grouped.setdefault(key[:-1], []).append(key[-1])
+    parts: dict[tuple, dict[str, list[str]]] = {}
+    for (cycle, state, chamber, gap, reason), codes in grouped.items():
+        codes = [c for c in codes if c]
+        if codes:
+            shown = ", ".join(codes[:NOTE_CODES]) + (f" and {len(codes) - NOTE_CODES} more" if len(codes) > NOTE_CODES else "")
+            text = f"district{'s' if len(codes) > 1 else ''} {shown} ({reason})"
+        else:
+            text = reason
+        parts.setdefault((cycle, state, chamber), {}).setdefault(gap, []).append(text)
+    return {key: "; ".join(f"{gap}: " + "; ".join(by_gap[gap]) for gap in (MISSING, LEFT_OUT) if gap in by_gap)
+            for key, by_gap in parts.items()}
+
+
+# --- shares --------------------------------------------------------------------------------------
+def two_party_share(a, b) -> np.ndarray:
+    """a / (a + b), NaN where there is no two-party vote."""
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(a + b > 0, a / (a + b), np.nan)
+
+
+def with_shares(units: pd.DataFrame) -> pd.DataFrame:
+    """The stored coverage rows with ``vote_share_as_cast`` and ``vote_share_after_policy``."""
+    return units.assign(vote_share_as_cast=two_party_share(units["votes_a_cast"], units["votes_b_cast"]),
+                        vote_share_after_policy=two_party_share(units["votes_a_measured"], units["votes_b_measured"]))
+
+
+def national_shares(units: pd.DataFrame) -> pd.DataFrame:
+    """Per (cycle, chamber): party a's two-party share nationwide, as cast and after the policy
+    (sums of the units' votes)."""
+    cols = ["cycle", "chamber", "national_vote_share_as_cast", "national_vote_share_after_policy"]
+    if units.empty:
+        return pd.DataFrame(columns=cols)
+    s = units.groupby(["cycle", "chamber"])[["votes_a_cast", "votes_b_cast", "votes_a_measured", "votes_b_measured"]].sum()
+    s = s.reset_index()
+    s["national_vote_share_as_cast"] = two_party_share(s["votes_a_cast"], s["votes_b_cast"])
+    s["national_vote_share_after_policy"] = two_party_share(s["votes_a_measured"], s["votes_b_measured"])
+    return s[cols]
+
+
+# --- in words --------------------------------------------------------------------------------------
+def percent(share) -> str:
+    return "unknown" if share is None or not np.isfinite(float(share)) else f"{100 * float(share):.0f}%"
+
+
+def summary(row) -> str:
+    """One unit's coverage in a sentence: ``11 of 12 districts in the measures (92% of the 12
+    seats; 12 expected from the 2010 results of the same plan)``."""
+    expected = row["districts_expected"]
+    known = expected is not None and not pd.isna(expected)
+    of = int(expected) if known else int(row["districts_stored"])
+    seats = _seats_of(row)
+    text = (f"{int(row['districts_measured'])} of {of} district{'s' if of != 1 else ''} in the measures "
+            f"({int(row['seats_measured'])} of {seats} seats, {percent(row['seat_coverage'])}; ")
+    if known:
+        text += f"{int(expected)} districts expected from {row['expected_from']})"
+    else:
+        text += f"{int(row['districts_stored'])} stored, the number expected is unknown)"
+    return text
+
+
+def _seats_of(row) -> str:
+    """The seats the coverage share is taken of (as :func:`_summarise` computes it)."""
+    share, measured = row["seat_coverage"], int(row["seats_measured"])
+    if share is None or pd.isna(share) or float(share) == 0:
+        return str(int(row["seats_stored"]))
+    return f"{measured / float(share):.0f}"
+
+
+def below_minimum(units: pd.DataFrame, minimum: float) -> pd.Series:
+    """True where the measures cover less than ``minimum`` of the unit's seats (never flagged)."""
+    share = pd.to_numeric(units["seat_coverage"], errors="coerce").astype(float)
+    return share.fillna(0.0) < minimum
+
+
+def not_flagged_reason(share: float, minimum: float) -> str:
+    return (f"the measures cover {percent(share)} of the seats, below flags.min_coverage "
+            f"({percent(minimum)}): not flagged")
+
+
+def coverage_lines(units: pd.DataFrame, minimum: float, detail: int = 0) -> list[str]:
+    """The coverage in a few lines: how many units are incomplete and how many are below
+    ``flags.min_coverage``; with ``detail``, that many incomplete units listed (those below the
+    minimum first, then the newest cycles), each with what is missing or left out and why."""
+    if units.empty:
+        return []
+    low = below_minimum(units, minimum)
+    incomplete = units["incomplete"].astype(int) == 1
+    out = [f"coverage: {int(incomplete.sum())} of {len(units)} unit(s) incomplete (districts missing or left out "
+           f"of the measures); {int(low.sum())} cover less than {percent(minimum)} of their seats (never flagged)"]
+    if detail and incomplete.any():
+        # cycles of one state and chamber with the same gaps are one line
+        shown = units[incomplete].assign(_low=low[incomplete].astype(int))
+        groups = []
+        for _, part in shown.groupby(["state", "chamber", "note"], sort=False):
+            part = part.sort_values("cycle")
+            groups.append((-int(part["_low"].max()), -int(part["cycle"].max()), part))
+        groups.sort(key=lambda g: (g[0], g[1], g[2]["state"].iloc[0], g[2]["chamber"].iloc[0]))
+        for _, _, part in groups[:detail]:
+            r = part.iloc[-1]
+            cycles = (str(int(r["cycle"])) if len(part) == 1 else
+                      f"{len(part)} cycles {int(part['cycle'].min())}-{int(r['cycle'])}")
+            flag = " [never flagged: below flags.min_coverage]" if part["_low"].any() else ""
+            latest = f"; latest {int(r['cycle'])}: " if len(part) > 1 else ": "
+            out.append(f"  {r['state']} {r['chamber']} {cycles}: {r['note']}{latest}{summary(r)}{flag}")
+        if len(groups) > detail:
+            out.append(f"  ... and {len(groups) - detail} more (levelfield export coverage --districts)")
+    return out
+
+
+# --- the edges: read the store, write it -----------------------------------------------------------
+def declared_counts(config) -> pd.DataFrame:
+    """``[coverage] expected`` as rows: state, chamber, districts, seats (seats default to the
+    districts). State and chamber codes follow the results' case rules."""
+    from monitor.ingest.records import normalise_chamber, normalise_state
+
+    rows = []
+    for chamber, states in (config["coverage.expected"] or {}).items():
+        for state, count in states.items():
+            districts = count["districts"] if isinstance(count, dict) else count
+            seats = count.get("seats", districts) if isinstance(count, dict) else count
+            rows.append((normalise_state(state), normalise_chamber(chamber), int(districts), int(seats)))
+    return pd.DataFrame(rows, columns=["state", "chamber", "districts", "seats"])
+
+
+def compute_coverage(db, config, contests: pd.DataFrame) -> Coverage:
+    """The coverage of every unit of ``contests`` (read in the caller's snapshot) with the plans
+    and counts the store and the configuration declare."""
+    from monitor.plans import assign_plans
+
+    units = contests[UNIT_KEYS].drop_duplicates()
+    unit_plans, _ = assign_plans(db, units)
+    return unit_coverage(contests, config["uncontested.policy"], config["uncontested.winner_share"], unit_plans,
+                         tables.plan_counts(db), declared_counts(config))
+
+
+def write_coverage(conn, cov: Coverage, policy: str, stamp: str) -> None:
+    """Replace the stored coverage (inside the caller's transaction)."""
+    units = cov.units.assign(policy=policy, computed_at=stamp)[tables.UNIT_COLUMNS]
+    tables.replace_coverage(conn, [tuple(_plain(v) for v in r) for r in units.itertuples(index=False)],
+                            [tuple(_plain(v) for v in r) for r in cov.gaps.itertuples(index=False)])
+
+
+def stored_coverage(db) -> Coverage:
+    """The coverage as the last recompute stored it."""
+    return Coverage(tables.read_coverage(db), tables.read_gaps(db))
+
+
+def _plain(value):
+    if value is None or value is pd.NA:
+        return None
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    return value.item() if hasattr(value, "item") else value
