@@ -312,8 +312,9 @@ def watch(ws: Workspace, inbox, every, once, no_publish) -> None:
 def verify(ws: Workspace) -> None:
     """Recompute everything from scratch and compare it with what is stored.
 
-    Measures, national pool, tails, flags and watch list are recomputed on a scratch copy of the
-    store (in a temporary folder; the workspace is only read) and every difference is printed,
+    Contest reductions, measures, coverage, national pool, tails, flags, watch list and the
+    aggregates the site shows are recomputed on a scratch copy of the store (in a temporary
+    folder; the results in the workspace are only read) and every difference is printed,
     as a changed method version or as a bug. Exit 0 when there is none, 1 when there are
     differences (`levelfield compute --full` then brings the store up to date).
     """
@@ -330,8 +331,8 @@ def verify(ws: Workspace) -> None:
     if differences:
         click.echo(f"{summary(differences)}; `levelfield compute --full` recomputes the store", err=True)
         sys.exit(1)
-    click.echo("no difference: the stored measures, national pool, flags and watch list equal a "
-               "from-scratch recompute")
+    click.echo("no difference: the stored reductions, measures, coverage, national pool, flags, watch list and "
+               "aggregates equal a from-scratch recompute")
 
 
 @main.group()

@@ -20,6 +20,14 @@ def _group_codes(values, group):
     return v, live, code.astype(np.int64)
 
 
+def _live_sorted(values, group):
+    """An all-NaN output of the values' shape, the indexes of the non-NaN values, their group codes,
+    the values themselves and their order by (group, value)."""
+    v, live, code = _group_codes(values, group)
+    x = v[live]
+    return np.full(v.shape, np.nan), live, code, x, np.lexsort((x, code))
+
+
 def _sorted_group_median(vs, gs, counts):
     """Median of each group from values sorted by (group, value)."""
     start = np.r_[0, np.cumsum(counts)[:-1]]
@@ -38,12 +46,9 @@ def cross_state_percentile(values, group) -> np.ndarray:
     >>> cross_state_percentile([0.1, 0.3, 0.2, 5.0], [1, 1, 1, 2]).tolist()
     [0.16666666666666666, 0.8333333333333334, 0.5, 0.5]
     """
-    v, live, code = _group_codes(values, group)
-    out = np.full(v.shape, np.nan)
+    out, live, code, x, order = _live_sorted(values, group)
     if live.size == 0:
         return out
-    x = v[live]
-    order = np.lexsort((x, code))
     xs, gs = x[order], code[order]
     counts = np.bincount(gs)
     gstart = np.r_[0, np.cumsum(counts)[:-1]]
@@ -69,12 +74,9 @@ def robust_z(values, group) -> np.ndarray:
     >>> robust_z([1.0, 2.0, 3.0, 4.0, 100.0], [0, 0, 0, 0, 0]).round(3).tolist()
     [-1.349, -0.674, 0.0, 0.674, 65.426]
     """
-    v, live, code = _group_codes(values, group)
-    out = np.full(v.shape, np.nan)
+    out, live, code, x, order = _live_sorted(values, group)
     if live.size == 0:
         return out
-    x = v[live]
-    order = np.lexsort((x, code))
     counts = np.bincount(code[order])
     med = _sorted_group_median(x[order], code[order], counts)
     dev = np.abs(x - med[code])
