@@ -1,5 +1,6 @@
-"""What the measures see: the current single-member contests that decide their seats, in every
-unit, as two-party votes after the uncontested policy, grouped into sorted unit arrays.
+"""What the measures see: the stored reductions (written by :mod:`monitor.reductions`) of the
+current contests that decide their seats, in every unit, as two-party votes after the uncontested
+policy, grouped into sorted unit arrays.
 
 One contest per seat enters: the one the loader marked as deciding it (``contests.decides``:
 the regular contest, its runoff when there is one, or a special that replaced the regular
@@ -16,29 +17,17 @@ import sqlite_utils
 
 from monitor.config import Config
 from monitor.eligibility import deciding
-from monitor.reduce import reduce_contests, two_party_inputs
-from store import queries
+from store import reductions as stored
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
 
 
-def reduced_contests(db: sqlite_utils.Database, where: str = "", params=()) -> pd.DataFrame:
-    """One row per current contest: unit keys, district, special, runoff, decides (whether it
-    decides its seat; else left_out says why), placeholder (no real count), seats and its
-    reduction."""
-    lines = queries.current_votes(db, where, params)
-    if lines.empty:
-        return pd.DataFrame(columns=["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id",
-                                     "district", "seats", "special", "runoff", "decides", "left_out", "placeholder",
-                                     "votes_a", "votes_b", "votes_other",
-                                     "total", "status", "seats_a", "seats_b", "seats_other", "winner",
-                                     "candidates_a", "candidates_b", "candidates_other"])
-    contests = lines.drop_duplicates("contest_id")[
-        ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "seats", "special",
-         "runoff", "decides", "left_out", "placeholder"]
-    ]
-    reduced = reduce_contests(lines, contests[["contest_id", "seats"]]).drop(columns=["seats"])
-    return contests.merge(reduced, on="contest_id", how="left")
+def reduced_contests(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
+    """One row per current contest (of ``cycle`` only, when given): unit keys, district, special,
+    runoff, decides (whether it decides its seat; else left_out says why), placeholder (no real
+    count), seats and its stored reduction (``store.reductions.CONTEST_COLUMNS``), sorted by unit,
+    district, special and runoff."""
+    return stored.current(db, cycle)
 
 
 def deciding_contests(contests: pd.DataFrame) -> pd.DataFrame:
@@ -61,20 +50,21 @@ class UnitArrays:
 
 
 def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "") -> UnitArrays:
-    """Apply the uncontested policy and build the unit arrays, keeping every unit that has
-    current contests (a unit with no eligible contest gets an empty segment: its measures are
-    null with a reason). ``salt`` (settings and method versions) enters every inputs hash."""
+    """The unit arrays of the contests that enter the measures (their stored ``enters``, votes after
+    the policy and ``uncontested`` flag), keeping every unit that has current contests deciding
+    their seats (a unit with no eligible contest gets an empty segment: its measures are null with
+    a reason). ``salt`` (settings and method versions) enters every inputs hash."""
     deciding = deciding_contests(contests)
     units = (deciding[["unit_id", *UNIT_KEYS]].drop_duplicates()
              .sort_values(UNIT_KEYS).reset_index(drop=True))
-    two = two_party_inputs(deciding, config["uncontested.policy"], config["uncontested.winner_share"])
+    two = deciding[deciding["enters"].astype(int) == 1]
     index = pd.Series(units.index, index=units["unit_id"])
     two = two.assign(unit=index.reindex(two["unit_id"]).to_numpy())
     two = two.sort_values(["unit", "district"], kind="mergesort")
     unit = two["unit"].to_numpy(np.int64)
-    va = two["votes_a"].to_numpy(np.float64)
-    vb = two["votes_b"].to_numpy(np.float64)
-    unc = two["uncontested"].to_numpy(bool)
+    va = two["votes_a_used"].to_numpy(np.float64)
+    vb = two["votes_b_used"].to_numpy(np.float64)
+    unc = two["uncontested"].astype(bool).to_numpy(bool)
     units["districts_eligible"] = np.bincount(unit, minlength=len(units))
     units["inputs_hash"] = _hashes(unit, two["district"].to_numpy(object), va, vb, unc, len(units),
                                    f"{config.policy}|{salt}")

@@ -23,12 +23,14 @@ from monitor.ingest.fields import parse_cycle
 from monitor.ingest.native import header_problems
 from monitor.ingest.reader import csv_rows, decode, read_raw
 from monitor.ingest.records import normalise_chamber, normalise_state
+from store import plans as store_plans
 from store import transaction
 
 DRAWN_BY = ("party_a", "party_b", "split", "commission", "court", "other")
 COLUMNS = ("state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "note", "source",
            "districts", "seats")
 REQUIRED = COLUMNS[:6]
+INFERRED_NOTE = "inferred: a new plan assumed from each cycle ending in 2"
 #: optional counts of the plan's districts and seats (seats default to the districts: one seat each)
 COUNTS = ("districts", "seats")
 
@@ -130,16 +132,10 @@ def load_plans(db: sqlite_utils.Database, path: Path) -> dict:
     frame = read_plans(path)
     pairs = sorted(set(zip(frame["state"], frame["chamber"])))
     with transaction(db) as conn:
-        for state, chamber in pairs:
-            conn.execute("DELETE FROM plans WHERE state = ? AND chamber = ?", [state, chamber])
-        conn.executemany(
-            "INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred, "
-            "districts, seats) VALUES (?, ?, ?, ?, ?, ?, ?, ?, 0, ?, ?)",
-            [(r.state, r.chamber, r.plan_id, int(r.first_cycle),
-              None if pd.isna(r.last_cycle) else int(r.last_cycle), r.drawn_by, r.note, r.source,
-              None if pd.isna(r.districts) else int(r.districts), None if pd.isna(r.seats) else int(r.seats))
-             for r in frame.itertuples()],
-        )
+        store_plans.replace_loaded(conn, pairs, [
+            (r.state, r.chamber, r.plan_id, int(r.first_cycle), None if pd.isna(r.last_cycle) else int(r.last_cycle),
+             r.drawn_by, r.note, r.source, None if pd.isna(r.districts) else int(r.districts),
+             None if pd.isna(r.seats) else int(r.seats)) for r in frame.itertuples()])
     return {"plans": len(frame), "state_chambers": len(pairs)}
 
 
@@ -151,10 +147,7 @@ def census_start(cycle: int) -> int:
 def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple]]:
     """For units (cycle, state, chamber): plan_id, drawn_by, inferred. Units outside every loaded
     era get an inferred decade plan; those plans are returned as rows for :func:`write_inferred`."""
-    plans = pd.read_sql_query(
-        "SELECT state, chamber, plan_id, first_cycle, last_cycle, drawn_by FROM plans WHERE inferred = 0",
-        db.conn,
-    )
+    plans = store_plans.loaded(db)
     eras = defaultdict(list)
     for p in plans.itertuples():
         eras[(p.state, p.chamber)].append(p)
@@ -200,9 +193,4 @@ def write_inferred(conn, inferred: list[tuple]) -> None:
     Loaded plans are never touched: only ``inferred = 1`` rows are deleted, and the new rows are
     plain inserts (their ids never equal a loaded plan's, see :func:`inferred_plan_id`; were one
     to, the insert fails and the whole transaction rolls back rather than replace a loaded era)."""
-    conn.execute("DELETE FROM plans WHERE inferred = 1")
-    conn.executemany(
-        "INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
-        "VALUES (?, ?, ?, ?, ?, 'other', 'inferred: a new plan assumed from each cycle ending in 2', NULL, 1)",
-        inferred,
-    )
+    store_plans.replace_inferred(conn, inferred, INFERRED_NOTE)
