@@ -41,7 +41,8 @@ class Option:
 
     @property
     def name(self) -> str:
-        return f"{self.section}.{self.key}"
+        """``section.key``; a whole-section table (``key`` empty, such as ``[states]``) is its section."""
+        return f"{self.section}.{self.key}" if self.key else self.section
 
 
 def _typed(kind, *, low=None, high=None, choices=None, above=None, below=None):
@@ -102,6 +103,23 @@ def _expected_counts(value):
                     return f"{where}: districts and seats must be whole numbers of at least 1"
             elif not _count(count):
                 return f"{where}: must be a whole number of districts (at least 1) or {{ districts = N, seats = M }}"
+    return None
+
+
+def _state_names(value):
+    """``{CODE: "Name"}``: state codes follow the results' case rules (stored in upper case)."""
+    if not isinstance(value, dict):
+        return f'must be a table of state code = "name", like QV = "Quillan Vale", got {value!r}'
+    seen: dict[str, str] = {}
+    for code, name in value.items():
+        if not code.strip() or code != code.strip():
+            return f"has the state code {code!r}: a code has no surrounding spaces and is not empty"
+        if not isinstance(name, str) or not name.strip():
+            return f"has {code} = {name!r}: the name must be a non-empty string"
+        if code.upper() in seen:
+            return (f"names {seen[code.upper()]!r} and {code!r}, the same state code (codes are stored in "
+                    "upper case)")
+        seen[code.upper()] = code
     return None
 
 
@@ -259,10 +277,17 @@ OPTIONS: list[Option] = [
     ),
     Option(
         "site", "base_url", "",
-        "absolute address the published site is served from, e.g. \"https://example.org/watch/\" (optional); "
-        "when set, the Atom feed's rel=\"self\" link is absolute, as RFC 4287 recommends; when empty it is "
-        "relative, so the site works from any folder or address",
+        "absolute address the published site is served from, e.g. \"https://example.org/watch/\"; the Atom "
+        "feed's links are then absolute, so feed readers can follow them; when empty they are relative to "
+        "the feed and publish warns (the pages' own links are always relative)",
         _base_url,
+    ),
+    Option(
+        "states", "", {},
+        "state names shown on the pages beside their codes: CODE = \"name\" (codes as in the results, upper "
+        "case; a state without a name is shown by its code)",
+        _state_names,
+        example=('QV = "Quillan Vale"',),
     ),
 ]
 
@@ -366,6 +391,10 @@ class Config:
             tuple(self[f"parties.{code}.labels"]),
             self[f"parties.{code}.colour"],
         )
+
+    def state_names(self) -> dict[str, str]:
+        """State code (upper case, as stored) -> name, from the ``[states]`` table."""
+        return {code.upper(): name.strip() for code, name in self["states"].items()}
 
     def label_codes(self) -> dict[str, str]:
         """Map each configured label (case-folded, trimmed) to its party code."""

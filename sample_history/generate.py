@@ -723,7 +723,10 @@ colour = "{PARTY_B['colour']}"    # amber
 # seats-votes literature, e.g. Gelman & King 1994, AJPS 38:514-554; from memory).
 policy = "impute"
 winner_share = 0.75
-"""
+
+[states]
+# The invented states' names, shown on the pages beside their codes.
+""" + "".join(f'{code} = "{name}"\n' for code, name, *_ in STATES)
 
 
 def answer_key_rows(plans: list[Plan]) -> list[tuple]:

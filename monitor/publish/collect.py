@@ -236,7 +236,7 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
         watch=frames["watch"],
         plans=plans,
         unit_plans=derived["unit_plans"],
-        state_names=history.state_names(db),
+        state_names={**history.state_names(db), **config.state_names()},
         curves=derived["swing_curves"],
         curve_points=derived["swing_points"],
         histogram=derived["national_histogram"],
@@ -266,7 +266,7 @@ def _table(db: sqlite_utils.Database, name: str) -> pd.DataFrame:
 
 def _settings(config: Config) -> list[dict]:
     """The options in force that shape the numbers (not the party names, load or schedule)."""
-    skip = ("parties.", "load.", "schedule.", "site.")
+    skip = ("parties.", "load.", "schedule.", "site.", "states")
     return [{"name": opt.name, "value": config[opt.name], "default": opt.default, "help": opt.help}
             for opt in OPTIONS if not opt.name.startswith(skip)]
 
