@@ -1,5 +1,12 @@
-"""Downloads: results, measures and flags as CSV and JSON, described by a Frictionless Data
-Package descriptor (``datapackage.json``, Data Package spec v1, https://specs.frictionlessdata.io/).
+"""Downloads: results, measures and flags as CSV, described by a Frictionless Data Package
+descriptor (``datapackage.json``, Data Package spec v1, https://specs.frictionlessdata.io/).
+
+Weight: every table is published once as CSV. The small tables (the watch list, the flag
+history, plans, loads, the national aggregates) also come as JSON; the large per-unit and
+per-vote-line tables do not (a JSON twin of the results alone weighed three times its CSV). The
+district results, the largest table by far, are gzipped (``results.csv.gz``, declared with
+``compression: gz``, which the frictionless validator reads), written with a zero timestamp so
+that the same rows give the same bytes.
 
 CSV cells of text fields that begin with ``=``, ``+``, ``-``, ``@`` (or a tab or carriage return)
 get a leading single quote, so that a spreadsheet does not run them as formulas (OWASP, "CSV
@@ -11,6 +18,7 @@ the original text.
 from __future__ import annotations
 
 import csv
+import gzip
 import hashlib
 import io
 import json
@@ -31,6 +39,11 @@ FRICTIONLESS_TYPES = {"string", "number", "integer", "boolean", "object", "array
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 
+
+#: Tables published without a JSON twin (large: one row per unit, measure or vote line).
+CSV_ONLY = {"results", "measures", "coverage", "coverage-gaps", "expected-seats", "flagged-units"}
+#: Tables published gzipped.
+GZIPPED = {"results"}
 
 RESOURCES: list[dict] = [
     {"name": "results", "title": "District results",
@@ -152,8 +165,8 @@ def _frame(data: SiteData, name: str) -> pd.DataFrame:
         return data.histogram
     if name == "plans":
         return data.plans
-    if name == "loads":
-        return data.loads
+    if name == "loads":  # a refused load stored nothing: it stays in the store and in status, not here
+        return data.loads[data.loads["outcome"] == "loaded"]
     raise KeyError(name)
 
 
@@ -238,29 +251,40 @@ def iter_downloads(data: SiteData, prefix: str, listing: list[dict]) -> Iterator
     for spec in RESOURCES:
         frame = _frame(data, spec["name"])
         base = spec["name"].replace("-", "_")
-        csv_bytes, json_bytes = to_csv(frame, spec["fields"]), to_json(frame, spec["fields"])
-        yield f"{prefix}/{base}.csv", csv_bytes
-        yield f"{prefix}/{base}.json", json_bytes
+        csv_bytes = to_csv(frame, spec["fields"])
+        csv_path = f"{base}.csv"
+        zipped = spec["name"] in GZIPPED
+        if zipped:
+            csv_bytes, csv_path = gzip.compress(csv_bytes, compresslevel=6, mtime=0), f"{base}.csv.gz"
+        yield f"{prefix}/{csv_path}", csv_bytes
         schema = {"fields": [{"name": n, "type": t, "description": d} for n, t, d in spec["fields"]],
                   "missingValues": [""]}
-        resources.append({
-            "name": spec["name"], "path": f"{base}.csv", "title": spec["title"],
+        resource = {
+            "name": spec["name"], "path": csv_path, "title": spec["title"],
             "description": spec["description"] + " Text cells beginning with =, +, - or @ carry a leading "
                                                   "single quote against spreadsheet formula injection.",
             "profile": "tabular-data-resource", "format": "csv", "mediatype": "text/csv", "encoding": "utf-8",
             "bytes": len(csv_bytes), "hash": f"sha256:{_sha(csv_bytes)}",
             "dialect": {"delimiter": ",", "doubleQuote": True, "lineTerminator": "\n", "quoteChar": '"', "header": True},
             "schema": schema,
-        })
-        resources.append({
-            "name": f"{spec['name']}-json", "path": f"{base}.json", "title": spec["title"] + " (JSON)",
-            "description": f"The rows of {base}.csv as a JSON array of objects (original text, no quote prefix).",
-            "profile": "data-resource", "format": "json", "mediatype": "application/json", "encoding": "utf-8",
-            "bytes": len(json_bytes), "hash": f"sha256:{_sha(json_bytes)}", "schema": schema,
-        })
-        listing.append({"name": spec["name"], "title": spec["title"], "description": spec["description"],
-                        "rows": len(frame), "csv": f"{prefix}/{base}.csv", "json": f"{prefix}/{base}.json",
-                        "csv_bytes": len(csv_bytes), "json_bytes": len(json_bytes), "csv_sha256": _sha(csv_bytes)})
+        }
+        if zipped:
+            resource["compression"] = "gz"
+        resources.append(resource)
+        entry = {"name": spec["name"], "title": spec["title"], "description": spec["description"],
+                 "rows": len(frame), "csv": f"{prefix}/{csv_path}", "csv_bytes": len(csv_bytes),
+                 "csv_sha256": _sha(csv_bytes), "gzipped": zipped, "json": None, "json_bytes": 0}
+        if spec["name"] not in CSV_ONLY:
+            json_bytes = to_json(frame, spec["fields"])
+            yield f"{prefix}/{base}.json", json_bytes
+            resources.append({
+                "name": f"{spec['name']}-json", "path": f"{base}.json", "title": spec["title"] + " (JSON)",
+                "description": f"The rows of {base}.csv as a JSON array of objects (original text, no quote prefix).",
+                "profile": "data-resource", "format": "json", "mediatype": "application/json", "encoding": "utf-8",
+                "bytes": len(json_bytes), "hash": f"sha256:{_sha(json_bytes)}", "schema": schema,
+            })
+            entry.update(json=f"{prefix}/{base}.json", json_bytes=len(json_bytes))
+        listing.append(entry)
     package = {
         "profile": "data-package",
         "name": "levelfield-published-data",

@@ -73,10 +73,11 @@ def _root(page: str) -> str:
 
 
 class Renderer:
-    def __init__(self, data: SiteData, env: jinja2.Environment):
+    def __init__(self, data: SiteData, env: jinja2.Environment, previous_feed: bytes | None = None):
         self.data = data
         self.env = env
         self.views = Views(data)
+        self.previous_feed = previous_feed
 
     def page(self, path: str, template: str, title: str, section: str, **context) -> tuple[str, bytes]:
         root = _root(path)
@@ -101,14 +102,17 @@ class Renderer:
         yield self.page(P.METHODS, "methods.html", "Methods", "methods", **v.methods())
         listing: list[dict] = []
         yield from iter_downloads(d, P.DOWNLOAD_DIR, listing)
-        yield self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=listing,
+        files = [{**f, "description": v.words.plain(f["description"])} for f in listing]
+        yield self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=files,
                         datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
-        yield P.FEED, atom_feed(d, v, P.FEED)
+        yield P.FEED, atom_feed(d, v, P.FEED, self.previous_feed)
 
 
-def iter_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> Iterator[tuple[str, bytes]]:
-    """Every generated page and download (not the static assets) as ``(path, bytes)``, lazily."""
-    return Renderer(data, environment(extra_template_dirs)).render()
+def iter_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = (),
+              previous_feed: bytes | None = None) -> Iterator[tuple[str, bytes]]:
+    """Every generated page and download (not the static assets) as ``(path, bytes)``, lazily.
+    ``previous_feed``: the feed of the build this one replaces (None for a first build)."""
+    return Renderer(data, environment(extra_template_dirs), previous_feed).render()
 
 
 def render_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> dict[str, bytes]:

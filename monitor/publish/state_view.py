@@ -89,7 +89,7 @@ class StatePage:
         """Why the headline measures have no value for this state (as the engine stored it)."""
         m = self.by("measures", ("state", "chamber"), (state, chamber))
         m = m[m["measure"].isin(self.d.headline()) & m["value"].isna()]
-        return sorted({F.text(r) for r in m["reason"] if F.text(r)})
+        return sorted({self.words.plain(F.text(r)) for r in m["reason"] if F.text(r)})
 
     def _plan_row(self, r) -> dict:
         return {"plan_id": r["plan_id"] if isinstance(r["plan_id"], str) else None,
@@ -133,7 +133,7 @@ class StatePage:
             if name not in present:
                 continue
             if F.missing(value):
-                text = f"{F.DASH} ({reason})" if isinstance(reason, str) else F.DASH
+                text = f"{F.DASH} ({self.words.plain(reason)})" if isinstance(reason, str) else F.DASH
             else:
                 text = self.measure_value(name, value) + ("" if F.missing(p) else f" (p {F.pvalue(p)})")
             cells[(int(cycle), name)] = text
@@ -176,7 +176,8 @@ class StatePage:
                 "cycle": cycle, "summary": coverage_summary(r), "incomplete": int(r["incomplete"]) == 1,
                 "share": F.share(share, 0),
                 "never_flagged": not F.missing(share) and float(share) < self.d.min_coverage,
-                "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats), "reason": reason}
+                "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats),
+                          "reason": self.words.plain(F.text(reason))}
                          for dist, seats, gap, reason in zip(g["district"], g["seats"], g["gap"], g["reason"])],
             })
         return rows

@@ -376,11 +376,13 @@ class Views(StatePage, Standing):
 
     def methods(self) -> dict:
         d = self.d
-        docs = [{"name": m.name, "label": m.label, "formula": m.formula, "sign": m.sign, "source": m.source,
-                 "signed": m.signed, "interval": m.interval is not None, "p_value": m.p_value, "plain": m.plain}
+        w = self.words
+        docs = [{"name": m.name, "label": d.label(m.name), "formula": m.formula, "sign": w.plain(m.sign),
+                 "source": m.source, "signed": m.signed, "interval": m.interval is not None,
+                 "p_value": w.plain(m.p_value) if m.p_value else m.p_value, "plain": w.plain(m.plain)}
                 for m in d.measure_docs]
         settings = [{"name": s["name"], "value": _setting(s["value"]), "default": _setting(s["default"]),
-                     "changed": s["value"] != s["default"], "help": s["help"]} for s in d.settings]
+                     "changed": s["value"] != s["default"], "help": w.plain(s["help"])} for s in d.settings]
         return {"docs": docs, "settings": settings, "policy": d.policy, "thresholds": d.thresholds,
                 "provenance": self.provenance()}
 
