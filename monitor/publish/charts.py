@@ -302,8 +302,16 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
             "Marks: the stepped line is the curve and the dotted diagonal is seats equal to votes; the observed result "
             "is the large open circle, the flipped vote the small filled diamond and the even vote (50%) the open square, "
             "each labelled beside it.")
-    # the table reads the curve every 5 points of vote share (the step function, as drawn), not at
-    # each of its vertices: two per district would make the table, and the page, grow with the chamber
+    rows = _curve_rows(curve) + [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
+                                 for r in points.itertuples()]
+    return Chart(chart_id, "Seats-votes curve of the current plan", desc, _spec(layers, datasets, 260),
+                 ["statewide vote share", "seat share"], rows)
+
+
+def _curve_rows(curve: pd.DataFrame) -> list[list[str]]:
+    """The curve read every 5 points of vote share from 30% to 70% (the step function, as drawn),
+    not at each of its vertices: two per district would make the table, and the page, grow with
+    the chamber."""
     vote, seat = curve["vote"].to_numpy(float), curve["seat_share"].to_numpy(float)
     order = np.argsort(vote, kind="stable")
     vote, seat = vote[order], seat[order]
@@ -311,10 +319,7 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     for v in np.round(np.arange(0.30, 0.7001, 0.05), 2):
         i = int(np.searchsorted(vote, v, side="right")) - 1
         rows.append([F.share(v), F.share(seat[i]) if i >= 0 else F.share(0.0)])
-    rows += [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
-             for r in points.itertuples()]
-    return Chart(chart_id, "Seats-votes curve of the current plan", desc, _spec(layers, datasets, 260),
-                 ["statewide vote share", "seat share"], rows)
+    return rows
 
 
 def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style: Style, cycle: int,

@@ -3,10 +3,8 @@ descriptor (``datapackage.json``, Data Package spec v1, https://specs.frictionle
 
 Weight: every table is published once as CSV. The small tables (the watch list, the flag
 history, plans, loads, the national aggregates) also come as JSON; the large per-unit and
-per-vote-line tables do not (a JSON twin of the results alone weighed three times its CSV). The
-district results, the largest table by far, are gzipped (``results.csv.gz``, declared with
-``compression: gz``, which the frictionless validator reads), written with a zero timestamp so
-that the same rows give the same bytes.
+per-vote-line tables do not (a JSON twin of the results alone weighed three times its CSV, and
+the CSV is what users open).
 
 CSV cells of text fields that begin with ``=``, ``+``, ``-``, ``@`` (or a tab or carriage return)
 get a leading single quote, so that a spreadsheet does not run them as formulas (OWASP, "CSV
@@ -18,7 +16,6 @@ the original text.
 from __future__ import annotations
 
 import csv
-import gzip
 import hashlib
 import io
 import json
@@ -42,8 +39,6 @@ _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 
 #: Tables published without a JSON twin (large: one row per unit, measure or vote line).
 CSV_ONLY = {"results", "measures", "coverage", "coverage-gaps", "expected-seats", "flagged-units"}
-#: Tables published gzipped.
-GZIPPED = {"results"}
 
 RESOURCES: list[dict] = [
     {"name": "results", "title": "District results",
@@ -253,9 +248,6 @@ def iter_downloads(data: SiteData, prefix: str, listing: list[dict]) -> Iterator
         base = spec["name"].replace("-", "_")
         csv_bytes = to_csv(frame, spec["fields"])
         csv_path = f"{base}.csv"
-        zipped = spec["name"] in GZIPPED
-        if zipped:
-            csv_bytes, csv_path = gzip.compress(csv_bytes, compresslevel=6, mtime=0), f"{base}.csv.gz"
         yield f"{prefix}/{csv_path}", csv_bytes
         schema = {"fields": [{"name": n, "type": t, "description": d} for n, t, d in spec["fields"]],
                   "missingValues": [""]}
@@ -268,12 +260,10 @@ def iter_downloads(data: SiteData, prefix: str, listing: list[dict]) -> Iterator
             "dialect": {"delimiter": ",", "doubleQuote": True, "lineTerminator": "\n", "quoteChar": '"', "header": True},
             "schema": schema,
         }
-        if zipped:
-            resource["compression"] = "gz"
         resources.append(resource)
         entry = {"name": spec["name"], "title": spec["title"], "description": spec["description"],
                  "rows": len(frame), "csv": f"{prefix}/{csv_path}", "csv_bytes": len(csv_bytes),
-                 "csv_sha256": _sha(csv_bytes), "gzipped": zipped, "json": None, "json_bytes": 0}
+                 "csv_sha256": _sha(csv_bytes), "json": None, "json_bytes": 0}
         if spec["name"] not in CSV_ONLY:
             json_bytes = to_json(frame, spec["fields"])
             yield f"{prefix}/{base}.json", json_bytes

@@ -4,7 +4,8 @@
 flags the first computation raised over decades of history are not news. The first build writes
 one entry, "site published, N plans on watch", and records in the feed how far the flag history
 and the loads go (``lf:events-through``, ``lf:loads-through``: an extension element of our own
-namespace, which RFC 4287 section 6 allows).
+namespace, which RFC 4287 section 6 allows). A site without results writes a feed with neither
+entries nor marks, so the first build with results is the first build.
 
 **Later builds** keep the entries of the previous feed (read from the output folder that the
 build replaces) and add one entry per change recorded since: a unit flag raised or cleared, a
@@ -84,7 +85,9 @@ def atom_feed(data: SiteData, views, feed_path: str = "atom.xml", previous: byte
     events_through = int(data.events["id"].max()) if len(data.events) else 0
     loads_through = int(data.loads["id"].max()) if len(data.loads) else 0
     state = previous_state(previous)
-    if state is None:
+    if data.empty:  # nothing published yet: no entry, and no marks, so the first site with data is a first build
+        entries = []
+    elif state is None:
         entries = [_published_entry(data, views, events_through, loads_through)]
     else:
         kept, seen_events, seen_loads = state
@@ -105,8 +108,9 @@ def atom_feed(data: SiteData, views, feed_path: str = "atom.xml", previous: byte
     _sub(feed, "link", rel="self", href=self_link(data, feed_path), type="application/atom+xml")
     _sub(feed, "link", rel="alternate", href=link_to(data, "index.html"), type="text/html")
     _sub(feed, "generator", "levelfield")
-    ET.SubElement(feed, f"{{{LF}}}events-through").text = str(max(events_through, state[1] if state else 0))
-    ET.SubElement(feed, f"{{{LF}}}loads-through").text = str(max(loads_through, state[2] if state else 0))
+    if not data.empty:
+        ET.SubElement(feed, f"{{{LF}}}events-through").text = str(max(events_through, state[1] if state else 0))
+        ET.SubElement(feed, f"{{{LF}}}loads-through").text = str(max(loads_through, state[2] if state else 0))
     feed.extend(entries)
     ET.indent(feed)
     return b'<?xml version="1.0" encoding="utf-8"?>\n' + ET.tostring(feed, encoding="utf-8") + b"\n"
@@ -138,11 +142,21 @@ def _published_entry(data: SiteData, views, events_through: int, loads_through: 
     for chamber, cycle in data.chamber_latest().items():
         rows = views.flagged_in(cycle, chamber, "")
         lines.append(f"{data.chamber_label(chamber)}, {cycle}: {len(rows)} states flagged"
-                     + (": " + "; ".join(f"{r['state']} {r['stake'].text}" for r in rows) if rows else "") + ".")
+                     + (": " + "; ".join(_standing_phrase(r) for r in rows) if rows else "") + ".")
     lines.append("From now on this feed has one entry per change: a state flagged or cleared, a plan put on or taken "
                  "off the watch list, a correction of published results.")
     return _entry(_id("published", events_through, loads_through, n), f"Site published, {n} plans on watch",
                   data.site_time, " ".join(lines), "index.html", data)
+
+
+def _standing_phrase(r: dict) -> str:
+    """A flagged unit in a few words: its seats at stake (which name their party by the one sign
+    rule), and the measures' party only when the seats do not name the same one."""
+    stake = r["stake"]
+    if r["direction_code"] and stake.code == r["direction_code"]:
+        return f"{r['state']} {stake.text}"
+    measures = f"measures favour {r['direction']}" if r["direction_code"] else "measures split between the parties"
+    return f"{r['state']} ({measures}; seats at stake: {stake.text})"
 
 
 def _event_entries(data: SiteData, views, events) -> list[ET.Element]:

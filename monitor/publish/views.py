@@ -387,19 +387,6 @@ class Views(StatePage, Standing):
                 "provenance": self.provenance()}
 
 
-def _severity_and_stake(severity, stake) -> tuple[str, str]:
-    """The watch list's severity and signed seats at stake, shown with one rounding: the stored
-    severity (seats at stake, absolute, two decimals) with the sign of the seats at stake, so that
-    "1.77" never stands beside "(−1.76)"."""
-    if F.missing(severity):
-        return F.DASH, F.signed(stake, 2)
-    shown = f"{abs(float(severity)):.2f}"
-    if F.missing(stake):
-        return shown, F.DASH
-    sign = F.MINUS if float(stake) < 0 else "+"
-    return shown, sign + shown
-
-
 def _num(value) -> str:
     return "" if F.missing(value) else repr(float(value))
 
