@@ -210,7 +210,7 @@ def _plans_watch_events(conn, stamp: str) -> None:
     for state in STATES:
         for (first, last), by in zip(((2012, 2020), (2022, None)), drawn[state]):
             plans.append((state, "federal", _plan_id(state, "federal", first), first, last, by,
-                          f"invented plan of {state}", "invented fixture", 0))
+                          f"invented plan of {STATE_NAMES.get(state, 'an invented state')}", "invented fixture", 0))
     plans.append(("KA", "state_lower", "KA-state_lower-2012", 2012, 2021, "other",
                   "inferred: a new plan assumed from each cycle ending in 2", None, 1))
     plans.append(("KA", "state_lower", "KA-state_lower-2022", 2022, 2022, "other",

@@ -2,15 +2,17 @@
 
 Templates are found along an ordered search path: an optional override folder first, then the
 built-in ``site/templates``; a template can extend a built-in one as ``default:base.html``.
-Autoescape is on for every template. The one filter that returns markup, ``json_script``,
-escapes ``<``, ``>`` and ``&`` inside the JSON it writes, so no data value can close the
-``<script>`` element it sits in.
+Autoescape is on for every template. The filters that return markup escape what they are given:
+``json_script`` escapes ``<``, ``>`` and ``&`` inside the JSON it writes, so no data value can
+close the ``<script>`` element it sits in; ``idents`` escapes the text, then sets its identifiers
+(download columns, measure names) in ``<code>``.
 """
 
 from __future__ import annotations
 
 import json
 import posixpath
+import re
 from collections.abc import Iterator, Sequence
 from pathlib import Path
 
@@ -40,6 +42,17 @@ def json_script(value) -> Markup:
     return Markup(text)
 
 
+#: A snake_case word in running text: an identifier (a download column or a measure's name).
+_IDENT = re.compile(r"\b[a-z][a-z0-9]*(?:_[a-z0-9]+)+\b")
+
+
+def idents(text) -> Markup:
+    """Text with its identifiers set as code: ``uses seats_a`` -> ``uses <code>seats_a</code>``
+    (the text is escaped first)."""
+    escaped = str(Markup.escape("" if text is None else text))
+    return Markup(_IDENT.sub(lambda m: f"<code>{m.group(0)}</code>", escaped))
+
+
 def environment(extra_dirs: Sequence[str | Path] = ()) -> jinja2.Environment:
     """The Jinja environment: override folders, then the built-in templates; autoescape always."""
     builtin = jinja2.FileSystemLoader(str(TEMPLATE_DIR))
@@ -58,6 +71,7 @@ def register_filters(env: jinja2.Environment) -> None:
     """Every filter the templates use, in one place."""
     env.filters.update({
         "json_script": json_script,
+        "idents": idents,
         "share": F.share,
         "signed": F.signed,
         "number": F.number,

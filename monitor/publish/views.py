@@ -384,7 +384,7 @@ class Views(StatePage, Standing):
         settings = [{"name": s["name"], "value": _setting(s["value"]), "default": _setting(s["default"]),
                      "changed": s["value"] != s["default"], "help": w.plain(s["help"])} for s in d.settings]
         return {"docs": docs, "settings": settings, "policy": d.policy, "thresholds": d.thresholds,
-                "provenance": self.provenance()}
+                "labels": {m.name: d.label(m.name) for m in d.measure_docs}, "provenance": self.provenance()}
 
 
 def _num(value) -> str:

@@ -125,6 +125,7 @@ class Words:
         text = _VALUE.sub(lambda m: f"{self.measure(m.group(1))} {self.leaning(float(m.group(2)))}", text)
         text = _PERCENTILE.sub(lambda m: f"percentile {100 * float(m.group(1)):.1f}", text)
         text = _UNDEFINED.sub(lambda m: f"{self.measure(m.group(1))} is now undefined", text)
+        text = _BARE.sub(lambda m: self.measure(m.group(1)), text)  # any identifier left: its name
         return self.plain(text)
 
     def plain(self, text: str) -> str:
@@ -173,3 +174,5 @@ _SEATS_WON = re.compile(r"\bseats won by ([ab]) (\d+(?:\.\d+)?)")
 _VALUE = re.compile(rf"\b({_IDS}) ([+-]\d+(?:\.\d+)?)\b")
 _PERCENTILE = re.compile(r"percentile (\d\.\d+)")
 _UNDEFINED = re.compile(rf"\b({_IDS}) is now undefined")
+#: Identifiers that are not also words (``efficiency_gap``, not ``seats``): safe to replace anywhere.
+_BARE = re.compile(r"\b(" + "|".join(i for i in _IDS.split("|") if "_" in i) + r")\b")
