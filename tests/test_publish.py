@@ -659,6 +659,10 @@ def test_sample_history_site(sample_workspace, tmp_path):
     out = tmp_path / "public"
     report = build(ws, out=out)
     assert report.pages > 50 and not report.removed
+    # weight budget (README "Weight"): no HTML page over 300 KB; no JSON twin of the large tables
+    heavy = {p.relative_to(out).as_posix(): p.stat().st_size for p in out.rglob("*.html") if p.stat().st_size > 300_000}
+    assert heavy == {}
+    assert not (out / "downloads/results.json").exists() and (out / "downloads/results.csv").is_file()
     db = store.connect(ws.store_path)
     try:
         data = collect(db, load_config(ws.config_path))

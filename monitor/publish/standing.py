@@ -78,7 +78,9 @@ class Standing:
         if r is None or F.missing(r["excess_seats"]):
             return {"stake": self.words.stake(None), "detail": "no national-pool expectation"}
         stake = self.words.stake(r["excess_seats"])
-        detail = (f"{self.words.party('a')} won {F.number(r['seats_a'], 1)} of {F.count(r['districts'])}, against "
+        excess = float(r["excess_seats"])
+        than = (f"{stake.amount} {'more' if excess > 0 else 'fewer'} than the" if stake.code else "as many as the")
+        detail = (f"{self.words.party('a')} won {F.number(r['seats_a'], 1)} of {F.count(r['districts'])}, {than} "
                   f"{F.number(r['expected_seats'], 1)} expected from the national pool (95%: {F.number(r['low'], 1)} "
                   f"to {F.number(r['high'], 1)})")
         return {"stake": stake, "detail": detail}
@@ -94,8 +96,8 @@ class Standing:
         n_judged = int(judged["value"].notna().sum()) if len(judged) else 0
         if direction is not None:
             agree, against = flags[direction], flags.get(w.other(direction), [])
-            why = (f"{len(agree)} of {n_judged} measures judged favour {w.party(direction)}: "
-                   f"{w.measure_list(agree)}")
+            why = (f"{len(agree)} of the {n_judged} measures judged favour{'s' if len(agree) == 1 else ''} "
+                   f"{w.party(direction)}: {w.measure_list(agree)}")
             if against:
                 why += f"; {w.measure_list(against)} {'favours' if len(against) == 1 else 'favour'} {w.party(w.other(direction))}"
         else:

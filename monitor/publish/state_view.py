@@ -59,6 +59,7 @@ class StatePage:
         events = self.by("events", ("state", "chamber"), (state, chamber))
         watch = self.by("watch", ("state", "chamber"), (state, chamber))
         in_force, past = self.watch_split(watch)
+        past = past.iloc[sorted(range(len(past)), key=lambda i: -int((str(past["cycles"].iloc[i]).split() or ["0"])[0]))]  # newest first
         last = int(units["cycle"].max()) if len(units) else None
         return {
             "latest": last, "standing": self.standing(last, state, chamber) if last is not None else None,

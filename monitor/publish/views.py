@@ -277,7 +277,7 @@ class Views(StatePage, Standing):
                 "partial": (f"over the {F.count(r['measured_units'])} of {F.count(r['states'])} states with stored "
                             "measures") if partial else "",
                 "flagged_units": F.count(r["flagged_units"]),
-                "excess": F.signed(r["excess_seats"], 2) if int(r["pool_units"]) else F.DASH,
+                "excess": self.words.stake(r["excess_seats"]) if int(r["pool_units"]) else None,
             })
         return rows
 
@@ -314,6 +314,7 @@ class Views(StatePage, Standing):
                          "watch": self.words.stake(watch.seats_at_stake) if watch is not None else None,
                          "watch_favours": self.words.party(watch.favours) if watch is not None else "",
                          "past": earlier.get((state, chamber), [])})
+        rows.sort(key=lambda r: (r["state"].casefold(), r["chamber"]))  # by name, as a reader looks one up
         return {"rows": rows, "provenance": self.provenance(), "empty": d.empty,
                 "in_force": len(in_force), "past_plans": len(past)}
 
