@@ -210,8 +210,8 @@ def test_a_disagreeing_unit_is_said_in_words_on_the_home_page_and_in_the_feed(fx
         assert "the seats point the other way" in row
         assert f"favours {NAMES[expected_code(-stake)]} by {abs(stake):.1f} seats" in row
     summary = ET.fromstring(atom_feed(data, Views(data))).find(f"{ATOM}entry/{ATOM}summary").text
-    assert (f"measures favour {NAMES[direction]}; seats at stake: favours {NAMES[expected_code(-stake)]} by "
-            f"{abs(stake):.1f} seats") in summary
+    assert (f"where the measures favour {NAMES[direction]} but the seats at stake favour "
+            f"{NAMES[expected_code(-stake)]} by {abs(stake):.1f} seats") in summary
 
 
 def test_latest_cycle_tables_follow_the_sign_rule(fx, site):
@@ -336,7 +336,7 @@ def test_feed_first_build_one_entry_later_builds_one_per_change_links_absolute(t
         n_watch = fx.db.execute("SELECT COUNT(*) FROM watch").fetchone()[0]
         assert [e.find(f"{ATOM}title").text for e in entries] == [f"Site published, {n_watch} plans on watch"]
         summary = entries[0].find(f"{ATOM}summary").text
-        assert "Federal lower chamber, 2022: 1 states flagged" in summary or "2022: 1 state" in summary
+        assert f"Federal lower chamber, 2022: 1 state flagged: {sf.STATE_NAMES.get(sf.XSS, sf.XSS)} favours " in summary
 
         def links(root):
             return [link.get("href") for link in root.iter(f"{ATOM}link")]

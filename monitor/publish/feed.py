@@ -141,7 +141,7 @@ def _published_entry(data: SiteData, views, events_through: int, loads_through: 
     lines = [f"{n} plan{'s' if n != 1 else ''} on watch ({len(in_force)} in force, {len(past)} past)."]
     for chamber, cycle in data.chamber_latest().items():
         rows = views.flagged_in(cycle, chamber, "")
-        lines.append(f"{data.chamber_label(chamber)}, {cycle}: {len(rows)} states flagged"
+        lines.append(f"{data.chamber_label(chamber)}, {cycle}: {len(rows)} state{'s' if len(rows) != 1 else ''} flagged"
                      + (": " + "; ".join(_standing_phrase(r) for r in rows) if rows else "") + ".")
     lines.append("From now on this feed has one entry per change: a state flagged or cleared, a plan put on or taken "
                  "off the watch list, a correction of published results.")
@@ -155,8 +155,9 @@ def _standing_phrase(r: dict) -> str:
     stake = r["stake"]
     if r["direction_code"] and stake.code == r["direction_code"]:
         return f"{r['state']} {stake.text}"
-    measures = f"measures favour {r['direction']}" if r["direction_code"] else "measures split between the parties"
-    return f"{r['state']} ({measures}; seats at stake: {stake.text})"
+    measures = f"the measures favour {r['direction']}" if r["direction_code"] else "the measures split between the parties"
+    seats = (f"the seats at stake {stake.text.replace('favours ', 'favour ', 1)}" if stake.code else stake.text)
+    return f"{r['state']}, where {measures} but {seats}"
 
 
 def _event_entries(data: SiteData, views, events) -> list[ET.Element]:
