@@ -54,17 +54,20 @@ def _default_measures() -> dict[str, Callable]:
 
 
 def _evaluate(f: Callable, d: Delegations) -> np.ndarray:
-    """``f`` on every kept draw, in chunks of about ``_CHUNK_CELLS`` district rows."""
+    """``f`` on every kept draw, in chunks of about ``_CHUNK_CELLS`` district rows that never mix
+    two units (every delegation of a chunk then has the same size, which the measures' sorting
+    exploits: :attr:`monitor.measures.segments.Segments.sorted_share`)."""
     out = np.empty(d.n_draws)
     if d.n_draws == 0:
         return out
     size = d.n_districts[d.draw_unit]
     row_start = np.r_[0, np.cumsum(size)]
+    unit_end = np.cumsum(d.n_accepted)[d.draw_unit]  # first draw after each draw's unit
     a, b = d.pool.votes_a, d.pool.votes_b
     first = 0
     while first < d.n_draws:
         last = int(np.searchsorted(row_start, row_start[first] + _CHUNK_CELLS, side="right")) - 1
-        last = min(max(last, first + 1), d.n_draws)
+        last = min(max(last, first + 1), int(unit_end[first]))
         r0, r1 = row_start[first], row_start[last]
         idx = d.district[r0:r1]
         unit = np.repeat(np.arange(last - first, dtype=np.int64), size[first:last])
