@@ -335,7 +335,24 @@ def verify(ws: Workspace) -> None:
                "aggregates equal a from-scratch recompute")
 
 
-@main.group()
+class _Exports(click.Group):
+    """The ``export`` group: one subcommand per row of :data:`monitor.exports.EXPORTS`, made when
+    the group is used (so that ``levelfield --help`` does not import the tables behind them)."""
+
+    def _made(self) -> None:
+        if not self.commands:
+            _add_exports()
+
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        self._made()
+        return super().list_commands(ctx)
+
+    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
+        self._made()
+        return super().get_command(ctx, name)
+
+
+@main.group(cls=_Exports)
 @workspace_option
 def export() -> None:
     """Export stored data as CSV or JSON."""
@@ -371,8 +388,6 @@ def _add_exports() -> None:
     for item in EXPORTS:
         _export_command(item)
 
-
-_add_exports()
 
 
 @main.command()

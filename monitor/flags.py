@@ -27,21 +27,29 @@ import numpy as np
 import pandas as pd
 import sqlite_utils
 
-from monitor import events as E
 from monitor.config import Config
 from monitor.coverage import stored_coverage
-from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
-from monitor.plans import assign_plans, write_inferred
-from monitor.tails import (JUDGED, NULL_FLAGGED, P_FLAGGED, POOL_METHOD_VERSION, context_stats, group_hash, judge,
-                           observed_values, pool_group, stored_names)
+from monitor.inputs import UNIT_KEYS
 from store import flags as store_flags
 from store import measures as store_measures
 from store import write_from_snapshot
 
-#: every flag name
-FLAG_MEASURES = tuple(JUDGED)
+# The national pool and the measures' registry (monitor.tails, monitor.events) are imported by the
+# steps that compute: `levelfield flags` only reads stored rows (flag_table) and starts without them.
 
 __all__ = ["FLAG_MEASURES", "FlagsReport", "flag_table", "judge", "run_flags", "watch_list"]
+
+
+def __getattr__(name: str):
+    if name == "FLAG_MEASURES":  # every flag name
+        from monitor.tails import JUDGED
+
+        return tuple(JUDGED)
+    if name == "judge":
+        from monitor.tails import judge
+
+        return judge
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 @dataclass
@@ -122,6 +130,11 @@ def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
 
 def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str, progress=None):
     """Read the store, compute tails, flags, watch list and events; return the writer."""
+    from monitor import events as E
+    from monitor.inputs import measure_inputs, reduced_contests
+    from monitor.plans import assign_plans, write_inferred
+    from monitor.tails import P_FLAGGED, POOL_METHOD_VERSION, context_stats, judge, observed_values, stored_names
+
     report = FlagsReport()
     contests = reduced_contests(db)
     arrays = measure_inputs(contests, config)
@@ -172,6 +185,8 @@ def _pool_groups(arrays, stored: tuple, old: dict, stored_hash: dict, config: Co
                  report: FlagsReport, progress) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Expected seats and tails of every (cycle, chamber) group: recomputed where the group's inputs
     changed (or ``full``), else taken over from what the previous run stored."""
+    from monitor.tails import NULL_FLAGGED, group_hash, pool_group
+
     observed, undefined, actual_seats = stored
     old_seats, old_tails = old["pool_seats"], old["tails"]
     seat_frames, tail_frames = [], []
