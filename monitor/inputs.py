@@ -22,12 +22,13 @@ from store import reductions as stored
 UNIT_KEYS = ["cycle", "state", "chamber"]
 
 
-def reduced_contests(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
-    """One row per current contest (of ``cycle`` only, when given): unit keys, district, special,
-    runoff, decides (whether it decides its seat; else left_out says why), placeholder (no real
-    count), seats and its stored reduction (``store.reductions.CONTEST_COLUMNS``), sorted by unit,
-    district, special and runoff."""
-    return stored.current(db, cycle)
+def reduced_contests(db: sqlite_utils.Database, cycle: int | None = None, *, chamber: str | None = None,
+                     unit_ids=None) -> pd.DataFrame:
+    """One row per current contest (of ``cycle``, ``chamber`` and the units ``unit_ids`` only, when
+    given): unit keys, district, special, runoff, decides (whether it decides its seat; else
+    left_out says why), placeholder (no real count), seats and its stored reduction
+    (``store.reductions.CONTEST_COLUMNS``), sorted by unit, district, special and runoff."""
+    return stored.current(db, cycle, chamber=chamber, unit_ids=unit_ids)
 
 
 def deciding_contests(contests: pd.DataFrame) -> pd.DataFrame:

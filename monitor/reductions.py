@@ -21,6 +21,9 @@ from store import reductions as stored
 
 #: how many units are read and reduced at once (bounds memory on a national history)
 BATCH_UNITS = 2_000
+#: the method version of the stored reductions (:func:`reduce_units`): bump it when what a
+#: reduction stores changes, and every unit is reduced again
+METHOD_VERSION = "reduce-1"
 
 
 def reduce_units(lines: pd.DataFrame, contests: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
@@ -53,7 +56,7 @@ def refresh(db: sqlite_utils.Database, config: Config, *, full: bool = False) ->
     batch is one consistent read-reduce-write step (:func:`store.write_from_snapshot`)."""
     done = 0
     while True:
-        if not full and not stored.stale_units(db, config.policy):
+        if not full and not stored.stale_units(db, config.policy, METHOD_VERSION):
             return done  # the usual case: one read, no write transaction
         count = write_from_snapshot(db, lambda: _step(db, config, full, done))
         if count == 0:
@@ -62,7 +65,7 @@ def refresh(db: sqlite_utils.Database, config: Config, *, full: bool = False) ->
 
 
 def _step(db: sqlite_utils.Database, config: Config, full: bool, done: int):
-    units = stored.stale_units(db, config.policy, every=full)
+    units = stored.stale_units(db, config.policy, METHOD_VERSION, every=full)
     units = units[done:done + BATCH_UNITS] if full else units[:BATCH_UNITS]
     ids = [u for u, _ in units]
     if not ids:
@@ -70,7 +73,7 @@ def _step(db: sqlite_utils.Database, config: Config, full: bool, done: int):
     frame = reduce_units(queries.unit_votes(db, ids), stored.unit_contests(db, ids), config["uncontested.policy"],
                          config["uncontested.winner_share"])
     rows = [tuple(_plain(v) for v in r) for r in frame.itertuples(index=False)]
-    digests = [(u, digest, config.policy) for u, digest in units]
+    digests = [(u, digest, config.policy, METHOD_VERSION) for u, digest in units]
 
     def write(conn) -> int:
         stored.replace(conn, ids, rows, digests)

@@ -27,6 +27,17 @@ def replace_coverage(conn: sqlite3.Connection, units: Sequence[tuple], gaps: Seq
                      f"VALUES ({', '.join('?' for _ in GAP_COLUMNS)})", gaps)
 
 
+def replace_series(conn: sqlite3.Connection, series: Sequence[tuple[str, str]], units: Sequence[tuple],
+                   gaps: Sequence[tuple]) -> None:
+    """Replace the rows of the (state, chamber) ``series`` only (inside the caller's transaction)."""
+    for table in ("coverage", "coverage_gaps"):
+        conn.executemany(f"DELETE FROM {table} WHERE state = ? AND chamber = ?", [tuple(k) for k in series])
+    conn.executemany(f"INSERT INTO coverage ({', '.join(UNIT_COLUMNS)}) "
+                     f"VALUES ({', '.join('?' for _ in UNIT_COLUMNS)})", units)
+    conn.executemany(f"INSERT INTO coverage_gaps ({', '.join(GAP_COLUMNS)}) "
+                     f"VALUES ({', '.join('?' for _ in GAP_COLUMNS)})", gaps)
+
+
 def read_coverage(db) -> pd.DataFrame:
     """Every stored coverage row, sorted by cycle, state, chamber (empty with its columns when the
     store predates the table)."""
@@ -44,6 +55,14 @@ def read_gaps(db) -> pd.DataFrame:
     return pd.read_sql_query(
         f"SELECT {', '.join(GAP_COLUMNS)} FROM coverage_gaps "
         "ORDER BY cycle, state, chamber, gap DESC, district", conn)
+
+
+def plan_counts_and_eras(db) -> pd.DataFrame:
+    """Every loaded (not inferred) plan era with its counts: state, chamber, plan_id, first_cycle,
+    last_cycle, districts, seats."""
+    conn = getattr(db, "conn", db)
+    return pd.read_sql_query(
+        "SELECT state, chamber, plan_id, first_cycle, last_cycle, districts, seats FROM plans WHERE inferred = 0", conn)
 
 
 def plan_counts(db) -> pd.DataFrame:

@@ -22,13 +22,27 @@ CONTEST_COLUMNS = ["unit_id", "cycle", "state", "chamber", "certification", "loa
                    "seats", "special", "runoff", "decides", "left_out", "placeholder", *COLUMNS[2:]]
 
 
-def stale_units(db: sqlite_utils.Database, policy: str, *, every: bool = False) -> list[tuple[int, str]]:
+def stale_units(db: sqlite_utils.Database, policy: str, version: str, *,
+                every: bool = False) -> list[tuple[int, str]]:
     """(unit id, content_sha256) of every unit (current or superseded) whose reductions are missing
-    or were made from other content or under another policy (``every``: of every unit)."""
-    stale = "" if every else "WHERE r.unit_id IS NULL OR r.content_sha256 != u.content_sha256 OR r.policy != ? "
+    or were made from other content, under another policy or by another method ``version``
+    (``every``: of every unit)."""
+    stale = ("" if every else "WHERE r.unit_id IS NULL OR r.content_sha256 != u.content_sha256 OR r.policy != ? "
+             "OR r.method_version != ? ")
     return [tuple(r) for r in db.execute(
         f"SELECT u.id, u.content_sha256 FROM units u LEFT JOIN reduced_units r ON r.unit_id = u.id {stale}"
-        "ORDER BY u.id", [] if every else [policy])]
+        "ORDER BY u.id", [] if every else [policy, version])]
+
+
+def current_keys(db: sqlite_utils.Database) -> pd.DataFrame:
+    """Every current unit with what its reductions were made from: unit_id, cycle, state, chamber,
+    load_id, content_sha256, policy and method_version (empty where the unit is not reduced yet),
+    sorted by cycle, state, chamber."""
+    return pd.read_sql_query(
+        "SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.load_id, u.content_sha256, "
+        "COALESCE(r.policy, '') AS policy, COALESCE(r.method_version, '') AS method_version "
+        "FROM units u LEFT JOIN reduced_units r ON r.unit_id = u.id WHERE u.superseded_by IS NULL "
+        "ORDER BY u.cycle, u.state, u.chamber", db.conn)
 
 
 def unit_contests(db: sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.DataFrame:
@@ -45,12 +59,12 @@ def unit_contests(db: sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.Data
 def replace(conn: sqlite3.Connection, unit_ids: Sequence[int], rows: Sequence[tuple],
             units: Sequence[tuple]) -> None:
     """Replace the reductions of ``unit_ids`` by ``rows`` (COLUMNS order) and record ``units``:
-    (unit_id, content_sha256, policy)."""
+    (unit_id, content_sha256, policy, method_version)."""
     conn.executemany("DELETE FROM reductions WHERE unit_id = ?", [(u,) for u in unit_ids])
     conn.executemany(f"INSERT INTO reductions ({', '.join(COLUMNS)}) VALUES ({', '.join('?' for _ in COLUMNS)})",
                      rows)
-    conn.executemany("INSERT OR REPLACE INTO reduced_units (unit_id, content_sha256, policy) VALUES (?, ?, ?)",
-                     units)
+    conn.executemany("INSERT OR REPLACE INTO reduced_units (unit_id, content_sha256, policy, method_version) "
+                     "VALUES (?, ?, ?, ?)", units)
 
 
 _CURRENT = (
@@ -62,10 +76,19 @@ _CURRENT = (
 )
 
 
-def current(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
-    """Every current contest (of ``cycle`` only, when given) with its unit's keys and its reduction:
-    CONTEST_COLUMNS, sorted by cycle, state, chamber, district, special, runoff."""
-    where, params = ("AND u.cycle = ? ", [cycle]) if cycle is not None else ("", [])
+def current(db: sqlite_utils.Database, cycle: int | None = None, *, chamber: str | None = None,
+            unit_ids: Sequence[int] | None = None) -> pd.DataFrame:
+    """Every current contest (of ``cycle``, ``chamber`` and the units ``unit_ids`` only, when given)
+    with its unit's keys and its reduction: CONTEST_COLUMNS, sorted by cycle, state, chamber,
+    district, special, runoff."""
+    where, params = "", []
+    if cycle is not None:
+        where, params = where + "AND u.cycle = ? ", [*params, cycle]
+    if chamber is not None:
+        where, params = where + "AND u.chamber = ? ", [*params, chamber]
+    if unit_ids is not None:
+        where += f"AND u.id IN ({', '.join('?' for _ in unit_ids) or 'NULL'}) "
+        params = [*params, *[int(u) for u in unit_ids]]
     frame = pd.read_sql_query(f"{_CURRENT} {where}ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, c.runoff",
                               db.conn, params=params)
     return _flags(frame)[CONTEST_COLUMNS]
