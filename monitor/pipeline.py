@@ -63,7 +63,7 @@ def recompute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
     out.groups_computed = flags.groups_computed
     out.flag_changes = len(flags.events)
     out.lines += flags.lines()
-    aggregates.refresh(db)
+    aggregates.refresh(db, full=full)
     return out
 
 
