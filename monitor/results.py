@@ -12,9 +12,10 @@ REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b",
                      "decides"]
 
 
-def results_export(db: sqlite_utils.Database) -> pd.DataFrame:
-    """The ``district_results`` columns (a fixed contract) followed by the reduction columns."""
-    lines = reductions.result_lines(db)
+def results_export(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
+    """The ``district_results`` columns (a fixed contract) followed by the reduction columns (of
+    ``cycle`` only, when given)."""
+    lines = reductions.result_lines(db, cycle)
     if lines.empty:
         return pd.DataFrame(columns=RESULT_COLUMNS + REDUCTION_COLUMNS)
     out = lines.rename(columns={"status": "contest_status", "certification": "status"})

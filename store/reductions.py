@@ -116,13 +116,22 @@ def of_units(db: sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.DataFrame
         "ORDER BY r.unit_id, c.district, c.special, c.runoff", db.conn, params=list(unit_ids)).pipe(_flags)
 
 
-def result_lines(db: sqlite_utils.Database) -> pd.DataFrame:
-    """Every current vote line (the ``district_results`` columns and the contest's stored status,
-    ``runoff`` and ``decides``) with its contest's reduction: votes_a, votes_b, winner, share_a."""
+def result_lines(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
+    """Every current vote line (of ``cycle`` only, when given: the ``district_results`` columns and
+    the contest's stored status, ``runoff`` and ``decides``) with its contest's reduction: votes_a,
+    votes_b, winner, share_a."""
+    where, params = ("AND u.cycle = ? ", [cycle]) if cycle is not None else ("", [])
     return pd.read_sql_query(
         "SELECT u.cycle, u.state, u.chamber, c.district, v.party, v.candidate, v.votes, "
         "u.certification, u.load_id, c.special, c.seats, c.status, r.votes_a, r.votes_b, r.share_a, r.winner, "
         "c.runoff, c.decides "
         "FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
-        "JOIN reductions r ON r.contest_id = c.id WHERE u.superseded_by IS NULL "
-        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, c.runoff, v.id", db.conn)
+        f"JOIN reductions r ON r.contest_id = c.id WHERE u.superseded_by IS NULL {where}"
+        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, c.runoff, v.id", db.conn, params=params)
+
+
+def count_result_lines(db: sqlite_utils.Database) -> int:
+    """How many current vote lines :func:`result_lines` gives."""
+    return db.execute(
+        "SELECT COUNT(*) FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
+        "JOIN reductions r ON r.contest_id = c.id WHERE u.superseded_by IS NULL").fetchone()[0]

@@ -18,6 +18,8 @@ import pytest
 from bench import scenarios, synthetic
 from monitor import pipeline
 from monitor.ingest.load import load_file
+from monitor.publish import build
+from monitor.publish.reuse import MANIFEST
 from monitor.verify import verify_store
 from monitor.workspace import Workspace
 
@@ -45,12 +47,30 @@ def _arrive(h, path: Path) -> pipeline.RefreshReport:
     return pipeline.recompute(h["db"], h["config"])
 
 
+def _files(folder: Path) -> dict[str, bytes]:
+    return {p.relative_to(folder).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*"))
+            if p.is_file() and p.name != MANIFEST}
+
+
+def _republish_equals_a_full_build(h, label: str):
+    """The incremental republish (pages and downloads whose inputs changed) gives the bytes of a
+    build that renders everything; returns the incremental build's report."""
+    report = build(h["db"], h["config"], h["root"] / "public")
+    full = build(h["db"], h["config"], h["root"] / f"full-{label}", full=True)
+    assert _files(h["root"] / "public") == _files(h["root"] / f"full-{label}")
+    assert full.written and not full.unchanged
+    return report
+
+
 def test_a_new_cycle_then_corrections_equal_a_full_recompute(history):
     h = history
+    build(h["db"], h["config"], h["root"] / "public")
     new_cycle = _arrive(h, h["files"][2])
     assert new_cycle.measures_computed == 9  # the new cycle's 3 states x 3 chambers, nothing else
     assert new_cycle.groups_computed == 3    # its three (cycle, chamber) groups
     assert not verify_store(h["db"], h["config"])
+    site = _republish_equals_a_full_build(h, "new-cycle")
+    assert "cycle/1972.html" in site.unchanged  # the first cycle's page did not change
     # a correction of the new cycle, then one of an earlier cycle (the previous cycle's unit is
     # what the coverage of the next cycle of the same plan is measured against)
     for source, state, chamber in ((h["files"][2], None, "state_lower"), (h["files"][0], None, "federal")):
@@ -61,6 +81,8 @@ def test_a_new_cycle_then_corrections_equal_a_full_recompute(history):
         assert report.groups_computed == 1    # only its (cycle, chamber) national pool is redrawn
         differences = verify_store(h["db"], h["config"])
         assert not differences, "\n".join(map(str, differences[:20]))
+        site = _republish_equals_a_full_build(h, source.stem)
+        assert site.unchanged and site.written
 
 
 def test_nothing_changed_means_nothing_recomputed(history):

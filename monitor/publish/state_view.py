@@ -189,7 +189,7 @@ class StatePage:
                 for r in c.sort_values(["load_id", "cycle"], ascending=False).itertuples()]
 
     def _results(self, state: str, chamber: str) -> list[dict]:
-        c = self.by("contests", ("state", "chamber"), (state, chamber))
+        c = self.d.contests_of(state, chamber)
         out = []
         for cycle, part in sorted(c.groupby("cycle"), key=lambda kv: -kv[0]):
             cols = {k: part[k].tolist() for k in ("district", "special", "runoff", "seats", "votes_a", "votes_b",
