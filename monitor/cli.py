@@ -395,14 +395,16 @@ def _add_exports() -> None:
 @click.option("--out", type=click.Path(path_type=Path, file_okay=False),
               help="Folder to publish into (default the workspace's public/). It is replaced "
                    "entirely, so it must be new, empty or an earlier levelfield site.")
+@click.option("--full", is_flag=True, help="Render every page and download, not only those whose inputs changed.")
 @click.pass_obj
 @guarded
-def publish(ws: Workspace, out: Path | None) -> None:
+def publish(ws: Workspace, out: Path | None, full: bool) -> None:
     """Build the static site from the store: pages, charts, downloads and feed.
 
     The site is built beside the output folder and swapped in at once: a failed build leaves
-    the previous site whole. Pages whose content did not change are not rewritten. A folder
-    holding other files (or the store) is refused rather than emptied.
+    the previous site whole. Only the pages and downloads whose inputs changed since the last
+    build are rendered (--full: all of them); files whose content did not change are not
+    rewritten. A folder holding other files (or the store) is refused rather than emptied.
     """
     from monitor.progress import for_terminal, tell
     from monitor.publish import build_site
@@ -411,7 +413,7 @@ def publish(ws: Workspace, out: Path | None) -> None:
     db = _store(ws)
     tell(progress, "publish", 0, None, "building the site")
     try:
-        report = build_site(ws, db=db, out=out)
+        report = build_site(ws, db=db, out=out, full=full)
     finally:
         _clear(progress)
     for line in report.lines():

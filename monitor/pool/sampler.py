@@ -365,9 +365,12 @@ def _draw_unit(pool: NationalPool, eligible: np.ndarray, N: int, v: float, tol: 
     kept_j, kept_logw, kept_share, kept_seats = [], [], [], []
     got = done = 0
     while got < accepted and done < max_draws:
-        # size the batch from the acceptance seen so far (the first guesses 1 in 4)
-        rate = got / done if got else (0.25 if done == 0 else 0.5 / done)
-        want = int(np.ceil(1.2 * (accepted - got) / rate)) + 64
+        # size the batch from the acceptance seen so far (the first guesses 1 in 2, so that a unit
+        # whose draws mostly land in the window does not make many it will not use). The draws do
+        # not depend on the batch sizes: each is the next row of the unit's stream, and the unit
+        # stops at its accepted-th kept draw
+        rate = got / done if got else (0.5 if done == 0 else 0.5 / done)
+        want = int(np.ceil(1.1 * (accepted - got) / rate)) + 64
         r = min(rows, max_draws - done, want)
         j = _inverse_cdf(cdf, guide, rng.random((r, N)))
         sh = a[j].sum(axis=1) / n[j].sum(axis=1)
