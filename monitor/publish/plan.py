@@ -38,6 +38,8 @@ EVERYTHING = ("everything",)
 #: the pages rendered at every build: they summarise the whole store
 SUMMARY_PAGES = (P.HOME, P.WATCH, P.STATES, P.CYCLES, P.METHODS, P.DOWNLOADS, P.FEED)
 UNIT_KEYS = ["cycle", "state", "chamber"]
+#: columns that say when a row was computed, not what it holds
+STAMPS = ("computed_at",)
 _CODE = Path(__file__).resolve().parent
 _SITE_FILES = Path(__file__).resolve().parents[2] / "site"
 
@@ -82,7 +84,9 @@ def _fold(frame: pd.DataFrame, keys: list[str], tag: str, into: dict) -> None:
     by ``keys`` to ``into``: ``"k1|k2"`` -> parts."""
     if frame is None or frame.empty:
         return
-    h = _row_hashes(frame, list(frame.columns))
+    # when a row was (re)computed is not what a page shows: a chamber's coverage is rewritten
+    # whole when one of its units changes, and its other rows must not count as changed
+    h = _row_hashes(frame, [c for c in frame.columns if c not in STAMPS])
     codes = frame[keys[0]].astype(str).to_numpy(object)
     for k in keys[1:]:
         codes = codes + "|" + frame[k].astype(str).to_numpy(object)
