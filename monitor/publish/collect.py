@@ -115,13 +115,18 @@ class SiteData:
             self._contests = reduced_contests(self.db)
         return self._contests
 
-    def contests_of(self, state: str, chamber: str) -> pd.DataFrame:
-        """The current contests of one state chamber (read from the store: a state page's results)."""
+    def contests_of(self, state: str, chamber: str, cycles=None) -> pd.DataFrame:
+        """The current contests of one state chamber (of ``cycles`` only, when given), read from the
+        store: a state page's results."""
         if self._contests is not None:
             c = self._contests
-            return c[(c["state"] == state) & (c["chamber"] == chamber)]
-        ids = self.units.loc[(self.units["state"] == state) & (self.units["chamber"] == chamber), "unit_id"]
-        return reduced_contests(self.db, unit_ids=[int(u) for u in ids])
+            keep = (c["state"] == state) & (c["chamber"] == chamber)
+            return c[keep & c["cycle"].isin(cycles)] if cycles is not None else c[keep]
+        u = self.units
+        keep = (u["state"] == state) & (u["chamber"] == chamber)
+        if cycles is not None:
+            keep &= u["cycle"].isin(cycles)
+        return reduced_contests(self.db, unit_ids=[int(i) for i in u.loc[keep, "unit_id"]])
 
     @property
     def results(self) -> pd.DataFrame:

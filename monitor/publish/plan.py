@@ -162,3 +162,13 @@ def page_digests(inputs: dict[str, tuple], keyed: dict[tuple, str]) -> dict[str,
             continue
         out[page] = hashlib.sha256("|".join(f"{k}={keyed.get(k, '')}" for k in keys).encode()).hexdigest()
     return out
+
+
+def deliveries(data, keys: pd.DataFrame) -> dict[tuple, str]:
+    """(cycle, state, chamber) -> a digest of what a state page's table of that unit's district
+    results shows: the unit as delivered (its content, reduction, status and load) and what every
+    page shows (:func:`site_digest`, the templates and code included)."""
+    site = site_digest(data)
+    units = data.units.merge(keys[["unit_id", "content_sha256", "policy", "method_version"]], on="unit_id", how="left")
+    return {(int(r.cycle), r.state, r.chamber): hashlib.sha256(f"{site}|{'|'.join(map(str, r))}".encode()).hexdigest()[:32]
+            for r in units.itertuples(index=False)}

@@ -83,21 +83,33 @@ class Reuse:
         if path in self.now:
             self.now[path].update(bytes=size, sha256=sha256)
 
-    def part(self, name: str, make) -> bytes:
-        """The cached part ``name`` (a digest-derived file name), made by ``make()`` when absent."""
+    def cached(self, name: str) -> bytes | None:
+        """The cached part ``name``, or None (marked as used either way: a part asked for and then
+        made is kept)."""
         if self.cache is None:
-            return make()
+            return None
         self.used.add(name)
-        path = self.cache / name
         try:
-            return path.read_bytes()
+            return (self.cache / name).read_bytes()
         except OSError:
-            pass
-        data = make()
+            return None
+
+    def store(self, name: str, data: bytes) -> None:
+        if self.cache is None:
+            return
+        self.used.add(name)
         self.cache.mkdir(parents=True, exist_ok=True)
+        path = self.cache / name
         tmp = path.with_suffix(path.suffix + f".{os.getpid()}.tmp")
         tmp.write_bytes(data)
         tmp.replace(path)
+
+    def part(self, name: str, make) -> bytes:
+        """The cached part ``name`` (a digest-derived file name), made by ``make()`` when absent."""
+        data = self.cached(name)
+        if data is None:
+            data = make()
+            self.store(name, data)
         return data
 
     def manifest(self) -> bytes:
