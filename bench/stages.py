@@ -414,7 +414,7 @@ def stage_prepare(args: dict) -> dict:
     cheaply* with SEED_DRAWS per unit, untimed setup, see the README), and a full publish into
     the empty ``public/`` (timed: every page rendered and written). The workspace is kept as the
     state before the new cycle arrives."""
-    from monitor import aggregates
+    from monitor import aggregates, events, tails  # noqa: F401  (imported before the clock starts, as before)
     from monitor.compute import compute
     from monitor.flags import run_flags
 

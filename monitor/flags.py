@@ -217,7 +217,7 @@ def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, 
         report.groups_computed += 1
         report.units_pooled += len(part)
         rows = part.index.to_numpy()
-        arrays = measure_inputs(reduced_contests(db, int(cycle), chamber=chamber), config)
+        arrays = measure_inputs(reduced_contests(db, int(cycle), chamber=chamber), config, hashes=False)
         order = pd.MultiIndex.from_frame(arrays.units[UNIT_KEYS]).get_indexer(pd.MultiIndex.from_frame(part[UNIT_KEYS]))
         if (order < 0).any():
             raise RuntimeError(f"the stored measures of {cycle} {chamber} name units without stored reductions: "

@@ -50,11 +50,12 @@ class UnitArrays:
     state: np.ndarray            # state code per district row
 
 
-def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "") -> UnitArrays:
+def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "", *, hashes: bool = True) -> UnitArrays:
     """The unit arrays of the contests that enter the measures (their stored ``enters``, votes after
     the policy and ``uncontested`` flag), keeping every unit that has current contests deciding
     their seats (a unit with no eligible contest gets an empty segment: its measures are null with
-    a reason). ``salt`` (settings and method versions) enters every inputs hash."""
+    a reason). ``salt`` (settings and method versions) enters every inputs hash (``hashes=False``:
+    no hash, for a step that reads the hashes the measures were stored with)."""
     deciding = deciding_contests(contests)
     units = (deciding[["unit_id", *UNIT_KEYS]].drop_duplicates()
              .sort_values(UNIT_KEYS).reset_index(drop=True))
@@ -68,7 +69,7 @@ def measure_inputs(contests: pd.DataFrame, config: Config, salt: str = "") -> Un
     unc = two["uncontested"].astype(bool).to_numpy(bool)
     units["districts_eligible"] = np.bincount(unit, minlength=len(units))
     units["inputs_hash"] = _hashes(unit, two["district"].to_numpy(object), va, vb, unc, len(units),
-                                   f"{config.policy}|{salt}")
+                                   f"{config.policy}|{salt}") if hashes else ""
     return UnitArrays(units, unit, va, vb, unc, two["district"].to_numpy(object), two["state"].to_numpy(object))
 
 
