@@ -145,7 +145,7 @@ def describe_changes(old: pd.DataFrame, new: pd.DataFrame) -> list[str]:
     party, districts added or dropped, winners, vote totals.
 
     ``old`` and ``new``: reduced contests (:func:`reduce_contests` columns) indexed by the
-    contest key ``(district, special, runoff)`` (or ``(district, special)``), with an optional
+    contest key ``(district, special, runoff, position)`` (or a prefix of it), with an optional
     ``decides`` column (whether the contest decides its seat).
     """
     changes = []
@@ -155,9 +155,9 @@ def describe_changes(old: pd.DataFrame, new: pd.DataFrame) -> list[str]:
             changes.append(f"seats of party {code}: {before:g} -> {after:g}")
     both = "decides" in old.columns and "decides" in new.columns
     for key in sorted(set(old.index) | set(new.index)):
-        district, special, runoff = (*key, False)[:3]
+        district, special, runoff, position = (*key, False, False, "")[:4]
         kind = " ".join(k for k, on in (("special", special), ("runoff", runoff)) if on)
-        label = f"district {district}" + (f" ({kind})" if kind else "")
+        label = f"district {district}" + (f" seat {position}" if position else "") + (f" ({kind})" if kind else "")
         if key not in new.index:
             changes.append(f"{label}: dropped")
         elif key not in old.index:

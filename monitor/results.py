@@ -11,7 +11,7 @@ from store import queries
 
 RESULT_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id"]
 REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner", "runoff",
-                     "decides"]
+                     "decides", "position"]
 
 
 def current_lines(db: sqlite_utils.Database) -> pd.DataFrame:
