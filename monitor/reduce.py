@@ -38,13 +38,11 @@ from monitor.eligibility import ENTERS, contest_reasons
 STATUSES = ("contested", "uncontested", "same_party", "no_major")
 
 
-def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame:
-    """``votes``: columns contest_id, party_code, candidate, votes.
-    ``contests``: contest_id (index or column), seats.
-    Returns one row per contest_id with votes_a, votes_b, votes_other, total, status,
-    seats_a, seats_b, seats_other, winner (a | b | other | split) and candidates_a,
-    candidates_b, candidates_other (how many candidates of each code stood).
-    """
+def candidate_results(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame:
+    """One row per candidate of each contest (fusion lines summed): contest_id, key (the
+    candidate), votes, code (a | b | other), seats (of the contest) and won (1 for a seat, 0
+    for none, a share for a tie at the last winning place), sorted by contest then votes
+    (highest first). ``votes`` and ``contests`` as in :func:`reduce_contests`."""
     contests = contests.reset_index() if "contest_id" not in contests.columns else contests
     seats = contests.set_index("contest_id")["seats"].astype(np.int64)
     v = votes[["contest_id", "party_code", "candidate", "votes"]].copy()
@@ -76,13 +74,35 @@ def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame
     n_equal = pd.Series(equal).groupby(cand["contest_id"].to_numpy()).transform("sum").to_numpy()
     remaining = cand["seats"].to_numpy() - n_above
     cand["won"] = np.where(above, 1.0, np.where(equal, remaining / np.maximum(n_equal, 1), 0.0))
+    return cand
+
+
+def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame:
+    """``votes``: columns contest_id, party_code, candidate, votes.
+    ``contests``: contest_id (index or column), seats.
+    Returns one row per contest_id with votes_a, votes_b, votes_other, total, status,
+    seats_a, seats_b, seats_other, winner (a | b | other | split), candidates_a,
+    candidates_b, candidates_other (how many candidates of each code stood) and won_votes_a,
+    won_votes_b (the votes of the party's candidates who won, a tied candidate's counted by its
+    share of the seat) and tie_across_parties (candidates of different codes tied at the last
+    winning place).
+    """
+    contests = contests.reset_index() if "contest_id" not in contests.columns else contests
+    seats = contests.set_index("contest_id")["seats"].astype(np.int64)
+    cand = candidate_results(votes, contests)
 
     out = pd.DataFrame(index=seats.index)
+    cand["won_votes"] = cand["votes"] * cand["won"]  # a tie within a party: equal votes, either counts
     for c in ("a", "b", "other"):
         part = cand[cand["code"] == c].groupby("contest_id")
         out[f"votes_{c}"] = part["votes"].sum().reindex(out.index).fillna(0).astype(np.int64)
         out[f"seats_{c}"] = part["won"].sum().reindex(out.index).fillna(0.0)
         out[f"n_{c}"] = part.size().reindex(out.index).fillna(0).astype(np.int64)
+        if c != "other":  # the votes of the party's candidates who won (multi-member treatment)
+            out[f"won_votes_{c}"] = part["won_votes"].sum().reindex(out.index).fillna(0.0)
+    # a tie at the last winning place between candidates of different codes: no whole seat count
+    tied = cand[(cand["won"] > 0) & (cand["won"] < 1)].groupby("contest_id")["code"].nunique()
+    out["tie_across_parties"] = (tied.reindex(out.index).fillna(0) > 1).to_numpy()
     out["total"] = out[["votes_a", "votes_b", "votes_other"]].sum(axis=1)
     out["seats"] = seats
     has_a, has_b = out["n_a"] > 0, out["n_b"] > 0
