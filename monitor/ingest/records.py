@@ -90,6 +90,9 @@ def normalise_chamber(text: str) -> str:
     return text.lower()
 
 
+#: chamber names ending with this are levelfield's whole-chamber views (:mod:`monitor.staggered`)
+RESERVED_CHAMBER_SUFFIX = "_whole"
+
 KEY_FIELDS = ("cycle", "state", "chamber", "district", "special", "runoff", "position")
 
 
@@ -163,6 +166,11 @@ def parse_record(
     chamber = take("chamber", F.parse_text(cell("chamber"), "chamber", required=True))
     state = None if state is None else normalise_state(state)
     chamber = None if chamber is None else normalise_chamber(chamber)
+    if chamber is not None and chamber.endswith(RESERVED_CHAMBER_SUFFIX):
+        problems.append(Problem(ctx.file, row, F.shown(columns.get("chamber", "chamber")),
+                                f"chamber {chamber!r}: names ending in {RESERVED_CHAMBER_SUFFIX!r} are reserved for "
+                                "the whole-chamber view of a staggered chamber"))
+        chamber = None
     district = take("district", F.parse_text(cell("district"), "district", required=True))
     if district is not None and ctx.at_large is not None and district == ctx.at_large:
         district = "AL"
