@@ -29,12 +29,12 @@ def reduced_contests(db: sqlite_utils.Database, where: str = "", params=()) -> p
     lines = queries.current_votes(db, where, params)
     if lines.empty:
         return pd.DataFrame(columns=["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id",
-                                     "district", "seats", "special", "runoff", "decides", "left_out", "placeholder",
+                                     "district", "position", "seats", "special", "runoff", "decides", "left_out", "placeholder",
                                      "votes_a", "votes_b", "votes_other",
                                      "total", "status", "seats_a", "seats_b", "seats_other", "winner",
                                      "candidates_a", "candidates_b", "candidates_other"])
     contests = lines.drop_duplicates("contest_id")[
-        ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "seats", "special",
+        ["unit_id", *UNIT_KEYS, "certification", "load_id", "contest_id", "district", "position", "seats", "special",
          "runoff", "decides", "left_out", "placeholder"]
     ]
     reduced = reduce_contests(lines, contests[["contest_id", "seats"]]).drop(columns=["seats"])

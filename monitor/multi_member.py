@@ -60,6 +60,7 @@ UNFILLED = "multi-member contest with fewer candidates than seats"
 EXCLUDED_UNCONTESTED_SEAT = ("multi-member contest where a party ran fewer candidates than the seats it did not win "
                              "(an uncontested pseudo-district), left out under the exclude policy")
 MINOR_SEAT = "a seat won by a minor party or an independent"
+NO_MAJOR = "no major-party candidate"  # as monitor.eligibility says it
 
 COLUMNS = ["contest_id", "seat", "winner", "votes_a", "votes_b", "total", "uncontested"]
 
@@ -101,7 +102,7 @@ def reasons(reduced: pd.DataFrame, policy: str) -> np.ndarray:
     if policy == "exclude":
         out[uncontested_seats(reduced)] = EXCLUDED_UNCONTESTED_SEAT
     out[so > 0] = MINOR_SEAT
-    out[reduced["status"].to_numpy(object) == "no_major"] = "no major-party candidate"
+    out[reduced["status"].to_numpy(object) == "no_major"] = NO_MAJOR
     out[sa + sb + so < seats - 1e-9] = UNFILLED
     tie = (sa != np.round(sa)) | (sb != np.round(sb))
     if "tie_across_parties" in reduced.columns:

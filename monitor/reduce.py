@@ -33,6 +33,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from monitor import multi_member as M
 from monitor.eligibility import ENTERS, contest_reasons
 
 STATUSES = ("contested", "uncontested", "same_party", "no_major")
@@ -119,13 +120,44 @@ def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame
     return out.reset_index()
 
 
-def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
+def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float, treatment: str = M.LEAVE_OUT,
+                     *, per_seat: bool = False) -> pd.DataFrame:
     """The contests that enter the district-share measures, with ``votes_a``/``votes_b`` after the
-    uncontested policy and an ``uncontested`` flag. Left out: multi-member contests and contests
-    with no major party (no single two-party share per seat), and contests won by a minor party
-    or an independent (a two-party share would hand a major party a seat it did not win); under
-    ``exclude``, uncontested contests. The rules are :func:`monitor.eligibility.contest_reasons`."""
-    r = reduced[contest_reasons(reduced, policy) == ENTERS].copy()
+    uncontested policy and an ``uncontested`` flag. Left out: multi-member contests (unless the
+    multi-member ``treatment`` takes them) and contests with no major party (no single two-party
+    share per seat), and contests won by a minor party or an independent (a two-party share would
+    hand a major party a seat it did not win); under ``exclude``, uncontested contests. The rules
+    are :func:`monitor.eligibility.contest_reasons`.
+
+    A multi-member contest that enters under ``pseudo_districts`` (:mod:`monitor.multi_member`)
+    is one row with its pseudo-districts' votes added up (``uncontested`` when any of them is),
+    or, with ``per_seat``, one row per pseudo-district (``seat`` 1..k; 0 for every other row)."""
+    r = reduced[contest_reasons(reduced, policy, treatment) == ENTERS].copy()
+    multi = r["seats"].astype(int).to_numpy() > 1 if len(r) else np.zeros(0, dtype=bool)
+    single = _single_member_inputs(r[~multi], policy, winner_share).assign(seat=0)
+    if not multi.any():
+        return single
+    pseudo = M.pseudo_districts(r[multi].reset_index(drop=True).assign(contest_id=np.flatnonzero(multi)),
+                                policy, winner_share)
+    if per_seat:
+        rows = r.iloc[pseudo["contest_id"].to_numpy()].copy()
+        rows["seat"] = pseudo["seat"].to_numpy()
+    else:
+        pseudo = pseudo.groupby("contest_id", sort=True).agg(votes_a=("votes_a", "sum"), votes_b=("votes_b", "sum"),
+                                                             uncontested=("uncontested", "any"))
+        rows = r.iloc[pseudo.index.to_numpy()].copy()
+        rows["seat"] = 0
+    rows["votes_a"] = pseudo["votes_a"].to_numpy(float)
+    rows["votes_b"] = pseudo["votes_b"].to_numpy(float)
+    rows["uncontested"] = pseudo["uncontested"].to_numpy(bool)
+    where = pseudo["contest_id"].to_numpy() if per_seat else pseudo.index.to_numpy()  # positions in r
+    order = np.argsort(np.r_[np.flatnonzero(~multi), where], kind="mergesort")
+    return pd.concat([single, rows]).iloc[order]
+
+
+def _single_member_inputs(r: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
+    """:func:`two_party_inputs` for contests electing one member (all of which enter)."""
+    r = r.copy()
     lopsided = r["status"].isin(["uncontested", "same_party"])
     r["uncontested"] = lopsided
     va = r["votes_a"].astype(float)

@@ -401,6 +401,13 @@ MIGRATIONS: list[tuple[int, str, str]] = [
                    c.runoff, c.decides, c.left_out, c.placeholder, c.position
             FROM contests c JOIN units u ON u.id = c.unit_id
             WHERE u.superseded_by IS NULL;
+        -- coverage: per-cycle units of staggered chambers (partial), the cycles a whole-chamber
+        -- unit combines, the districts and seats that entered under the multi-member treatment
+        ALTER TABLE coverage ADD COLUMN partial INTEGER NOT NULL DEFAULT 0;
+        ALTER TABLE coverage ADD COLUMN combines TEXT;
+        ALTER TABLE coverage ADD COLUMN districts_treated INTEGER NOT NULL DEFAULT 0;
+        ALTER TABLE coverage ADD COLUMN seats_treated INTEGER NOT NULL DEFAULT 0;
+        ALTER TABLE coverage_gaps ADD COLUMN position TEXT NOT NULL DEFAULT '';
         """,
     ),
 ]

@@ -104,3 +104,19 @@ def test_files_without_positions_keep_their_content_hash(lf):
     import hashlib
     before = "1\x1f0\x1f1\x1fHarbour\x1fa\x1fMaren Olvas\x1f1200\x1f0\x1fcertified"
     assert content_hash([line + ("",)]) == hashlib.sha256(before.encode()).hexdigest()
+
+
+def test_coverage_counts_each_numbered_seat_and_names_a_left_out_one(lf):
+    # district 4 position B won by a minor party: left out; district 4 is then not wholly in the
+    # measures (one of its two seats), district 5 is. Hand-computed: 2 districts, 3 seats stored,
+    # 2 seats and 1 district in the measures.
+    rows = [r[:] for r in ROWS] + [[2022, "QV", "state_lower", "4", "Lantern", "Asa Fell", 600, "", 0, "B"]]
+    lf("load", lf.write("seats.csv", long_csv(rows, HEADER_EXTRA)))
+    lf("compute")
+    import json
+    unit = json.loads(lf("export", "coverage", "--format", "json").stdout)[0]
+    assert (unit["districts_in_measures"], unit["seats_in_measures"]) == (1, 2)
+    assert unit["seat_coverage"] == 2 / 3  # of the 3 seats stored (nothing expected in a first cycle)
+    assert "left out: district 4 seat B (won by a minor party or an independent)" in unit["missing_or_left_out"]
+    gaps = json.loads(lf("export", "coverage", "--districts", "--format", "json").stdout)
+    assert [(g["district"], g["position"], g["gap"]) for g in gaps] == [("4", "B", "left out")]
