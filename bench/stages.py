@@ -146,25 +146,27 @@ def _publish_info(report) -> dict:
 def cheap_pool(draws: int):
     """Within the block, the national-pool sampler keeps at most ``draws`` per unit (setup of
     the earlier cycles' stored pool rows only; never inside a timed section)."""
-    import monitor.pool as P
+    import monitor.pool.nulls as N  # where compare_with_pool looks the sampler up
 
-    original = P.simulate_delegations
+    original = N.simulate_delegations
 
     def capped(*args, **kwargs):
         kwargs["accepted"] = min(int(kwargs.get("accepted", draws)), draws)
         return original(*args, **kwargs)
 
-    P.simulate_delegations = capped
+    N.simulate_delegations = capped
     try:
         yield
     finally:
-        P.simulate_delegations = original
+        N.simulate_delegations = original
 
 
 # -- stages ----------------------------------------------------------------------------------
 
 def stage_load(args: dict) -> dict:
-    """Load the history (every cycle file but the new one) into an empty store."""
+    """Load the history (every cycle file but the new one) into an empty store, and reduce its
+    contests (the step ``levelfield load`` ends with)."""
+    from monitor import reductions
     from monitor.ingest.load import load_file
 
     ws, db, config = _workspace(args["ws"], args["data"])
@@ -178,6 +180,9 @@ def stage_load(args: dict) -> dict:
         total += time.perf_counter() - t0
         rows += report.rows_accepted
         units += len(report.units)
+    t0 = time.perf_counter()
+    reductions.refresh(db, config)  # the step `levelfield load` ends with: the contests' reductions
+    total += time.perf_counter() - t0
     if args.get("snap"):
         snapshot(db, ws, args["snap"])
     return {"seconds": total, "files": len(files), "rows": rows, "units": units}
@@ -197,12 +202,12 @@ def stage_compute(args: dict) -> dict:
 
 
 def _inputs(args):
-    from monitor.compute import measure_settings, settings_salt
+    from monitor.compute import settings_salt
     from monitor.inputs import measure_inputs, reduced_contests
 
     ws, db, config = _workspace(args["ws"], args["data"], args["store"])
     arrays = measure_inputs(reduced_contests(db), config, settings_salt(config))
-    return config, arrays, measure_settings(config)
+    return config, arrays, config.measures
 
 
 def stage_measures(args: dict) -> dict:
@@ -247,13 +252,12 @@ def stage_measures(args: dict) -> dict:
 def _latest_cycle_pools(args):
     """Pools of the latest cycle per chamber and the sampled units (deterministic)."""
     import monitor.pool as P
-    from monitor import measures as M
     from monitor.compute import settings_salt
     from monitor.inputs import measure_inputs, reduced_contests
 
     ws, db, config = _workspace(args["ws"], args["data"], args["store"])
     cycle = db.execute("SELECT MAX(cycle) FROM units").fetchone()[0]  # the history's latest
-    arr = measure_inputs(reduced_contests(db, "u.cycle = ?", [cycle]), config, settings_salt(config))
+    arr = measure_inputs(reduced_contests(db, cycle), config, settings_salt(config))
     out = []
     for chamber in sorted(arr.units["chamber"].unique()):
         members = arr.units.index[arr.units["chamber"] == chamber].to_numpy()
@@ -265,7 +269,7 @@ def _latest_cycle_pools(args):
         tot = np.bincount(local, va + vb, k)
         with np.errstate(invalid="ignore", divide="ignore"):
             share = np.bincount(local, va, k) / tot
-        observed = {name: getattr(M, fn)(local, va, vb, k) for name, fn in P.NULL_MEASURES.items()}
+        observed = {name: fn(local, va, vb, k) for name, fn in P.NULL_MEASURES.items()}
         ok = (va + vb) > 0
         pool = P.national_pool(va[ok], vb[ok], st[ok])
         live = np.flatnonzero((n >= 2) & np.isfinite(share))
@@ -407,6 +411,7 @@ def stage_prepare(args: dict) -> dict:
     cheaply* with SEED_DRAWS per unit, untimed setup, see the README), and a full publish into
     the empty ``public/`` (timed: every page rendered and written). The workspace is kept as the
     state before the new cycle arrives."""
+    from monitor import aggregates
     from monitor.compute import compute
     from monitor.flags import run_flags
 
@@ -421,6 +426,7 @@ def stage_prepare(args: dict) -> dict:
     else:
         with cheap_pool(SEED_DRAWS):
             flags = run_flags(db, config, full=True)
+    aggregates.refresh(db)  # national aggregates and curves, stored for the site
     seeded_peak = peak_rss_mb()
     reset_peak()
     t2 = time.perf_counter()
@@ -440,7 +446,9 @@ def stage_prepare(args: dict) -> dict:
 
 
 def stage_incremental(args: dict) -> dict:
-    """One new cycle arrives: load it, recompute (incremental), flags (incremental), republish."""
+    """One new cycle arrives: load it (and reduce it), recompute (incremental), flags
+    (incremental) and aggregates, republish."""
+    from monitor import aggregates, reductions
     from monitor.compute import compute
     from monitor.flags import run_flags
     from monitor.ingest.load import load_file
@@ -452,10 +460,12 @@ def stage_incremental(args: dict) -> dict:
     steps = {}
     t0 = start_timed()
     load_file(db, Path(args["file"]), config)
+    reductions.refresh(db, config)
     t1 = time.perf_counter()
     measures = compute(db, config)
     t2 = time.perf_counter()
     flags = run_flags(db, config)
+    aggregates.refresh(db)
     t3 = time.perf_counter()
     steps = {"load": t1 - t0, "compute": t2 - t1, "flags": t3 - t2}
     info = {"units_computed": measures.units_computed, "groups_computed": flags.groups_computed,

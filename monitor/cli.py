@@ -43,6 +43,16 @@ def _clear(progress) -> None:
         progress.clear()
 
 
+def _store(ws: Workspace):
+    """The workspace's store with its inputs brought up to date with levelfield.toml (re-coded party
+    labels, reduced contests): what every command that reads the store uses."""
+    from monitor.pipeline import prepare
+
+    db = ws.open_store()
+    prepare(db, ws.config(), ws.notify)
+    return db
+
+
 def _fail(message: str, code: int) -> None:
     click.echo(message, err=True)
     sys.exit(code)
@@ -113,7 +123,7 @@ def main(ctx: click.Context, workspace: str | None) -> None:
 def init(ws: Workspace) -> None:
     """Create the workspace with a commented default levelfield.toml."""
     made = ws.ensure()
-    ws.open_store()
+    _store(ws)
     if made:
         for path in made:
             click.echo(f"created {path}")
@@ -143,11 +153,13 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
     """
     from monitor.ingest import load_file
     from monitor.ingest.mapping import load_mapping
+    from monitor.pipeline import prepare
     from monitor.progress import for_terminal, tell
 
     config = ws.config()
     mapping = load_mapping(mapping_path) if mapping_path else None
-    db = ws.open_store(follow_config=not dry_run)  # a dry run writes nothing (it reports any re-coding)
+    # a dry run writes nothing (it reports any re-coding); a load is followed by its reduction
+    db = ws.open_store() if dry_run else _store(ws)
     worst = 0
     progress = for_terminal()  # one line on a terminal's stderr, redrawn per file; else None
     for number, path in enumerate(files, 1):
@@ -171,6 +183,8 @@ def load(ws: Workspace, files, mapping_path, source, dry_run, skip_bad_rows, enc
             continue
         for line in report.lines():
             click.echo(line)
+    if not dry_run:
+        prepare(db, config, ws.notify)
     if worst:
         sys.exit(worst)
 
@@ -184,7 +198,7 @@ def status(ws: Workspace) -> None:
     from monitor.status import store_status
 
     click.echo(f"workspace {ws.root}")
-    for line in store_status(ws).lines():
+    for line in store_status(ws, _store(ws)).lines():
         click.echo(line)
 
 
@@ -196,24 +210,15 @@ def status(ws: Workspace) -> None:
 def compute(ws: Workspace, full: bool) -> None:
     """Recompute the measures of units whose inputs or method changed, then the national
     pool, the flags and the watch list of the cycles and chambers they touch."""
-    from monitor.compute import compute as run
-    from monitor.flags import run_flags
-
+    from monitor.pipeline import refresh
     from monitor.progress import for_terminal
 
-    db, config = ws.open_store(), ws.config()
     progress = for_terminal()  # measures stages, then each cycle/chamber group of the flags
     try:
-        report = run(db, config, full=full, progress=progress)
+        report = refresh(ws, full=full, publish=False, progress=progress)
     finally:
         _clear(progress)
-    for line in report.lines():
-        click.echo(line)
-    try:
-        report = run_flags(db, config, full=full, progress=progress)
-    finally:
-        _clear(progress)
-    for line in report.lines():
+    for line in report.lines:
         click.echo(line)
 
 
@@ -242,7 +247,7 @@ def flags(ws: Workspace, cycle, chamber, watch_list, changes, fmt) -> None:
     if watch_list and changes:
         raise UsageError("--watch and --changes show different tables: give one of them, not both")
     show = "watch" if watch_list else "changes" if changes else "flags"
-    write(to_text(flag_table(ws.open_store(), show, cycle=cycle, chamber=chamber), fmt), None)
+    write(to_text(flag_table(_store(ws), show, cycle=cycle, chamber=chamber), fmt), None)
 
 
 @main.command()
@@ -261,7 +266,7 @@ def plans(ws: Workspace, file: Path) -> None:
     """
     from monitor.plans import load_plans
 
-    done = load_plans(ws.open_store(), file)
+    done = load_plans(_store(ws), file)
     click.echo(f"{file.name}: {done['plans']} plan(s) loaded for {done['state_chambers']} state chamber(s)")
 
 
@@ -307,8 +312,9 @@ def watch(ws: Workspace, inbox, every, once, no_publish) -> None:
 def verify(ws: Workspace) -> None:
     """Recompute everything from scratch and compare it with what is stored.
 
-    Measures, national pool, tails, flags and watch list are recomputed on a scratch copy of the
-    store (in a temporary folder; the workspace is only read) and every difference is printed,
+    Contest reductions, measures, coverage, national pool, tails, flags, watch list and the
+    aggregates the site shows are recomputed on a scratch copy of the store (in a temporary
+    folder; the results in the workspace are only read) and every difference is printed,
     as a changed method version or as a bug. Exit 0 when there is none, 1 when there are
     differences (`levelfield compute --full` then brings the store up to date).
     """
@@ -317,7 +323,7 @@ def verify(ws: Workspace) -> None:
 
     progress = for_terminal()
     try:
-        differences = verify_store(ws.open_store(), ws.config(), progress=progress)
+        differences = verify_store(_store(ws), ws.config(), progress=progress)
     finally:
         _clear(progress)
     for diff in differences:
@@ -325,8 +331,8 @@ def verify(ws: Workspace) -> None:
     if differences:
         click.echo(f"{summary(differences)}; `levelfield compute --full` recomputes the store", err=True)
         sys.exit(1)
-    click.echo("no difference: the stored measures, national pool, flags and watch list equal a "
-               "from-scratch recompute")
+    click.echo("no difference: the stored reductions, measures, coverage, national pool, flags, watch list and "
+               "aggregates equal a from-scratch recompute")
 
 
 @main.group()
@@ -339,104 +345,34 @@ FORMAT = click.option("--format", "fmt", type=click.Choice(["csv", "json"]), def
 OUT = click.option("--out", type=click.Path(path_type=Path, dir_okay=False), help="Write to this file (default stdout).")
 
 
-@export.command("results")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_results(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Current results (the district_results columns) with each contest's two-party reduction."""
-    from monitor.output import to_text, write
-    from monitor.results import results_export
+def _export_command(item) -> click.Command:
+    """``levelfield export NAME``: the stored rows of one export (:data:`monitor.exports.EXPORTS`),
+    as CSV or JSON, with the export's flags as options."""
 
-    write(to_text(results_export(ws.open_store()), fmt), out)
+    @workspace_option
+    @FORMAT
+    @OUT
+    @click.pass_obj
+    @guarded
+    def command(ws: Workspace, fmt: str, out: Path | None, **flags: bool) -> None:
+        from monitor.output import to_text, write
 
+        write(to_text(item.frame(_store(ws), **flags), fmt), out)
 
-@export.command("measures")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_measures(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy
-    (fixed, in this order), then reason (why a value is undefined) and the unit's coverage and vote
-    shares: districts_in_measures, districts_expected, seats_in_measures, seats_expected,
-    seat_coverage, incomplete (yes/no), expected_from, missing_or_left_out, vote_share_as_cast,
-    vote_share_after_policy, national_vote_share_as_cast, national_vote_share_after_policy."""
-    from monitor.exports import measures_export
-    from monitor.output import to_text, write
-
-    write(to_text(measures_export(ws.open_store()), fmt), out)
+    for flag, text in item.flags.items():
+        command = click.option(f"--{flag}", is_flag=True, help=text)(command)
+    command.__doc__ = item.help
+    return export.command(item.name)(command)
 
 
-@export.command("coverage")
-@workspace_option
-@FORMAT
-@OUT
-@click.option("--districts", is_flag=True,
-              help="One row per district missing or left out of the measures (cycle,state,chamber,district,seats,"
-                   "gap,reason) instead of one row per unit.")
-@click.pass_obj
-@guarded
-def export_coverage(ws: Workspace, fmt: str, out: Path | None, districts: bool) -> None:
-    """What the measures cover, one row per unit (the site's coverage download): cycle,state,chamber,
-    districts_in_measures,districts_expected,seats_in_measures,seats_expected,seat_coverage,incomplete,
-    expected_from,missing_or_left_out,vote_share_as_cast,vote_share_after_policy,
-    national_vote_share_as_cast,national_vote_share_after_policy. Computed by `levelfield compute`."""
-    from monitor.exports import coverage_export
-    from monitor.output import to_text, write
+def _add_exports() -> None:
+    from monitor.exports import EXPORTS
 
-    write(to_text(coverage_export(ws.open_store(), districts=districts), fmt), out)
+    for item in EXPORTS:
+        _export_command(item)
 
 
-@export.command("expected-seats")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_expected_seats(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Expected seats from the national pool, per unit (the site's expected-seats download):
-    cycle,state,chamber,districts,vote_share,seats_a,expected_seats,low,high,percentile,excess_seats,
-    draws,ess,mc_se,reason,method_version. excess_seats = seats_a - expected_seats (positive favours a)."""
-    from monitor.exports import expected_seats_export
-    from monitor.output import to_text, write
-
-    write(to_text(expected_seats_export(ws.open_store()), fmt), out)
-
-
-@export.command("tails")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_tails(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """Every unit and measure against its national-pool null, flagged or not and why (the site's
-    flagged-units download): cycle,state,chamber,measure,value,null_percentile,null_low,null_high,
-    p_value,cross_percentile,robust_z,flagged,favours,basis,plan_id,reason,incomplete. Percentiles
-    are fractions 0-1; flagged is 1 or 0."""
-    from monitor.exports import tails_export
-    from monitor.output import to_text, write
-
-    write(to_text(tails_export(ws.open_store()), fmt), out)
-
-
-@export.command("national")
-@workspace_option
-@FORMAT
-@OUT
-@click.pass_obj
-@guarded
-def export_national(ws: Workspace, fmt: str, out: Path | None) -> None:
-    """National aggregates per cycle and chamber: districts, seats and votes of each party, uncontested
-    and competitive districts, flagged states, excess seats by who drew the plan."""
-    from monitor.national import national_export
-    from monitor.output import to_text, write
-
-    write(to_text(national_export(ws.open_store(), ws.config()), fmt), out)
+_add_exports()
 
 
 @main.command()
@@ -454,12 +390,13 @@ def publish(ws: Workspace, out: Path | None) -> None:
     holding other files (or the store) is refused rather than emptied.
     """
     from monitor.progress import for_terminal, tell
-    from monitor.publish import build
+    from monitor.publish import build_site
 
     progress = for_terminal()  # the build reports no pages as it goes: the line shows its elapsed time
+    db = _store(ws)
     tell(progress, "publish", 0, None, "building the site")
     try:
-        report = build(ws, out=out)
+        report = build_site(ws, db=db, out=out)
     finally:
         _clear(progress)
     for line in report.lines():

@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-from dataclasses import dataclass, field, fields
+import dataclasses
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -18,29 +19,18 @@ import sqlite_utils
 
 from monitor.config import Config
 from monitor.coverage import compute_coverage, coverage_lines, write_coverage
-from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
-from monitor.measures import MEASURE_VERSIONS, MeasureSettings, compute_measures
+from monitor.inputs import UNIT_KEYS, measure_inputs, measured_contests, stored_unit_id
+from monitor.measures import MEASURE_VERSIONS, compute_measures
 from monitor.progress import tell
+from store import measures as store_measures
 from store import write_from_snapshot
 
 
-def measure_settings(config: Config) -> MeasureSettings:
-    """The engine's settings from the ``[measures]`` section (options the engine does not know
-    are ignored; options the config does not set keep the engine's defaults)."""
-    known = {f.name for f in fields(MeasureSettings)}
-    values = {}
-    for name in known:
-        try:
-            values[name] = config[f"measures.{name}"]
-        except KeyError:
-            continue
-    return MeasureSettings(**values)
-
 
 def settings_salt(config: Config) -> str:
-    settings = measure_settings(config)
-    parts = {f.name: getattr(settings, f.name) for f in fields(settings)}
-    parts["seed"] = config["measures.seed"]
+    """What, besides a unit's districts, its measures depend on: the ``[measures]`` settings
+    (seed included) and every measure's method version. Part of every inputs hash."""
+    parts = dataclasses.asdict(config.measures)
     parts["versions"] = MEASURE_VERSIONS
     return json.dumps(parts, sort_keys=True, default=str)
 
@@ -71,7 +61,7 @@ def compute_frame(config: Config, contests: pd.DataFrame) -> tuple[pd.DataFrame,
         return units, pd.DataFrame(columns=[*UNIT_KEYS, "measure", "value", "low", "high", "p_value", "reason"])
     rng = np.random.default_rng(config["measures.seed"])
     long = compute_measures(arrays.unit, arrays.votes_a, arrays.votes_b, arrays.uncontested,
-                            len(units), measure_settings(config), rng)
+                            len(units), config.measures, rng)
     keys = units[[*UNIT_KEYS, "unit_id", "inputs_hash"]].reset_index(drop=True)
     long = long.join(keys, on="unit")
     return units, long
@@ -94,12 +84,11 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     """Read the store and compute the stale units' measures; return the writer."""
     tell(progress, "measures", 0, 3, "reading the store")
     report = ComputeReport()
-    contests = reduced_contests(db)
+    contests, whole = measured_contests(db, config)
     arrays = measure_inputs(contests, config, settings_salt(config))
     units = arrays.units
     report.units_total = len(units)
-    stored = pd.read_sql_query(
-        "SELECT cycle, state, chamber, measure, inputs_hash, method_version FROM measures", db.conn)
+    stored = store_measures.stored_hashes(db)
     stale = units.index.to_numpy()
     if not full and not stored.empty:
         fresh = set()
@@ -115,7 +104,7 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     current = set(zip(units["cycle"], units["state"], units["chamber"]))
     gone = {k for k in zip(stored["cycle"], stored["state"], stored["chamber"])} - current
     report.units_removed = len(gone)
-    cover = compute_coverage(db, config, contests)
+    cover = compute_coverage(db, config, contests, whole)
     report.coverage = coverage_lines(cover.units, config["flags.min_coverage"])
 
     rows = []
@@ -126,7 +115,7 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
         long = long.astype(object).where(long.notna(), None)
         rows = [
             (r.cycle, r.state, r.chamber, r.measure, r.value, r.low, r.high, r.p_value, r.reason,
-             MEASURE_VERSIONS[r.measure], config.policy, r.inputs_hash, r.unit_id, stamp)
+             MEASURE_VERSIONS[r.measure], config.policy, r.inputs_hash, stored_unit_id(r.unit_id), stamp)
             for r in long.itertuples(index=False)
         ]
         report.computed = sorted({(r[0], r[1], r[2]) for r in rows})
@@ -134,13 +123,7 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     tell(progress, "measures", 2, 3, f"writing {len(rows)} row(s)")
 
     def write(conn) -> ComputeReport:
-        for key in report.computed + sorted(gone):
-            conn.execute("DELETE FROM measures WHERE cycle = ? AND state = ? AND chamber = ?", list(key))
-        conn.executemany(
-            "INSERT INTO measures (cycle, state, chamber, measure, value, low, high, p_value, reason, "
-            "method_version, policy, inputs_hash, unit_id, computed_at) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
-            rows,
-        )
+        store_measures.replace_units(conn, report.computed + sorted(gone), rows)
         report.rows_written = len(rows)
         write_coverage(conn, cover, config.policy, stamp)
         return report

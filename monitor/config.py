@@ -1,16 +1,22 @@
 """The workspace configuration (``levelfield.toml``): a schema of options, each with its
 default and help, validated all at once so the user sees every problem in one go.
 
+:data:`OPTIONS` is the only schema: the commented default file, the validation of
+``levelfield.toml``, the settings table of the methods page and the typed sections the library
+reads (``config.measures`` is a :class:`MeasureSettings`, ``config.pool`` a :class:`PoolSettings`,
+...) are all built from it.
+
 The ``[parties.a]`` / ``[parties.b]`` tables are a fixed contract (other tools write them):
 ``name``, ``labels`` and ``colour``.
 """
 
 from __future__ import annotations
 
+import copy
 import difflib
 import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, make_dataclass
 from pathlib import Path
 from typing import Any, Callable
 
@@ -21,11 +27,15 @@ _COLOUR = re.compile(r"^#[0-9a-fA-F]{6}$")
 
 @dataclass(frozen=True)
 class Option:
+    """One option: ``help`` is written into levelfield.toml and shown on the methods page;
+    ``note`` (sources, project choices) goes into the typed section's documentation only."""
+
     section: str
     key: str
     default: Any
     help: str
     check: Callable[[Any], str | None] = field(default=lambda v: None, compare=False)
+    note: str = ""
     #: a table option (any keys below it): lines shown commented out in the default levelfield.toml
     example: tuple[str, ...] = ()
 
@@ -34,7 +44,7 @@ class Option:
         return f"{self.section}.{self.key}"
 
 
-def _typed(kind, *, low=None, high=None, choices=None):
+def _typed(kind, *, low=None, high=None, choices=None, above=None, below=None):
     def check(value):
         if kind is float and isinstance(value, int) and not isinstance(value, bool):
             value = float(value)
@@ -46,6 +56,10 @@ def _typed(kind, *, low=None, high=None, choices=None):
             return f"must be at least {low}, got {value!r}"
         if high is not None and value > high:
             return f"must be at most {high}, got {value!r}"
+        if above is not None and value <= above:
+            return f"must be above {above}, got {value!r}"
+        if below is not None and value >= below:
+            return f"must be below {below}, got {value!r}"
         return None
 
     return check
@@ -138,6 +152,8 @@ OPTIONS: list[Option] = [
     Option(
         "measures", "lopsided_variant", "welch", "t-test of the lopsided-margins test: welch | pooled",
         _typed(str, choices=("welch", "pooled")),
+        note="Welch (unequal variances) or pooled (Student). Which one Wang (2016) used is not verified; "
+             "pages must name the variant.",
     ),
     Option(
         "measures", "symmetry_band", 0.05,
@@ -147,19 +163,40 @@ OPTIONS: list[Option] = [
         _typed(float, low=0.0, high=0.5),
     ),
     Option(
-        "measures", "interval_draws", 1000, "simulated elections behind each 95% interval",
-        _typed(int, low=10, high=1_000_000),
+        "measures", "interval_draws", 1000, "simulated elections behind each 95% interval (0: no intervals)",
+        _typed(int, low=0, high=1_000_000),
+        note="Rounded up to even (antithetic pairs).",
     ),
     Option(
         "measures", "noise_sd", 0.03,
         "SD of the district-level two-party share noise used for intervals",
         _typed(float, low=0.0, high=0.5),
+        note="Gelman & King (1994)-style hypothetical elections; the value is a project choice, not an estimate.",
+    ),
+    Option(
+        "measures", "interval_level", 0.95, "coverage of the simulation intervals",
+        _typed(float, above=0.0, below=1.0),
     ),
     Option("measures", "seed", 20240101, "random seed of the interval simulations", _typed(int, low=0)),
     Option(
         "measures", "responsiveness_h", 0.05,
         "responsiveness is [S(V+h) - S(V-h)] / 2h at the observed statewide vote V",
         _typed(float, low=0.001, high=0.5),
+        note="Project choice: S is a step function, so h must be wide enough to hold some districts for small "
+             "delegations; 5 points matches the competitive window (responsiveness is then the share of "
+             "districts within 5 points of 50%, divided by 0.1).",
+    ),
+    Option(
+        "measures", "swing_reference", "vote_weighted",
+        "uniform swing shifts every district from the statewide vote-weighted share (vote_weighted) or from "
+        "the unweighted mean district share (district_mean)",
+        _typed(str, choices=("vote_weighted", "district_mean")),
+    ),
+    Option(
+        "measures", "min_districts", 2,
+        "the asymmetry measures need at least this many districts (the descriptive counts do not)",
+        _typed(int, low=1, high=1_000_000),
+        note="Project choice. Not the same as flags.min_districts, below which a unit is never flagged.",
     ),
     Option(
         "pool", "tolerance", 0.005,
@@ -267,6 +304,60 @@ _BY_NAME = {opt.name: opt for opt in OPTIONS}
 SECTIONS = list(dict.fromkeys(opt.section for opt in OPTIONS))
 
 
+class SettingsError(ValueError):
+    """Invalid values given to a typed section in code (levelfield.toml problems are ConfigErrors)."""
+
+
+def section_options(section: str) -> list[Option]:
+    """The options of one section, in schema order."""
+    return [opt for opt in OPTIONS if opt.section == section]
+
+
+def _validate_section(self) -> None:
+    """``__post_init__`` of a typed section: check every value with its option, report all at once."""
+    problems = []
+    for opt in section_options(self.SECTION):
+        value = getattr(self, opt.key)
+        message = opt.check(value)
+        if message:
+            problems.append(f"{opt.key} {message}")
+        elif isinstance(opt.default, float) and isinstance(value, int) and not isinstance(value, bool):
+            object.__setattr__(self, opt.key, float(value))
+    if problems:
+        raise SettingsError(f"invalid {self.SECTION} settings: " + "; ".join(problems))
+
+
+def section_type(section: str, name: str, summary: str) -> type:
+    """A frozen dataclass with one field per option of ``section`` (default, type and validation
+    from :data:`OPTIONS`; its docstring lists each option's help and note)."""
+    options = section_options(section)
+    doc = [summary, "", "Built from ``config.OPTIONS``; invalid values raise one :class:`SettingsError` naming all.",
+           ""]
+    for opt in options:
+        doc.append(f"``{opt.key}`` (default {opt.default!r}): {opt.help}." + (f" {opt.note}" if opt.note else ""))
+    fields_ = [(opt.key, type(opt.default),
+                field(default_factory=lambda d=opt.default: copy.deepcopy(d)) if isinstance(opt.default, (dict, list))
+                else field(default=opt.default)) for opt in options]
+    return make_dataclass(name, fields_, frozen=True, namespace={
+        "SECTION": section, "__doc__": "\n".join(doc), "__post_init__": _validate_section,
+        "__module__": __name__})
+
+
+MeasureSettings = section_type("measures", "MeasureSettings", "How the measures engine computes the measures.")
+PoolSettings = section_type("pool", "PoolSettings", "How the national pool is simulated.")
+FlagSettings = section_type("flags", "FlagSettings", "When a unit is flagged and a plan put on watch.")
+UncontestedSettings = section_type("uncontested", "UncontestedSettings", "How uncontested contests enter the measures.")
+LoadSettings = section_type("load", "LoadSettings", "Limits of the loader.")
+ScheduleSettings = section_type("schedule", "ScheduleSettings", "When the watcher runs its jobs.")
+SiteSettings = section_type("site", "SiteSettings", "How the site is published.")
+CoverageSettings = section_type("coverage", "CoverageSettings", "What each unit's coverage is measured against.")
+
+#: the typed sections, by the name of the section they are built from
+SECTION_TYPES: dict[str, type] = {cls.SECTION: cls for cls in (
+    MeasureSettings, PoolSettings, FlagSettings, UncontestedSettings, LoadSettings, ScheduleSettings, SiteSettings,
+    CoverageSettings)}
+
+
 @dataclass(frozen=True)
 class Party:
     code: str
@@ -284,6 +375,23 @@ class Config:
 
     def __getitem__(self, name: str) -> Any:
         return self._values[name]
+
+    def section(self, name: str):
+        """The typed section ``name`` (one of :data:`SECTION_TYPES`) with this configuration's values."""
+        cls = SECTION_TYPES[name]
+        return cls(**{opt.key: self._values[opt.name] for opt in section_options(name)})
+
+    @property
+    def measures(self) -> "MeasureSettings":
+        return self.section("measures")
+
+    @property
+    def pool(self) -> "PoolSettings":
+        return self.section("pool")
+
+    @property
+    def flags(self) -> "FlagSettings":
+        return self.section("flags")
 
     def party(self, code: str) -> Party:
         return Party(

@@ -439,7 +439,11 @@ def compute_coverage(db, config, contests: pd.DataFrame, whole: pd.DataFrame | N
 
 def write_coverage(conn, cov: Coverage, policy: str, stamp: str) -> None:
     """Replace the stored coverage (inside the caller's transaction)."""
-    units = cov.units.assign(policy=policy, computed_at=stamp)[tables.UNIT_COLUMNS]
+    from monitor.inputs import stored_unit_id
+
+    units = cov.units.assign(policy=policy, computed_at=stamp)
+    units["unit_id"] = [stored_unit_id(u) for u in units["unit_id"]]  # a whole-chamber unit has none
+    units = units[tables.UNIT_COLUMNS]
     tables.replace_coverage(conn, [tuple(_plain(v) for v in r) for r in units.itertuples(index=False)],
                             [tuple(_plain(v) for v in r) for r in cov.gaps.itertuples(index=False)])
 

@@ -1,5 +1,7 @@
-"""What ``levelfield export measures | coverage | expected-seats | tails`` write, and the columns the site's
-downloads of the same tables share with them.
+"""What ``levelfield export NAME`` writes: one table of (name, help, query, columns), :data:`EXPORTS`,
+from which the command line makes one ``export`` subcommand per row; and the columns the site's
+downloads of the same tables share with them. Every export reads stored rows only; its columns are
+a contract other tools read (columns may be added, never renamed or dropped).
 
 Column lists are ``(name, Table Schema type, meaning)`` tuples, as in :mod:`monitor.national`:
 the command line writes the names in this order and the site's downloads describe their files
@@ -15,8 +17,16 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from dataclasses import dataclass, field
+from typing import Callable
+
+import sqlite_utils
+
 from monitor.coverage import national_shares, stored_coverage, with_shares
-from store import queries
+from monitor.national import SUMMARY_COLUMNS
+from monitor.results import REDUCTION_COLUMNS, RESULT_COLUMNS, results_export
+from store import aggregates
+from store.tables import read_table
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
 KEYS = [("cycle", "integer", "election year"), ("state", "string", "state code as loaded"),
@@ -133,7 +143,7 @@ def with_unit_coverage(frame: pd.DataFrame, coverage: pd.DataFrame, columns: lis
 def measures_export(db) -> pd.DataFrame:
     """``levelfield export measures``: the fixed columns, ``reason``, then the coverage and vote
     shares of each row's unit."""
-    m = queries.read_table(db, "measures", [*MEASURE_COLUMNS, "reason"], "cycle, state, chamber, measure")
+    m = read_table(db, "measures", [*MEASURE_COLUMNS, "reason"], "cycle, state, chamber, measure")
     m["reason"] = m["reason"].where(m["reason"].astype(str).str.len() > 0, None)  # stored "" for a defined value
     out = with_unit_coverage(m, coverage_columns(stored_coverage(db).units), names(COVERAGE_FIELDS))
     return out[MEASURES_EXPORT_COLUMNS]
@@ -151,7 +161,7 @@ def coverage_export(db, districts: bool = False) -> pd.DataFrame:
 def expected_seats_export(db) -> pd.DataFrame:
     """``levelfield export expected-seats``: the national pool's expected seats per unit (the
     columns of the site's expected-seats download)."""
-    return typed(queries.read_table(db, "pool_seats", names(EXPECTED_SEATS_FIELDS), "cycle, state, chamber"),
+    return typed(read_table(db, "pool_seats", names(EXPECTED_SEATS_FIELDS), "cycle, state, chamber"),
                  EXPECTED_SEATS_FIELDS)
 
 
@@ -159,6 +169,55 @@ def tails_export(db) -> pd.DataFrame:
     """``levelfield export tails``: every unit and measure against its national-pool null, flagged
     or not and why (the columns of the site's flagged-units download)."""
     stored = [n for n in names(TAILS_FIELDS) if n not in ("favours", "incomplete")] + ["direction"]
-    t = queries.read_table(db, "tails", stored, "cycle, state, chamber, measure").rename(columns={"direction": "favours"})
+    t = read_table(db, "tails", stored, "cycle, state, chamber, measure").rename(columns={"direction": "favours"})
     t = with_unit_coverage(t, coverage_columns(stored_coverage(db).units), ["incomplete"])
     return typed(t[names(TAILS_FIELDS)], TAILS_FIELDS)
+
+
+@dataclass(frozen=True)
+class Export:
+    """One ``levelfield export NAME``: ``query(db, **flags)`` gives its rows, ``columns`` their
+    names in order (of the default rows; a flag may select other rows, e.g. ``coverage
+    --districts``); ``flags``: boolean options, name -> help."""
+
+    name: str
+    help: str
+    query: Callable[..., pd.DataFrame]
+    columns: list[str]
+    flags: dict[str, str] = field(default_factory=dict)
+
+    def frame(self, db: sqlite_utils.Database, **flags: bool) -> pd.DataFrame:
+        out = self.query(db, **flags)
+        return out if any(flags.values()) else out[self.columns]
+
+
+EXPORTS: list[Export] = [
+    Export("results", "Current results (the district_results columns) with each contest's two-party reduction.",
+           results_export, RESULT_COLUMNS + REDUCTION_COLUMNS),
+    Export("measures",
+           "Stored measures: cycle,state,chamber,measure,value,low,high,p_value,method_version,policy (fixed, in "
+           "this order), then reason (why a value is undefined) and the unit's coverage and vote shares: "
+           + ",".join(names(COVERAGE_FIELDS)) + ".", measures_export, MEASURES_EXPORT_COLUMNS),
+    Export("coverage",
+           "What the measures cover, one row per unit (the site's coverage download): "
+           + ",".join([*UNIT_KEYS, *names(COVERAGE_FIELDS)]) + ". Computed by `levelfield compute`.",
+           coverage_export, [*UNIT_KEYS, *names(COVERAGE_FIELDS)],
+           flags={"districts": "One row per district missing or left out of the measures (" + ",".join(names(GAP_FIELDS))
+                               + ") instead of one row per unit."}),
+    Export("expected-seats",
+           "Expected seats from the national pool, per unit (the site's expected-seats download): "
+           + ",".join(names(EXPECTED_SEATS_FIELDS)) + ". excess_seats = seats_a - expected_seats (positive favours a).",
+           expected_seats_export, names(EXPECTED_SEATS_FIELDS)),
+    Export("tails",
+           "Every unit and measure against its national-pool null, flagged or not and why (the site's flagged-units "
+           "download): " + ",".join(names(TAILS_FIELDS)) + ". Percentiles are fractions 0-1; flagged is 1 or 0.",
+           tails_export, names(TAILS_FIELDS)),
+    Export("national", "National aggregates per cycle and chamber: districts, seats and votes of each party, "
+                       "uncontested and competitive districts, flagged states, excess seats by who drew the plan.",
+           lambda db: aggregates.read(db, "national_summary"), SUMMARY_COLUMNS),
+]
+
+
+def export(db: sqlite_utils.Database, name: str, **flags: bool) -> pd.DataFrame:
+    """The rows ``levelfield export NAME`` writes."""
+    return next(e for e in EXPORTS if e.name == name).frame(db, **flags)

@@ -1,66 +1,49 @@
-"""National tails, flags with history, and the watch list.
+"""Flags with history, and the watch list.
 
-For every (cycle, chamber) the current districts nationwide form the pool. Each unit's signed
-measures are set against their *null*: the same measures on simulated delegations of the unit's
-size and statewide vote drawn from that pool (``monitor.pool``). A unit is flagged on a measure
-when the measure lies in the outer tails of its null (``flags.tail`` each side, default 2.5%),
-or, for the lopsided-margins t-test and the mean-median z-test, when their own p is below
-``flags.p_threshold`` (default 0.05); and only when the state has at least
-``flags.min_districts`` districts. Nothing is ranked or cut at a fixed share: in a federation
-with no gerrymander few units are flagged, in one with many all of them can be.
+A unit is flagged on a measure when the measure lies in the outer tails of its national-pool null
+(``flags.tail`` each side, default 2.5%; :mod:`monitor.tails`), or, for the measures judged by their
+own p-value (the lopsided-margins t-test and the mean-median z-test), when that p is below
+``flags.p_threshold`` (default 0.05); and only when the state has at least ``flags.min_districts``
+districts. Nothing is ranked or cut at a fixed share: in a federation with no gerrymander few units
+are flagged, in one with many all of them can be.
 
 A plan is **on watch** when at least ``flags.watch_cycles`` (2) of its cycles are each flagged by
 at least ``flags.watch_measures`` (2) measures agreeing in direction. Severity is the seats at
 stake: the mean of the excess seats over the plan's agreeing cycles (absolute, in seats);
 ``concurring`` is the largest number of measures agreeing in one cycle.
 
-Every raise and clear of a unit flag or of a watch entry is written to ``flag_events`` with
-what, when, why and the load that caused it: the newest load among the units of the (cycle,
-chamber) group whose pool the null is drawn from (over the plan's cycles, for a watch entry), since
-a correction in one state moves every other state's null in that group.
-
-Observed values and their undefined cases are the measures engine's (:func:`engine_values`): a
-measure stored as null in ``measures`` is null in ``tails`` with the same reason, never flagged and
-left out of the cross-state context.
+Every raise and clear of a unit flag or of a watch entry is written to ``flag_events``
+(:mod:`monitor.events`). The step reads only stored numbers: the reductions (the pool's
+districts), the measures (observed values, their undefined reasons and p-values) and what the
+previous run stored.
 """
 
 from __future__ import annotations
 
 import datetime as dt
-import hashlib
-import json
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 import sqlite_utils
 
-from monitor import measures as M
-from monitor import pool as P
-from monitor.compute import measure_settings, settings_salt
+from monitor import events as E
 from monitor.config import Config
-from monitor.coverage import not_flagged_reason, stored_coverage
-from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
+from monitor.coverage import stored_coverage
+from monitor.inputs import UNIT_KEYS, measure_inputs, measured_contests
 from monitor.plans import assign_plans, write_inferred
+from monitor.staggered import Classes
+from monitor.staggered import partial as staggered_partial
+from monitor.tails import (JUDGED, NULL_FLAGGED, P_FLAGGED, POOL_METHOD_VERSION, context_stats, group_hash, judge,
+                           observed_values, pool_group, stored_names)
+from store import flags as store_flags
+from store import measures as store_measures
 from store import write_from_snapshot
 
-POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
-#: measures judged against their national-pool null, by the name they carry in ``tails``
-NULL_FLAGGED = ("efficiency_gap", "mean_median", "declination", "partisan_bias", "seats")
-#: measures judged by their own p-value (stored in ``measures.p_value``)
-P_FLAGGED = {"lopsided": "lopsided_t", "mean_median": "mean_median"}
-FLAG_MEASURES = ("efficiency_gap", "mean_median", "declination", "partisan_bias", "seats", "lopsided")
+#: every flag name
+FLAG_MEASURES = tuple(JUDGED)
 
-#: Thresholds proposed in the legal literature, drawn as reference lines: proposals, not law.
-PROPOSED_THRESHOLDS = [
-    {"measure": "efficiency_gap_seats", "value": 2.0, "unit": "seats", "applies_to": "congressional plans",
-     "source": "Stephanopoulos & McGhee (2015), 82 U. Chi. L. Rev. 831, as reported in press summaries of "
-               "the paper (not checked against the paper's text)"},
-    {"measure": "efficiency_gap", "value": 0.08, "unit": "share", "applies_to": "state-house plans",
-     "source": "Stephanopoulos & McGhee (2015), as reported in press summaries of the paper"},
-    {"measure": "efficiency_gap", "value": 0.07, "unit": "share", "applies_to": "state-house plans",
-     "source": "threshold argued by the plaintiffs in Whitford v. Gill (2016), as reported in the press"},
-]
+__all__ = ["FLAG_MEASURES", "FlagsReport", "flag_table", "judge", "run_flags", "watch_list"]
 
 
 @dataclass
@@ -81,192 +64,6 @@ class FlagsReport:
             if len(self.events) > 50:
                 out.append(f"    ... and {len(self.events) - 50} more (levelfield flags --changes)")
         return out
-
-
-def _group_seed(seed: int, cycle: int, chamber: str) -> list[int]:
-    digest = hashlib.sha256(f"{cycle}|{chamber}".encode()).digest()
-    return [seed, int.from_bytes(digest[:8], "little")]
-
-
-def _state_key(state: str) -> int:
-    """A stable non-negative integer per state: its simulation stream's key."""
-    return int.from_bytes(hashlib.sha256(state.encode()).digest()[:4], "little")
-
-
-def _group_hash(units: pd.DataFrame, config: Config) -> str:
-    h = hashlib.sha256(POOL_METHOD_VERSION.encode())
-    h.update(json.dumps({k: config[k] for k in (
-        "pool.tolerance", "pool.draws", "pool.exclude_own_state", "pool.seed", "flags.min_districts",
-        "flags.tail")}, sort_keys=True).encode())
-    for key, value in sorted(zip(units["state"], units["inputs_hash"])):
-        h.update(f"{key}\x1f{value}\n".encode())
-    return h.hexdigest()
-
-
-#: the engine measure whose stored value (and null reason) each tails measure takes
-ENGINE_NAME = {"efficiency_gap": "efficiency_gap", "mean_median": "mean_median", "declination": "declination",
-               "partisan_bias": "partisan_bias", "seats": "seats_a"}
-#: ``seats`` is judged as an asymmetry measure: besides the engine's own rule for seats_a it is
-#: null wherever the engine's rule for the asymmetry measures makes the seat-form efficiency gap null
-#: (fewer than 2 districts, every district uncontested, ...)
-SEATS_GATE = "efficiency_gap_seats"
-
-
-def engine_values(arrays, members: np.ndarray, config: Config) -> tuple[dict, dict]:
-    """The observed value and null reason of every tails measure for the units ``members``, as the
-    measures engine stores them (same inputs, same settings, same undefined rules): name ->
-    array of values (NaN where null) and name -> array of reasons ("" where defined)."""
-    rows = np.isin(arrays.unit, members)
-    local = np.searchsorted(members, arrays.unit[rows])
-    settings = replace(measure_settings(config), interval_draws=0)
-    long = M.compute_measures(local, arrays.votes_a[rows], arrays.votes_b[rows], arrays.uncontested[rows],
-                              len(members), settings, None)
-    wide_value = long.pivot(index="unit", columns="measure", values="value").reindex(np.arange(len(members)))
-    wide_reason = long.pivot(index="unit", columns="measure", values="reason").reindex(np.arange(len(members)))
-    values, reasons = {}, {}
-    for name, engine in ENGINE_NAME.items():
-        values[name] = wide_value[engine].to_numpy(float)
-        reasons[name] = wide_reason[engine].fillna("").to_numpy(object)
-    gate = wide_reason[SEATS_GATE].fillna("").to_numpy(object)
-    take = (reasons["seats"] == "") & (gate != "")
-    reasons["seats"] = np.where(take, gate, reasons["seats"])
-    values["seats"] = np.where(reasons["seats"] != "", np.nan, values["seats"])
-    return values, reasons
-
-
-def pool_group(arrays, members: np.ndarray, config: Config, cycle: int, chamber: str) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Expected seats and null percentiles for the units ``members`` (indexes into arrays.units),
-    all of one cycle and chamber. Pure: arrays in, frames out.
-
-    The observed values follow the measures engine exactly (:func:`engine_values`): a measure the
-    engine stores as null is null here too, with the engine's reason, has no null percentile (so
-    it is never flagged) and stays out of the cross-state context. The null distributions are
-    the measures on the simulated delegations (``monitor.pool``)."""
-    units = arrays.units.loc[members]
-    rows = np.isin(arrays.unit, members)
-    va, vb, st = arrays.votes_a[rows], arrays.votes_b[rows], arrays.state[rows]
-    ok = (va + vb) > 0
-    seats_rows, tail_rows = [], []
-    n = units["districts_eligible"].to_numpy()
-    local = np.searchsorted(members, arrays.unit[rows])
-    observed, undefined = engine_values(arrays, members, config)
-    actual_seats = M.seats_a(local, va, vb, len(members))  # the expectation compares every unit's seats
-    tot = np.bincount(local, va + vb, len(members))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        share = np.bincount(local, va, len(members)) / tot
-    live = (n >= 2) & np.isfinite(share)
-    if ok.sum() >= 2 and live.any():
-        pool = P.national_pool(va[ok], vb[ok], st[ok])
-        idx = np.flatnonzero(live)
-        states = units["state"].to_numpy()[idx]
-        seats, nulls = P.compare_with_pool(
-            pool, states, n[idx], share[idx], actual_seats[idx], {k: v[idx] for k, v in observed.items()},
-            rng=np.random.SeedSequence(_group_seed(config["pool.seed"], cycle, chamber)),
-            unit_key=np.array([_state_key(s) for s in states], dtype=np.int64),
-            tol=config["pool.tolerance"], accepted=config["pool.draws"],
-            exclude_own=config["pool.exclude_own_state"], alpha=config["flags.tail"],
-        )
-    else:
-        idx = np.array([], dtype=int)
-    pos = {u: i for i, u in enumerate(idx)}
-    for j, (_, u) in enumerate(units.iterrows()):
-        base = {"cycle": int(u["cycle"]), "state": u["state"], "chamber": u["chamber"]}
-        i = pos.get(j)
-        if i is None or seats.n_accepted[i] == 0:
-            reason = ("fewer than 2 districts" if n[j] < 2 else
-                      "no simulated delegation reached the state's vote share" if i is not None else
-                      "no two-party votes")
-            seats_rows.append({**base, "districts": int(n[j]), "vote_share": _f(share[j]),
-                               "seats_a": _f(actual_seats[j]), "reason": reason})
-            for name in NULL_FLAGGED:
-                tail_rows.append({**base, "measure": name, "value": _f(observed[name][j]),
-                                  "reason": undefined[name][j] or reason})
-            continue
-        seats_rows.append({**base, "districts": int(n[j]), "vote_share": _f(share[j]),
-                           "seats_a": _f(actual_seats[j]), "expected_seats": _f(seats.expected_seats[i]),
-                           "low": _f(seats.low[i]), "high": _f(seats.high[i]), "percentile": _f(seats.percentile[i]),
-                           "excess_seats": _f(seats.excess_seats[i]), "draws": int(seats.n_accepted[i]),
-                           "ess": _f(seats.ess[i]), "mc_se": _f(seats.mc_se[i]), "reason": None})
-        for name in NULL_FLAGGED:
-            r = nulls[name]
-            value = observed[name][j]
-            if undefined[name][j]:  # null in the measures table: null here, with the engine's reason
-                tail_rows.append({**base, "measure": name, "value": None, "null_low": _f(r.null_low[i]),
-                                  "null_high": _f(r.null_high[i]), "null_dropped": _f(r.nan_fraction[i]),
-                                  "reason": undefined[name][j]})
-                continue
-            tail_rows.append({**base, "measure": name, "value": _f(value), "null_percentile": _f(r.percentile[i]),
-                              "null_low": _f(r.null_low[i]), "null_high": _f(r.null_high[i]),
-                              "null_dropped": _f(r.nan_fraction[i]),
-                              "reason": None if np.isfinite(r.percentile[i])
-                              else "undefined on every simulated delegation"})
-    return pd.DataFrame(seats_rows), pd.DataFrame(tail_rows)
-
-
-def _f(x) -> float | None:
-    x = float(x)
-    return x if np.isfinite(x) else None
-
-
-def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config: Config,
-          seat_coverage: pd.Series | None = None) -> pd.DataFrame:
-    """Add the flag decision to every tails row (and the p-value-based ``lopsided`` rows).
-
-    ``pvals``: cycle, state, chamber, measure, value, p_value from the measures table.
-    ``districts``: eligible districts per unit key (cycle, state, chamber).
-    ``seat_coverage``: the share of each unit's seats in the measures (:mod:`monitor.coverage`);
-    a unit below ``flags.min_coverage`` is never flagged and its rows say why (a unit without a
-    coverage row is judged as before).
-    """
-    alpha, p_cut, minimum = config["flags.tail"], config["flags.p_threshold"], config["flags.min_districts"]
-    t = tails.copy()
-    for col in ("null_percentile", "p_value", "value"):
-        if col not in t:
-            t[col] = np.nan
-    lop = pvals[pvals["measure"] == P_FLAGGED["lopsided"]].assign(measure="lopsided")
-    mm = pvals[pvals["measure"] == P_FLAGGED["mean_median"]][[*UNIT_KEYS, "p_value"]]
-    t = t.drop(columns=["p_value"]).merge(
-        mm.assign(measure="mean_median"), on=[*UNIT_KEYS, "measure"], how="left")
-    t = pd.concat([t, lop[[*UNIT_KEYS, "measure", "value", "p_value", "reason"]]], ignore_index=True)
-    n = districts.reindex(pd.MultiIndex.from_frame(t[UNIT_KEYS])).to_numpy()
-    pct = t["null_percentile"].to_numpy(float)
-    p = t["p_value"].to_numpy(float)
-    v = t["value"].to_numpy(float)
-    big = np.nan_to_num(n, nan=0) >= minimum
-    share = (seat_coverage.reindex(pd.MultiIndex.from_frame(t[UNIT_KEYS])).to_numpy(float)
-             if seat_coverage is not None else np.full(len(t), np.nan))
-    thin = np.isfinite(share) & (share < config["flags.min_coverage"])
-    big &= ~thin
-    by_null = big & ((pct > 1 - alpha) | (pct < alpha))
-    by_p = big & (p < p_cut) & np.isfinite(v) & (v != 0)
-    direction_null = np.where(pct > 0.5, "a", "b")
-    direction_p = np.where(v > 0, "a", "b")
-    t["flagged"] = (by_null | by_p).astype(int)
-    t["direction"] = np.where(by_null, direction_null, np.where(by_p, direction_p, None))
-    t["basis"] = np.where(by_null & by_p, "null tail and p-value",
-                          np.where(by_null, "null tail", np.where(by_p, "p-value", None)))
-    small = np.nan_to_num(n, nan=0) < minimum
-    # no reason yet: null, or the engine's "" for a defined value (the lopsided rows come from measures)
-    unexplained = t["reason"].isna() | (t["reason"] == "")
-    t["reason"] = np.where(small & unexplained, f"fewer than {minimum} districts: not flagged", t["reason"])
-    coverage_reason = [not_flagged_reason(x, config["flags.min_coverage"]) for x in share]
-    t["reason"] = np.where(thin & ~small & unexplained, coverage_reason, t["reason"])
-    return t
-
-
-def context_stats(t: pd.DataFrame) -> pd.DataFrame:
-    """Cross-state percentile and robust z within each cycle and chamber, and across all cycles."""
-    t = t.copy()
-    t["cross_percentile"] = np.nan
-    t["robust_z"] = np.nan
-    t["robust_z_all"] = np.nan
-    for measure, part in t.groupby("measure"):
-        values = part["value"].to_numpy(float)
-        group = (part["cycle"].astype(str) + "|" + part["chamber"]).to_numpy()
-        t.loc[part.index, "cross_percentile"] = P.cross_state_percentile(values, group)
-        t.loc[part.index, "robust_z"] = P.robust_z(values, group)
-        t.loc[part.index, "robust_z_all"] = P.robust_z(values, part["chamber"].to_numpy())
-    return t
 
 
 def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config: Config) -> pd.DataFrame:
@@ -325,33 +122,74 @@ def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
     return report
 
 
+def partial_units(units: pd.DataFrame, config: Config) -> np.ndarray:
+    """True for each unit that is one class of a staggered chamber (never flagged)."""
+    return staggered_partial(units, Classes.from_config(config))
+
+
 def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str, progress=None):
     """Read the store, compute tails, flags, watch list and events; return the writer."""
     report = FlagsReport()
-    contests = reduced_contests(db)
-    arrays = measure_inputs(contests, config, settings_salt(config))
+    contests, _ = measured_contests(db, config)
+    arrays = measure_inputs(contests, config)
     units = arrays.units
+    stored = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "reason", "inputs_hash"], stored_names())
+    # a unit's inputs, as its stored measures were computed from them
+    hashes = stored.drop_duplicates(UNIT_KEYS).set_index(UNIT_KEYS)["inputs_hash"]
+    units["inputs_hash"] = hashes.reindex(pd.MultiIndex.from_frame(units[UNIT_KEYS])).fillna("").to_numpy()
+    observed, undefined, actual_seats = observed_values(stored, units)
     loads = contests.drop_duplicates("unit_id").set_index("unit_id")["load_id"]
     plans, inferred = assign_plans(db, units)
-    stored_hash = dict(db.execute(
-        "SELECT cycle || '|' || chamber, MIN(inputs_hash) FROM pool_seats GROUP BY cycle, chamber").fetchall())
-    old_seats = pd.read_sql_query("SELECT * FROM pool_seats", db.conn)
-    old_tails = pd.read_sql_query("SELECT * FROM tails", db.conn)
-    old_watch = pd.read_sql_query("SELECT * FROM watch", db.conn)
-    pvals = pd.read_sql_query(
-        "SELECT cycle, state, chamber, measure, value, p_value, reason FROM measures WHERE measure IN (?, ?)",
-        db.conn, params=[P_FLAGGED["lopsided"], P_FLAGGED["mean_median"]])
+    old = {name: store_flags.read_all(db, name) for name in ("pool_seats", "tails", "watch")}
+    pvals = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "p_value", "reason"], sorted(P_FLAGGED.values()))
+    seats, tails = _pool_groups(arrays, (observed, undefined, actual_seats), old, store_flags.group_hashes(db),
+                                config, full, report, progress)
+    districts = units.set_index(UNIT_KEYS)["districts_eligible"]
     cover = stored_coverage(db).units
     coverage_share = pd.to_numeric(cover.set_index(UNIT_KEYS)["seat_coverage"], errors="coerce").astype(float)
+    partial = pd.Series(partial_units(units, config), index=pd.MultiIndex.from_frame(units[UNIT_KEYS]))
+    judged = context_stats(judge(tails, pvals, districts, config, coverage_share, partial))
+    judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
+    watch = watch_list(judged, plans, seats, config)
+    report.flags = int(judged["flagged"].sum())
+    report.on_watch = len(watch)
+
+    group_load = E.group_loads(units, loads)
+    events = E.unit_events(old["tails"], judged, group_load, stamp)
+    events += E.watch_events(old["watch"], watch, E.cycles_of_plans(plans), group_load, stamp)
+    report.events = [e["text"] for e in events]
+
+    def write(conn) -> FlagsReport:
+        write_inferred(conn, inferred)
+        store_flags.replace_all(
+            conn,
+            seats=[(*[_sql(r.get(c)) for c in store_flags.SEAT_COLUMNS], POOL_METHOD_VERSION, stamp)
+                   for r in seats.to_dict("records")],
+            tails=[(*[_sql(r.get(c)) for c in store_flags.TAIL_COLUMNS], stamp) for r in judged.to_dict("records")],
+            watch_columns=list(watch.columns),
+            watch=[(*[_sql(r[c]) for c in watch.columns], stamp) for r in watch.to_dict("records")],
+            events=[(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
+                     e["direction"], e["why"], stamp, e["load_id"]) for e in events],
+        )
+        return report
+
+    return write
+
+
+def _pool_groups(arrays, stored: tuple, old: dict, stored_hash: dict, config: Config, full: bool,
+                 report: FlagsReport, progress) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Expected seats and tails of every (cycle, chamber) group: recomputed where the group's inputs
+    changed (or ``full``), else taken over from what the previous run stored."""
+    observed, undefined, actual_seats = stored
+    old_seats, old_tails = old["pool_seats"], old["tails"]
     seat_frames, tail_frames = [], []
-    groups = units.groupby(["cycle", "chamber"], sort=True)
+    groups = arrays.units.groupby(["cycle", "chamber"], sort=True)
     for done, ((cycle, chamber), part) in enumerate(groups):
         if progress is not None:
             progress("flags", done, groups.ngroups, f"{cycle} {chamber}")
         report.groups_total += 1
-        group_hash = _group_hash(part, config)
-        key = f"{cycle}|{chamber}"
-        if not full and stored_hash.get(key) == group_hash:
+        digest = group_hash(part, config)
+        if not full and stored_hash.get(f"{cycle}|{chamber}") == digest:
             keep = (old_seats["cycle"] == cycle) & (old_seats["chamber"] == chamber)
             seat_frames.append(old_seats[keep].drop(columns=["method_version", "computed_at"]))
             keep = (old_tails["cycle"] == cycle) & (old_tails["chamber"] == chamber) & old_tails["measure"].isin(NULL_FLAGGED)
@@ -360,57 +198,16 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
             continue
         report.groups_computed += 1
         report.units_pooled += len(part)
-        seats, tails = pool_group(arrays, part.index.to_numpy(), config, int(cycle), chamber)
-        seats["inputs_hash"] = group_hash
+        members = part.index.to_numpy()
+        seats, tails = pool_group(arrays, members, {k: v[members] for k, v in observed.items()},
+                                  {k: v[members] for k, v in undefined.items()}, actual_seats[members],
+                                  config, int(cycle), chamber)
+        seats["inputs_hash"] = digest
         seat_frames.append(seats.assign(_fresh=True))
         tail_frames.append(tails)
     seats = pd.concat(seat_frames, ignore_index=True) if seat_frames else pd.DataFrame(columns=[*UNIT_KEYS, "excess_seats"])
     tails = pd.concat(tail_frames, ignore_index=True) if tail_frames else pd.DataFrame(columns=[*UNIT_KEYS, "measure", "value"])
-    districts = units.set_index(UNIT_KEYS)["districts_eligible"]
-    judged = context_stats(judge(tails, pvals, districts, config, coverage_share))
-    judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
-    watch = watch_list(judged, plans, seats, config)
-    report.flags = int(judged["flagged"].sum())
-    report.on_watch = len(watch)
-
-    group_load = _group_loads(units, loads)
-    events = _unit_events(old_tails, judged, group_load, stamp)
-    events += _watch_events(old_watch, watch, _plan_cycles(plans), group_load, stamp)
-    report.events = [e["text"] for e in events]
-
-    def write(conn) -> None:
-        write_inferred(conn, inferred)
-        conn.execute("DELETE FROM pool_seats")
-        seat_cols = ["cycle", "state", "chamber", "districts", "vote_share", "seats_a", "expected_seats", "low",
-                     "high", "percentile", "excess_seats", "draws", "ess", "mc_se", "reason", "inputs_hash"]
-        conn.executemany(
-            f"INSERT INTO pool_seats ({', '.join(seat_cols)}, method_version, computed_at) "
-            f"VALUES ({', '.join('?' for _ in seat_cols)}, ?, ?)",
-            [(*[_sql(r.get(c)) for c in seat_cols], POOL_METHOD_VERSION, stamp) for r in seats.to_dict("records")],
-        )
-        conn.execute("DELETE FROM tails")
-        tail_cols = ["cycle", "state", "chamber", "measure", "value", "null_percentile", "null_low", "null_high",
-                     "null_dropped", "p_value", "cross_percentile", "robust_z", "robust_z_all", "flagged",
-                     "direction", "basis", "plan_id", "reason"]
-        conn.executemany(
-            f"INSERT INTO tails ({', '.join(tail_cols)}, computed_at) VALUES ({', '.join('?' for _ in tail_cols)}, ?)",
-            [(*[_sql(r.get(c)) for c in tail_cols], stamp) for r in judged.to_dict("records")],
-        )
-        conn.execute("DELETE FROM watch")
-        watch_cols = list(watch.columns)
-        conn.executemany(
-            f"INSERT INTO watch ({', '.join(watch_cols)}, computed_at) VALUES ({', '.join('?' for _ in watch_cols)}, ?)",
-            [(*[_sql(r[c]) for c in watch_cols], stamp) for r in watch.to_dict("records")],
-        )
-        conn.executemany(
-            "INSERT INTO flag_events (scope, cycle, state, chamber, plan_id, measure, event, direction, why, at, load_id) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            [(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
-              e["direction"], e["why"], stamp, e["load_id"]) for e in events],
-        )
-        return report
-
-    return write
+    return seats, tails
 
 
 def _sql(value):
@@ -427,125 +224,6 @@ def _sql(value):
     return value
 
 
-def _why(r) -> str:
-    if r.get("basis") == "p-value":
-        return f"{_measure_text(r['measure'], r['value'])} with p = {r['p_value']:.3g} below the threshold"
-    pct = r.get("null_percentile")
-    text = f"{_measure_text(r['measure'], r['value'])} at percentile {pct:.3f} of its national-pool null"
-    if r.get("basis") == "null tail and p-value":
-        text += f" (and p = {r['p_value']:.3g})"
-    return text
-
-
-def _group_loads(units: pd.DataFrame, loads: pd.Series) -> dict[tuple, int]:
-    """The newest load among the current units of each (cycle, chamber) group.
-
-    A unit's null is drawn from its whole group's districts, so a load of any state in the group
-    (a new cycle, a correction) can raise or clear another state's flag: that load is the one a
-    change is credited to."""
-    load = pd.to_numeric(units["unit_id"].map(loads), errors="coerce")
-    frame = pd.DataFrame({"cycle": units["cycle"].astype(int), "chamber": units["chamber"], "load": load})
-    newest = frame.dropna(subset=["load"]).groupby(["cycle", "chamber"])["load"].max()
-    return {(int(c), ch): int(v) for (c, ch), v in newest.items()}
-
-
-def _plan_cycles(plans: pd.DataFrame) -> dict[tuple, set]:
-    """(state, chamber, plan_id) -> the cycles of the plan's current units."""
-    out: dict[tuple, set] = {}
-    for r in plans[["cycle", "state", "chamber", "plan_id"]].itertuples(index=False):
-        out.setdefault((r.state, r.chamber, r.plan_id), set()).add(int(r.cycle))
-    return out
-
-
-def _unit_events(old: pd.DataFrame, new: pd.DataFrame, group_load: dict[tuple, int], stamp) -> list[dict]:
-    """Raised and cleared unit flags, each credited to the newest load of its (cycle, chamber)
-    group (:func:`_group_loads`)."""
-    key = [*UNIT_KEYS, "measure"]
-    before = {tuple(r[k] for k in key): r for r in old[old["flagged"] == 1].to_dict("records")} if not old.empty else {}
-    after = {tuple(r[k] for k in key): r for r in new[new["flagged"] == 1].to_dict("records")}
-    current = {tuple(r[k] for k in key): r for r in new.to_dict("records")}
-    events = []
-    for k in sorted(set(before) | set(after), key=lambda k: (k[0], k[1], k[2], k[3])):
-        b, a = before.get(k), after.get(k)
-        load = group_load.get((int(k[0]), k[2]))
-        if a is not None and (b is None or b["direction"] != a["direction"]):
-            event, direction, why = "raised", a["direction"], _why(a)
-        elif b is not None and a is None:
-            now = current.get(k)
-            event, direction = "cleared", b["direction"]
-            if now is None:
-                why = "the unit is no longer in the store"
-            elif str(now.get("reason") or "").endswith("not flagged"):  # too few districts or seats covered
-                why = now["reason"]
-            elif now.get("value") is None or not np.isfinite(now.get("value") or np.nan):
-                why = f"{k[3]} is now undefined ({now.get('reason') or 'no value'})"
-            elif now.get("null_percentile") is not None and np.isfinite(now.get("null_percentile") or np.nan):
-                why = f"{_measure_text(k[3], now['value'])} now, at percentile {now['null_percentile']:.3f} of its null"
-            else:
-                why = f"{_measure_text(k[3], now['value'])} now" + (f" with p = {now['p_value']:.3g}" if now.get('p_value') is not None and np.isfinite(now['p_value']) else "")
-        else:
-            continue
-        events.append({"scope": "unit", "cycle": int(k[0]), "state": k[1], "chamber": k[2],
-                       "plan_id": (a or b).get("plan_id"), "measure": k[3], "event": event,
-                       "direction": direction, "why": why, "load_id": load,
-                       "text": f"{event} {k[1]} {k[2]} {k[0]} {k[3]} (favours {direction}): {why}"})
-    return events
-
-
-def _watch_events(old: pd.DataFrame, new: pd.DataFrame, plan_cycles: dict[tuple, set],
-                  group_load: dict[tuple, int], stamp) -> list[dict]:
-    """Plans put on or taken off the watch list, each credited to the newest load among the
-    (cycle, chamber) groups of the plan's cycles (:func:`_group_loads`)."""
-    key = ["state", "chamber", "plan_id"]
-    before = {tuple(r[k] for k in key): r for r in old.to_dict("records")}
-    after = {tuple(r[k] for k in key): r for r in new.to_dict("records")}
-    events = []
-    for k in sorted(set(before) | set(after)):
-        b, a = before.get(k), after.get(k)
-        if a is not None and (b is None or b["favours"] != a["favours"]):
-            event, direction = "on watch", a["favours"]
-            why = (f"cycles {a['cycles']} each flagged by at least two measures favouring {a['favours']} "
-                   f"({a['measures']}); {_stake_text(a['seats_at_stake'])}")
-        elif b is not None and a is None:
-            event, direction = "off watch", b["favours"]
-            why = "fewer than two cycles of the plan are now flagged by two agreeing measures"
-        else:
-            continue
-        cycles = set(plan_cycles.get(k, ()))
-        for entry in (a, b):
-            if entry is not None:
-                cycles |= {int(c) for c in str(entry["cycles"]).split()}
-        credited = [group_load[(c, k[1])] for c in cycles if (c, k[1]) in group_load]
-        inferred = bool((a or b).get("inferred"))
-        plan = f"{k[2]} (inferred)" if inferred else k[2]
-        events.append({"scope": "plan", "cycle": None, "state": k[0], "chamber": k[1], "plan_id": k[2],
-                       "measure": None, "event": event, "direction": direction, "why": why,
-                       "load_id": max(credited) if credited else None,
-                       "text": f"{event}: {k[0]} {k[1]} plan {plan} (favours {direction}): {why}"})
-    return events
-
-
-def _measure_text(measure: str, value: float) -> str:
-    """A measure's value as change texts write it: seats as a count of seats, signed measures with
-    their sign (positive favours a)."""
-    if measure == "seats":
-        return f"seats won by a {_seats(value)}"
-    return f"{measure} {value:+.3f}"
-
-
-def _seats(value: float) -> str:
-    """A seat count: whole seats without decimals, a tie's half seat as .5."""
-    return f"{value:.0f}" if float(value).is_integer() else f"{value:.1f}"
-
-
-def _stake_text(stake) -> str:
-    if stake is None or (isinstance(stake, float) and not np.isfinite(stake)):
-        return "seats at stake unknown"
-    return f"seats at stake {stake:+.1f} (positive favours a)"
-
-
-WATCH_CSV_COLUMNS = ["state", "chamber", "plan_id", "favours", "severity", "cycles", "measures",
-                     "drawn_by", "inferred", "seats_at_stake", "concurring", "since"]
 
 
 def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None,
@@ -558,37 +236,14 @@ def flag_table(db: sqlite_utils.Database, show: str, *, cycle: int | None = None
     why); the watch list names the plan's flagged cycles that are incomplete."""
     if show not in ("flags", "watch", "changes"):
         raise ValueError(f"show must be flags, watch or changes, got {show!r}")
-    where, params = [], []
-    if chamber is not None:
-        where.append("x.chamber = ?")
-        params.append(chamber)
     if show == "watch":
-        if cycle is not None:
-            where.append("(' ' || x.cycles || ' ') LIKE ?")
-            params.append(f"% {cycle} %")
-        clause = f"WHERE {' AND '.join(where)}" if where else ""
-        watch = pd.read_sql_query(
-            f"SELECT {', '.join('x.' + c for c in WATCH_CSV_COLUMNS)} FROM watch x {clause} "
-            "ORDER BY x.severity DESC, x.concurring DESC, x.state, x.chamber, x.plan_id", db.conn, params=params)
-        return _incomplete_cycles(watch, stored_coverage(db).units)
-    if cycle is not None:
-        where.append("x.cycle = ?")
-        params.append(cycle)
-    plan = ("LEFT JOIN plans p ON p.state = x.state AND p.chamber = x.chamber AND p.plan_id = x.plan_id")
+        return _incomplete_cycles(store_flags.watch_view(db, cycle, chamber), stored_coverage(db).units)
     if show == "changes":
-        clause = f"WHERE {' AND '.join(where)}" if where else ""
-        frame = pd.read_sql_query(
-            "SELECT x.id, x.at, x.scope, x.event, x.cycle, x.state, x.chamber, x.plan_id, p.inferred, x.measure, "
-            f"x.direction AS favours, x.why, x.load_id FROM flag_events x {plan} {clause} ORDER BY x.id",
-            db.conn, params=params)
+        frame = store_flags.changes_view(db, cycle, chamber)
         for col in ("cycle", "load_id", "inferred"):
             frame[col] = frame[col].astype("Int64")
         return frame
-    where.append("x.flagged = 1")
-    frame = pd.read_sql_query(
-        "SELECT x.cycle, x.state, x.chamber, x.plan_id, p.inferred, x.measure, x.direction AS favours, x.basis, "
-        f"x.value, x.null_percentile, x.p_value FROM tails x {plan} WHERE {' AND '.join(where)} "
-        "ORDER BY x.cycle, x.state, x.chamber, x.measure", db.conn, params=params)
+    frame = store_flags.flagged_view(db, cycle, chamber)
     frame["inferred"] = frame["inferred"].astype("Int64")
     return _with_coverage(frame, stored_coverage(db).units)
 

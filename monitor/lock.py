@@ -1,12 +1,26 @@
-"""A workspace lock so that only one watcher runs per workspace."""
+"""What a watcher leaves in its workspace: the lock (only one watcher runs per workspace) and the
+state file where it records its jobs; ``levelfield status`` reads both (without importing the
+watcher)."""
 
 from __future__ import annotations
 
 import fcntl
+import json
 import os
 from pathlib import Path
 
 from monitor.errors import UsageError
+
+#: the watcher's state file, in the workspace's ``logs/``: its jobs' last and next runs, last error
+STATE_FILE = "watcher-state.json"
+
+
+def read_state(path: Path) -> dict | None:
+    """The watcher's recorded state, None when there is none (or it cannot be read)."""
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
 
 
 class WorkspaceLock:
@@ -45,3 +59,20 @@ class WorkspaceLock:
 
     def __exit__(self, *exc):
         self.release()
+
+
+def lock_holder(root: Path) -> str | None:
+    """The pid written in the workspace lock when a process holds the lock (a watcher runs),
+    else None. The lock is tried for an instant (shared, non-blocking); the kernel drops the lock
+    of a process that died, even by SIGKILL, so a killed watcher never shows as running."""
+    try:
+        fh = open(WorkspaceLock(root).path, "r", encoding="utf-8", errors="replace")
+    except OSError:
+        return None
+    with fh:
+        try:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_SH | fcntl.LOCK_NB)
+        except BlockingIOError:
+            return fh.read().strip() or "unknown"
+        fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+        return None

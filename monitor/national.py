@@ -1,9 +1,9 @@
 """National aggregates per cycle and chamber: what the whole country's districts look like.
 
-Pure functions over frames (no I/O), except :func:`national_export` at the end, the edge that
-reads the store for ``levelfield export national``. The site (``monitor.publish``) only shows what
-these functions return, so the home page, every cycle page, the ``national`` download and the
-command line give the same numbers.
+Pure functions over frames (no I/O). The aggregates step (:mod:`monitor.aggregates`) runs them on
+the stored reductions, measures, flags and expected seats and stores what they return; the site,
+the ``national`` download and ``levelfield export national`` read those stored rows, so they give
+the same numbers.
 
 Per (cycle, chamber):
 
@@ -23,7 +23,6 @@ import numpy as np
 import pandas as pd
 
 from monitor.inputs import deciding_contests
-from monitor.reduce import two_party_inputs
 
 UNIT_KEYS = ["cycle", "state", "chamber"]
 GROUP = ["cycle", "chamber"]
@@ -92,38 +91,9 @@ HISTOGRAM_COLUMNS = [f[0] for f in HISTOGRAM_FIELDS]
 DRAWER_COLUMNS = ["cycle", "chamber", "drawer", "excess_seats", "units"]
 
 
-def contest_shares(contests: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
-    """Every reduced contest (:func:`monitor.inputs.reduced_contests`) with its raw two-party share
-    ``share_a``, the votes and share that enter the measures after the uncontested policy
-    (``votes_a_used``, ``votes_b_used``, ``share_used``; NaN when the contest does not enter them:
-    contests that do not decide their seat, multi-member contests, no major party, a minor-party
-    winner, or an uncontested contest under ``exclude``) and ``imputed`` (its share was imputed).
-
-    The same reduction as the measures engine (:func:`monitor.reduce.two_party_inputs` over the
-    contests that decide their seats), so the numbers here are the ones the measures use."""
-    contests = contests.copy()
-    if contests.empty:
-        for col in ("share_a", "share_used", "votes_a_used", "votes_b_used"):
-            contests[col] = pd.Series(dtype=float)
-        contests["imputed"] = pd.Series(dtype=bool)
-        return contests
-    contests = contests.sort_values([*UNIT_KEYS, "district", "special"], kind="mergesort").reset_index(drop=True)
-    two = (contests["votes_a"] + contests["votes_b"]).astype(float)
-    contests["share_a"] = np.where(two > 0, contests["votes_a"] / two.where(two > 0, 1.0), np.nan)
-    deciding = deciding_contests(contests)
-    used = two_party_inputs(deciding, policy, winner_share).set_index("contest_id")
-    va = used["votes_a"].reindex(contests["contest_id"]).to_numpy(float)
-    vb = used["votes_b"].reindex(contests["contest_id"]).to_numpy(float)
-    contests["votes_a_used"], contests["votes_b_used"] = va, vb
-    with np.errstate(invalid="ignore", divide="ignore"):
-        contests["share_used"] = np.where(va + vb > 0, va / (va + vb), np.nan)
-    unc = used["uncontested"].reindex(contests["contest_id"])
-    contests["imputed"] = unc.fillna(False).astype(bool).to_numpy() & (policy == "impute")
-    return contests
-
-
 def measured(contests: pd.DataFrame) -> pd.DataFrame:
-    """The contests that enter the measures (a finite share after the policy)."""
+    """The contests that enter the measures (a finite share after the policy): stored reductions
+    (:func:`monitor.inputs.reduced_contests`) with ``share_used``."""
     return contests[np.isfinite(contests["share_used"].to_numpy(float))]
 
 
@@ -146,7 +116,7 @@ def plans_of_units(units: pd.DataFrame, plans: pd.DataFrame) -> pd.DataFrame:
 def share_histogram(contests: pd.DataFrame, bin_width: float = HISTOGRAM_BIN) -> pd.DataFrame:
     """Counts of district shares of party a (after the uncontested policy) per cycle and chamber.
 
-    ``contests``: the output of :func:`contest_shares`. One row per (cycle, chamber, bin, kind,
+    ``contests``: stored reductions (:func:`monitor.inputs.reduced_contests`). One row per (cycle, chamber, bin, kind,
     side): ``kind`` is the winner of a contested district (by its share: above 50% a, below b,
     exactly 50% tied) or ``uncontested (imputed share)``; ``side`` is where the share lies
     (a | b | tied), so that uncontested districts can be counted by the party that won them. A
@@ -200,7 +170,7 @@ def national_summary(contests: pd.DataFrame, measures: pd.DataFrame, tails: pd.D
                      unit_plans: pd.DataFrame) -> pd.DataFrame:
     """One row per (cycle, chamber) with results: the columns of :data:`SUMMARY_FIELDS`.
 
-    ``contests``: :func:`contest_shares`; ``measures``: stored measures (cycle, state, chamber,
+    ``contests``: stored reductions; ``measures``: stored measures (cycle, state, chamber,
     measure, value); ``tails``: the flags (cycle, state, chamber, flagged); ``pool``: expected
     seats (cycle, state, chamber, excess_seats); ``unit_plans``: :func:`plans_of_units`."""
     if contests.empty:
@@ -253,29 +223,3 @@ def national_summary(contests: pd.DataFrame, measures: pd.DataFrame, tails: pd.D
     out = out.reset_index()
     out["cycle"] = out["cycle"].astype(int)
     return out[SUMMARY_COLUMNS].sort_values(GROUP, kind="mergesort").reset_index(drop=True)
-
-
-# --- the edge: read the store -----------------------------------------------------------------------
-def national_export(db, config) -> pd.DataFrame:
-    """:func:`national_summary` of everything in the store (what ``levelfield export national``
-    prints): reads the current contests, the stored measures, flags, expected seats and plans."""
-    from monitor.inputs import reduced_contests
-
-    contests = contest_shares(reduced_contests(db), config["uncontested.policy"], config["uncontested.winner_share"])
-    tables = set(db.table_names())
-
-    def read(sql: str, columns: list[str], table: str) -> pd.DataFrame:
-        if table not in tables:
-            return pd.DataFrame(columns=columns)
-        return pd.read_sql_query(sql, db.conn)
-
-    measures = read("SELECT cycle, state, chamber, measure, value FROM measures "
-                    "WHERE measure IN ('uncontested', 'competitive')",
-                    [*UNIT_KEYS, "measure", "value"], "measures")
-    tails = read("SELECT cycle, state, chamber, flagged FROM tails", [*UNIT_KEYS, "flagged"], "tails")
-    pool = read("SELECT cycle, state, chamber, excess_seats FROM pool_seats", [*UNIT_KEYS, "excess_seats"],
-                "pool_seats")
-    plans = read("SELECT state, chamber, plan_id, first_cycle, last_cycle, drawn_by, inferred FROM plans",
-                 ["state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "inferred"], "plans")
-    units = contests[UNIT_KEYS].drop_duplicates()
-    return national_summary(contests, measures, tails, pool, plans_of_units(units, plans))

@@ -23,12 +23,14 @@ from monitor.ingest.fields import parse_cycle
 from monitor.ingest.native import header_problems
 from monitor.ingest.reader import csv_rows, decode, read_raw
 from monitor.ingest.records import normalise_chamber, normalise_state
+from store import plans as store_plans
 from store import transaction
 
 DRAWN_BY = ("party_a", "party_b", "split", "commission", "court", "other")
 COLUMNS = ("state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "note", "source",
            "districts", "seats")
 REQUIRED = COLUMNS[:6]
+INFERRED_NOTE = "inferred: a new plan assumed from each cycle ending in 2"
 #: optional counts of the plan's districts and seats (seats default to the districts: one seat each)
 COUNTS = ("districts", "seats")
 
@@ -130,16 +132,10 @@ def load_plans(db: sqlite_utils.Database, path: Path) -> dict:
     frame = read_plans(path)
     pairs = sorted(set(zip(frame["state"], frame["chamber"])))
     with transaction(db) as conn:
-        for state, chamber in pairs:
-            conn.execute("DELETE FROM plans WHERE state = ? AND chamber = ?", [state, chamber])
-        conn.executemany(
-            "INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred, "
-            "districts, seats) VALUES (?, ?, ?, ?, ?, ?, ?, ?, 0, ?, ?)",
-            [(r.state, r.chamber, r.plan_id, int(r.first_cycle),
-              None if pd.isna(r.last_cycle) else int(r.last_cycle), r.drawn_by, r.note, r.source,
-              None if pd.isna(r.districts) else int(r.districts), None if pd.isna(r.seats) else int(r.seats))
-             for r in frame.itertuples()],
-        )
+        store_plans.replace_loaded(conn, pairs, [
+            (r.state, r.chamber, r.plan_id, int(r.first_cycle), None if pd.isna(r.last_cycle) else int(r.last_cycle),
+             r.drawn_by, r.note, r.source, None if pd.isna(r.districts) else int(r.districts),
+             None if pd.isna(r.seats) else int(r.seats)) for r in frame.itertuples()])
     return {"plans": len(frame), "state_chambers": len(pairs)}
 
 
@@ -150,11 +146,11 @@ def census_start(cycle: int) -> int:
 
 def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple]]:
     """For units (cycle, state, chamber): plan_id, drawn_by, inferred. Units outside every loaded
-    era get an inferred decade plan; those plans are returned as rows for :func:`write_inferred`."""
-    plans = pd.read_sql_query(
-        "SELECT state, chamber, plan_id, first_cycle, last_cycle, drawn_by FROM plans WHERE inferred = 0",
-        db.conn,
-    )
+    era get an inferred decade plan; those plans are returned as rows for :func:`write_inferred`.
+    A whole-chamber unit (``state_upper_whole``, :mod:`monitor.staggered`) has its chamber's plan."""
+    from monitor.staggered import base_chamber
+
+    plans = store_plans.loaded(db)
     eras = defaultdict(list)
     for p in plans.itertuples():
         eras[(p.state, p.chamber)].append(p)
@@ -162,14 +158,15 @@ def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.Dat
     out = []
     inferred: dict[tuple, tuple] = {}
     for u in units[["cycle", "state", "chamber"]].itertuples(index=False):
-        match = next((p for p in eras.get((u.state, u.chamber), ())
+        chamber = base_chamber(u.chamber)
+        match = next((p for p in eras.get((u.state, chamber), ())
                       if p.first_cycle <= u.cycle and (pd.isna(p.last_cycle) or u.cycle <= p.last_cycle)), None)
         if match is not None:
             out.append((match.plan_id, match.drawn_by, 0))
             continue
         start = census_start(int(u.cycle))
-        plan_id = inferred_plan_id(u.state, u.chamber, start, loaded_ids.get((u.state, u.chamber), set()))
-        key = (u.state, u.chamber, plan_id)
+        plan_id = inferred_plan_id(u.state, chamber, start, loaded_ids.get((u.state, chamber), set()))
+        key = (u.state, chamber, plan_id)
         first, last = inferred.get(key, (u.cycle, u.cycle))
         inferred[key] = (min(first, u.cycle), max(last, u.cycle))
         out.append((plan_id, "other", 1))
@@ -200,9 +197,4 @@ def write_inferred(conn, inferred: list[tuple]) -> None:
     Loaded plans are never touched: only ``inferred = 1`` rows are deleted, and the new rows are
     plain inserts (their ids never equal a loaded plan's, see :func:`inferred_plan_id`; were one
     to, the insert fails and the whole transaction rolls back rather than replace a loaded era)."""
-    conn.execute("DELETE FROM plans WHERE inferred = 1")
-    conn.executemany(
-        "INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, note, source, inferred) "
-        "VALUES (?, ?, ?, ?, ?, 'other', 'inferred: a new plan assumed from each cycle ending in 2', NULL, 1)",
-        inferred,
-    )
+    store_plans.replace_inferred(conn, inferred, INFERRED_NOTE)

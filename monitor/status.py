@@ -4,10 +4,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import sqlite_utils
+
 import store
 from monitor.coverage import coverage_lines, stored_coverage
 from monitor.ingest.fields import shown
+from monitor.lock import STATE_FILE, lock_holder, read_state
 from monitor.workspace import Workspace
+from store import status as store_status_counts
 
 
 @dataclass
@@ -56,26 +60,15 @@ def _spans(cycles: list[int]) -> str:
     return f"{cycles[0]}-{cycles[-1]}" if len(cycles) > 1 else str(cycles[0])
 
 
-def store_status(ws: Workspace, last: int = 5) -> StoreStatus:
-    db = ws.open_store()
-    by_chamber: dict[str, list[int]] = {}
-    for chamber, cycle in db.execute(
-        "SELECT DISTINCT chamber, cycle FROM units WHERE superseded_by IS NULL ORDER BY chamber, cycle"
-    ):
-        by_chamber.setdefault(chamber, []).append(cycle)
-    states = db.execute("SELECT COUNT(DISTINCT state) FROM units WHERE superseded_by IS NULL").fetchone()[0]
-    contests = db.execute("SELECT COUNT(*) FROM current_contests").fetchone()[0]
-    lines = db.execute("SELECT COUNT(*) FROM district_results").fetchone()[0]
-    measures = db.execute("SELECT COUNT(*) FROM measures").fetchone()[0]
-    cols = ["id", "file_name", "sha256", "loaded_at", "outcome", "rows_read", "rows_accepted", "rows_rejected",
-            "units_new", "units_corrected", "error"]
-    loads = [dict(zip(cols, row)) for row in db.execute(
-        f"SELECT {', '.join(cols)} FROM loads ORDER BY id DESC LIMIT ?", [last])]
+def store_status(ws: Workspace, db: sqlite_utils.Database | None = None, last: int = 5) -> StoreStatus:
+    """What the store holds (``db``, else the workspace's store), the inbox, and the watcher."""
+    db = db or ws.open_store()
+    held = store_status_counts.summary(db, last)
     pending = sorted(p.name for p in ws.inbox.iterdir() if p.is_file() and not p.name.startswith("."))
     rejected = sorted(p.name for p in ws.folder("rejected").iterdir()
                       if p.is_file() and not p.name.endswith(".error.txt"))
-    result = StoreStatus(store.schema_version(db), by_chamber, states, contests, lines, loads, pending,
-                         rejected, measures)
+    result = StoreStatus(store.schema_version(db), held["cycles_by_chamber"], held["states"], held["contests"],
+                         held["vote_lines"], held["loads"], pending, rejected, held["measures"])
     result.coverage = coverage_lines(stored_coverage(db).units, ws.config()["flags.min_coverage"], detail=10)
     result.extra.update(_watcher_state(ws))
     return result
@@ -84,16 +77,8 @@ def store_status(ws: Workspace, last: int = 5) -> StoreStatus:
 def _watcher_state(ws: Workspace) -> dict[str, str]:
     """Whether a watcher runs, the last (and, while it runs, next) run of each job and the last
     error, from logs/watcher-state.json and the workspace lock."""
-    import json
-
-    from monitor.watcher import STATE_FILE
-
-    path = ws.folder("logs") / STATE_FILE
-    try:
-        state = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        state = None
-    holder = lock_holder(ws)
+    state = read_state(ws.folder("logs") / STATE_FILE)
+    holder = lock_holder(ws.root)
     if state is None and holder is None:
         return {"watcher": "has not run in this workspace"}
     state = state or {}
@@ -122,24 +107,3 @@ def _watcher_state(ws: Workspace) -> dict[str, str]:
         job = f" ({error['job']} job)" if error.get("job") else ""
         out["last error"] = f"{error['at']}{job}: {error['message']}"
     return out
-
-
-def lock_holder(ws: Workspace) -> str | None:
-    """The pid written in the workspace lock when a process holds the lock (a watcher runs),
-    else None. The lock is tried for an instant (shared, non-blocking); the kernel drops the lock
-    of a process that died, even by SIGKILL, so a killed watcher never shows as running."""
-    import fcntl
-
-    from monitor.lock import WorkspaceLock
-
-    try:
-        fh = open(WorkspaceLock(ws.root).path, "r", encoding="utf-8", errors="replace")
-    except OSError:
-        return None
-    with fh:
-        try:
-            fcntl.flock(fh.fileno(), fcntl.LOCK_SH | fcntl.LOCK_NB)
-        except BlockingIOError:
-            return fh.read().strip() or "unknown"
-        fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
-        return None

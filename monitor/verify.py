@@ -1,9 +1,11 @@
 """Full verification: recompute everything from scratch and compare with what is stored.
 
 The store is copied (SQLite's online backup: one consistent snapshot, even while a load commits)
-into a scratch database in a temporary folder. On that copy the measures and the coverage of every
-unit are recomputed, then the national pool, the tails, the flags and the watch list of every cycle and
-chamber (``full=True``: nothing is taken over from earlier runs). The tables as they were in the
+into a scratch database in a temporary folder. On that copy every derived step runs again with
+``full=True`` (nothing is taken over from earlier runs, :func:`monitor.pipeline.recompute`): the
+contest reductions, the measures and the coverage of every unit, the national pool, tails, flags and watch list of
+every cycle and chamber, and the aggregates (national summary, histogram, excess seats by who
+drew the plan, seats-votes curves, each unit's plan era). The tables as they were in the
 snapshot are then compared with the recomputed ones. The workspace's store is only read.
 
 A difference is either a changed method version (the stored row was computed by an earlier
@@ -23,6 +25,9 @@ import pandas as pd
 import sqlite_utils
 
 import store
+from store import tables
+from store.aggregates import TABLES as AGGREGATES
+from store.reductions import COLUMNS as REDUCTION_COLUMNS
 from monitor.config import Config
 from monitor.progress import Progress, tell
 
@@ -82,14 +87,19 @@ TABLES: dict[str, tuple[list[str], list[str], str | None]] = {
     "watch": (["state", "chamber", "plan_id"],
               ["favours", "severity", "seats_at_stake", "concurring", "cycles", "measures", "since",
                "drawn_by", "inferred"], None),
+    "reductions": (["contest_id"], [c for c in REDUCTION_COLUMNS if c != "contest_id"], None),
+    **{name: (["position"], columns, None) for name, columns in AGGREGATES.items()
+       if name not in ("unit_plans", "seats_votes", "national_summary")},
+    "national_summary": (["cycle", "chamber"], AGGREGATES["national_summary"][2:], None),
+    "unit_plans": (["cycle", "state", "chamber"], AGGREGATES["unit_plans"][3:], None),
+    "seats_votes": (["cycle", "state", "chamber"], AGGREGATES["seats_votes"][3:], None),
 }
 
 
 def verify_store(db: sqlite_utils.Database, config: Config, *,
                  progress: Progress | None = None) -> list[Difference]:
     """Differences between what ``db`` stores and a from-scratch recompute (empty: none)."""
-    from monitor.compute import compute
-    from monitor.flags import run_flags
+    from monitor.pipeline import recompute
 
     with tempfile.TemporaryDirectory(prefix="levelfield-verify-") as tmp:
         path = Path(tmp) / "scratch.sqlite"
@@ -102,8 +112,7 @@ def verify_store(db: sqlite_utils.Database, config: Config, *,
         scratch = store.connect(path)
         try:
             stored = {name: _read(scratch, name) for name in TABLES}
-            compute(scratch, config, full=True, progress=progress)
-            run_flags(scratch, config, full=True, progress=progress)
+            recompute(scratch, config, full=True, progress=progress)
             fresh = {name: _read(scratch, name) for name in TABLES}
         finally:
             scratch.conn.close()
@@ -138,21 +147,20 @@ def _explain(differences: list[Difference]) -> list[Difference]:
 
 def _read(db: sqlite_utils.Database, table: str) -> pd.DataFrame:
     key, columns, version = TABLES[table]
-    cols = [*key, *columns, *([version] if version else [])]
-    return pd.read_sql_query(f"SELECT {', '.join(cols)} FROM {table}", db.conn)
+    return tables.read_table(db, table, [*key, *columns, *([version] if version else [])])
 
 
 def compare(table: str, stored: pd.DataFrame, fresh: pd.DataFrame, key: list[str], columns: list[str],
             version: str | None = None) -> list[Difference]:
     """Row-by-row differences of two frames of one table, matched on ``key``."""
-    merged = fresh.merge(stored, on=key, how="outer", suffixes=("", "_stored"), indicator="side")
+    merged = fresh.merge(stored, on=key, how="outer", suffixes=("", "_stored"), indicator="_merge_side")
     out = []
     for r in merged.to_dict("records"):
         where = tuple(_plain(r[k]) for k in key)
-        if r["side"] == "left_only":
+        if r["_merge_side"] == "left_only":
             out.append(Difference(table, where, MISSING))
             continue
-        if r["side"] == "right_only":
+        if r["_merge_side"] == "right_only":
             out.append(Difference(table, where, EXTRA))
             continue
         if version and r[version] != r[f"{version}_stored"]:

@@ -41,12 +41,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from monitor.errors import DataError, LevelfieldError, UsageError
-from monitor.lock import WorkspaceLock
+from monitor.lock import STATE_FILE, WorkspaceLock, read_state
 from monitor.logbook import EventLog
 from monitor.progress import Progress, tell
 from monitor.workspace import Workspace
 
-STATE_FILE = "watcher-state.json"
 #: how often the running watcher records that it is alive (``seen_at``) when nothing else changes
 HEARTBEAT_SECONDS = 10
 
@@ -154,10 +153,7 @@ class Service:
 
     # -- state shown by `levelfield status` -------------------------------------------------
     def _read_state(self) -> dict:
-        try:
-            return json.loads(self.state_path.read_text(encoding="utf-8"))
-        except (OSError, json.JSONDecodeError):
-            return {"jobs": {}}
+        return read_state(self.state_path) or {"jobs": {}}
 
     def _write_state(self, **updates) -> None:
         with self._state_lock:
@@ -287,12 +283,15 @@ class Service:
     def verify(self) -> list:
         """Recompute everything from scratch (on a scratch copy) and log every difference from
         the store, each as a changed method version or as a bug; then recompute the store fully."""
+        from monitor.pipeline import prepare
         from monitor.verify import summary, verify_store
 
         started = dt.datetime.now(dt.timezone.utc)
         ok = False
         try:
-            differences = verify_store(self.ws.open_store(), self.ws.config(), progress=self.progress)
+            db, config = self.ws.open_store(), self.ws.config()
+            prepare(db, config, self.ws.notify)
+            differences = verify_store(db, config, progress=self.progress)
             self._progress_done()
             if differences:
                 for diff in differences[:200]:

@@ -87,24 +87,17 @@ class Workspace:
         except OSError as exc:
             raise ConfigError(f"{self.config_path}: cannot read ({exc.strerror or exc})") from None
 
-    def open_store(self, *, follow_config: bool = True) -> sqlite_utils.Database:
-        """Open the store (creating the workspace on first use). ``follow_config``: when the
-        ``[parties]`` labels of levelfield.toml changed since the stored party codes were derived,
-        re-derive them first (one transaction) and tell the user."""
+    def open_store(self) -> sqlite_utils.Database:
+        """Open the store (creating the workspace and the store's schema on first use). Opening never
+        writes data: bringing the stored inputs up to date with levelfield.toml is an explicit step
+        (:func:`monitor.pipeline.prepare`)."""
         self.ensure()
         if self.store_path.is_dir():
             raise UsageError(f"{self.store_path}: is a folder; the store must be a file")
         try:
-            db = store.connect(self.store_path)
+            return store.connect(self.store_path)
         except store.SchemaTooNew as exc:
             raise UsageError(f"{self.store_path}: {exc}") from None
         except sqlite3.DatabaseError as exc:
             raise UsageError(f"{self.store_path}: cannot open the store ({exc}); is it a levelfield "
                              "history.sqlite?") from None
-        if follow_config:
-            from monitor.ingest.labels import recode_message, sync_party_codes
-
-            recoded = sync_party_codes(db, self.config())
-            if recoded is not None:
-                self.notify(recode_message(recoded))
-        return db

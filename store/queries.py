@@ -191,9 +191,3 @@ def unit_lines(conn: sqlite3.Connection, unit_ids: Sequence[int]) -> pd.DataFram
         conn, params=list(unit_ids),
     )
 
-
-def read_table(db, table: str, columns: Sequence[str], order_by: str) -> pd.DataFrame:
-    """The named columns of a results table, in order (an export)."""
-    assert table in {"measures", "pool_seats", "tails"}, table
-    conn = getattr(db, "conn", db)
-    return pd.read_sql_query(f"SELECT {', '.join(columns)} FROM {table} ORDER BY {order_by}", conn)

@@ -60,6 +60,7 @@ def measured(lf, policy: str | None = None) -> dict[tuple, list[tuple]]:
     """What enters the measures, per unit: [(district, votes_a, votes_b, uncontested)], read
     through :func:`monitor.inputs.measure_inputs` as ``levelfield compute`` does."""
     from monitor.inputs import measure_inputs, reduced_contests
+    from monitor.pipeline import prepare
     from monitor.workspace import Workspace
 
     if policy is not None:
@@ -67,6 +68,7 @@ def measured(lf, policy: str | None = None) -> dict[tuple, list[tuple]]:
     ws = Workspace(lf.root)
     db = ws.open_store()
     try:
+        prepare(db, ws.config())  # the stored reductions follow the policy, as before every compute
         arrays = measure_inputs(reduced_contests(db), ws.config())
     finally:
         db.close()

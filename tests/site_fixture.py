@@ -20,6 +20,7 @@ import sqlite_utils
 
 import store
 from monitor.config import Config, load_config
+from monitor import aggregates, reductions
 from monitor.ingest import load_file
 
 # Markup as a state code. Upper case because the loader stores state codes in upper case (so the
@@ -115,6 +116,7 @@ def build(root: Path, *, derived: bool = True) -> SiteFixture:
         path = files / f"{cycle}.csv"
         path.write_text(_csv(cycle_rows(cycle)), encoding="utf-8")
         load_file(db, path, config, source="invented fixture", now=T0 + dt.timedelta(days=i))
+    reductions.refresh(db, config)  # the step after every load: the contests' stored reductions
     with store.transaction(db) as conn:
         for code, name in STATE_NAMES.items():
             conn.execute("UPDATE states SET name = ? WHERE code = ?", [name, code])
@@ -194,6 +196,7 @@ def fill_derived(db: sqlite_utils.Database, where: str = "", params=(), stamp: d
                          "VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)", tails)
         if not where:
             _plans_watch_events(conn, stamp)
+    aggregates.refresh(db)  # what the site reads besides: national aggregates, curves, unit plans (real code)
 
 
 def _plan_id(state: str, chamber: str, cycle: int) -> str:
@@ -247,6 +250,7 @@ def correct_state(fx: SiteFixture, state: str = "LU", cycle: int = 2022) -> None
     path = fx.root / "files" / f"{cycle}_{state}_correction.csv"
     path.write_text(_csv(rows), encoding="utf-8")
     load_file(fx.db, path, fx.config, source="invented correction", now=T0 + dt.timedelta(days=30))
+    reductions.refresh(fx.db, fx.config)
     fill_derived(fx.db, "AND u.state = ? AND u.chamber = 'federal' AND u.cycle = ?", (state, cycle),
                  stamp=T0 + dt.timedelta(days=31), salt="corrected")
     with store.transaction(fx.db) as conn:
@@ -264,4 +268,5 @@ def add_cycle(fx: SiteFixture, cycle: int, chambers: tuple[str, ...] = ("federal
     path = fx.root / "files" / f"{cycle}_{'_'.join(chambers)}.csv"
     path.write_text(_csv(rows), encoding="utf-8")
     load_file(fx.db, path, fx.config, source="invented partial cycle", now=T0 + dt.timedelta(days=40))
+    reductions.refresh(fx.db, fx.config)
     fill_derived(fx.db, "AND u.cycle = ?", (cycle,), stamp=T0 + dt.timedelta(days=41))

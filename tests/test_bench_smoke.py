@@ -26,7 +26,8 @@ import pytest
 from bench import synthetic
 from bench.baselines import measures_per_unit, rejection_delegations
 from monitor import pool as P
-from monitor.compute import measure_settings, settings_salt
+from monitor.compute import settings_salt
+from monitor import reductions
 from monitor.ingest.load import load_file
 from monitor.inputs import measure_inputs, reduced_contests
 from monitor.measures import compute_measures, seats_a
@@ -45,6 +46,7 @@ def tiny(tmp_path_factory):
     db = ws.open_store()
     config = ws.config()
     reports = [load_file(db, Path(p), config) for p in summary["files"]]
+    reductions.refresh(db, config)  # the step after every load
     return {"root": root, "data": data, "summary": summary, "db": db, "config": config, "reports": reports}
 
 
@@ -77,7 +79,7 @@ def test_every_generated_file_loads_whole(tiny):
 
 def _arrays(tiny):
     config = tiny["config"]
-    return measure_inputs(reduced_contests(tiny["db"]), config, settings_salt(config)), measure_settings(config)
+    return measure_inputs(reduced_contests(tiny["db"]), config, settings_salt(config)), config.measures
 
 
 def test_per_unit_baseline_equals_the_engine(tiny):

@@ -177,15 +177,22 @@ def test_edited_party_labels_recode_the_stored_lines_before_anything_reads_them(
 
 
 def test_the_measures_read_the_recoded_lines(lf):
-    """compute, flags and publish read contests through ``reduced_contests`` on a store opened by
-    the workspace: the re-coding happens before that read."""
+    """compute, flags and publish read the stored reductions (``reduced_contests``); opening the
+    store writes nothing, and the step every command runs first (``pipeline.prepare``) re-codes the
+    lines and reduces their contests again before that read."""
     from monitor.inputs import reduced_contests
+    from monitor.pipeline import prepare
     from monitor.workspace import Workspace
 
     lf("load", lf.write("rx.csv", long_csv(LANTERN_ROWS)))
     relabel(lf, ["Harbour", "Lantern"])
     notices: list[str] = []
-    db = Workspace(lf.root, notices.append).open_store()
+    ws = Workspace(lf.root, notices.append)
+    before = lf.dump()
+    db = ws.open_store()
+    assert lf.dump() == before and notices == []  # opening wrote nothing
+    assert reduced_contests(db).sort_values("district")["status"].tolist() == ["contested", "uncontested"]
+    prepare(db, ws.config(), ws.notify)
     contests = reduced_contests(db).sort_values("district")
     assert contests[["district", "status", "votes_a", "votes_b"]].values.tolist() == [
         ["1", "contested", 10, 9], ["2", "contested", 8, 7]]

@@ -392,8 +392,7 @@ def test_on_the_sample_history_coverage_agrees_with_the_measures_and_the_nationa
     import numpy as np
 
     from monitor.coverage import national_shares, stored_coverage
-    from monitor.exports import measures_export
-    from monitor.national import national_export
+    from monitor.exports import export, measures_export
 
     db, config = sample_workspace.open_store(), sample_workspace.config()
     m = measures_export(db)
@@ -409,7 +408,7 @@ def test_on_the_sample_history_coverage_agrees_with_the_measures_and_the_nationa
     assert set(cover.gaps["reason"]) == {"multi-member contest (2 seats)"}
     assert (incomplete["seats_measured"] == 58).all() and (incomplete["seats_stored"] == 60).all()
     # the national shares of export measures are the national table's (as cast and after the policy)
-    national = national_export(db, config).set_index(["cycle", "chamber"])
+    national = export(db, "national").set_index(["cycle", "chamber"])
     shares = national_shares(cover.units).set_index(["cycle", "chamber"]).reindex(national.index)
     np.testing.assert_allclose(shares["national_vote_share_as_cast"], national["vote_share_as_cast"], atol=1e-12)
     np.testing.assert_allclose(shares["national_vote_share_after_policy"], national["vote_share"], atol=1e-12)

@@ -224,13 +224,16 @@ def _hand_built_arrays():
 
 def test_tails_are_null_exactly_where_the_engine_stores_null_with_its_reason(config):
     from monitor import measures as M
-    from monitor.flags import context_stats, pool_group
+    from monitor.tails import context_stats, observed_values, pool_group
 
     arrays = _hand_built_arrays()
     members = arrays.units.index.to_numpy()
-    _, tails = pool_group(arrays, members, config, 2012, "federal")
     engine = M.compute_measures(arrays.unit, arrays.votes_a, arrays.votes_b, arrays.uncontested, len(members),
                                 M.MeasureSettings(interval_draws=0), None)
+    # the rows the measures step stores, which the tails read
+    stored = engine.assign(**{k: arrays.units[k].to_numpy()[engine["unit"]] for k in KEYS})
+    observed, undefined, seats = observed_values(stored, arrays.units)
+    _, tails = pool_group(arrays, members, observed, undefined, seats, config, 2012, "federal")
     engine = engine.assign(state=arrays.units["state"].to_numpy()[engine["unit"]]).set_index(["state", "measure"])
     t = tails.set_index(["state", "measure"])
     for state in arrays.units["state"]:

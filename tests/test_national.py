@@ -1,8 +1,10 @@
-"""National aggregates per cycle and chamber (monitor.national) on a small hand-built store.
+"""National aggregates per cycle and chamber (monitor.national, stored by monitor.aggregates) on a
+small hand-built store.
 
-The results are invented and go through the real loader; the measures (among them the stored
-``competitive`` and ``uncontested`` counts) come from the real engine (``monitor.compute``); the
-expected seats, flags and plan eras are inserted by hand. Every expected number below was counted
+The results are invented and go through the real loader and reduction step; the measures (among
+them the stored ``competitive`` and ``uncontested`` counts) come from the real engine
+(``monitor.compute``); the expected seats, flags and plan eras are inserted by hand, then the real
+aggregates step runs. Every expected number below was counted
 by hand from the rows in ``RESULTS`` (the arithmetic is in the comments); none is a check value
 from outside the project. Definitions used: the uncontested policy ``impute`` gives the party that
 stood 0.75 of the contest's votes (the project's default); a district is competitive when its
@@ -21,10 +23,17 @@ import pytest
 
 import store
 from conftest import csv_text
+from monitor import aggregates
 from monitor.compute import compute
-from monitor.national import (DRAWER_KEYS, SUMMARY_COLUMNS, contest_shares, excess_by_drawer, national_export,
-                              share_histogram)
+from monitor.national import DRAWER_KEYS, SUMMARY_COLUMNS, excess_by_drawer, share_histogram
+from monitor.exports import export
 from monitor.inputs import reduced_contests
+from store import aggregates as stored_aggregates
+
+
+def national_export(db, config=None):
+    """What ``levelfield export national`` writes: the stored summary of the aggregates step."""
+    return export(db, "national")
 
 HEADER = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "seats"]
 F, L = "federal", "state_lower"
@@ -75,6 +84,7 @@ def national_store(lf):
             "INSERT INTO plans (state, chamber, plan_id, first_cycle, last_cycle, drawn_by, inferred) VALUES (?,?,?,?,?,?,?)",
             [("AA", F, "AA-1", 2012, 2020, "party_a", 0), ("AA", F, "AA-2", 2022, None, "court", 0),
              ("AA", L, "AA-L", 2012, 2021, "other", 1)])  # BB federal: no plan era
+    aggregates.refresh(db)
     yield lf, db, config
     db.conn.close()
 
@@ -136,13 +146,15 @@ def test_competitive_is_the_sum_of_the_stored_measure(national_store):
     with store.transaction(db) as conn:
         conn.execute("UPDATE measures SET value = 5 WHERE cycle = 2020 AND state = 'BB' AND chamber = 'federal' "
                      "AND measure = 'competitive'")
+    assert _row(national_export(db, config), 2020, F)["competitive"] == 2 + 1  # stored: as of the last step
+    aggregates.refresh(db)
     assert _row(national_export(db, config), 2020, F)["competitive"] == 2 + 5
 
 
 def test_share_histogram_against_hand_counts(national_store):
     _, db, config = national_store
-    contests = contest_shares(reduced_contests(db), config["uncontested.policy"], config["uncontested.winner_share"])
-    hist = share_histogram(contests)
+    hist = share_histogram(reduced_contests(db))
+    assert hist.equals(stored_aggregates.read(db, "national_histogram"))  # what the step stored
     h = hist[(hist["cycle"] == 2020) & (hist["chamber"] == F)]
     got = sorted((round(float(b), 3), kind, side, int(n)) for b, kind, side, n in
                  zip(h["bin_start"], h["kind"], h["side"], h["districts"]))
@@ -188,6 +200,7 @@ def test_empty_store_gives_an_empty_table_with_its_columns(lf):
     from monitor.config import load_config
 
     try:
+        aggregates.refresh(db)
         out = national_export(db, load_config(lf.root / "levelfield.toml"))
         assert out.empty and list(out.columns) == SUMMARY_COLUMNS
     finally:

@@ -8,7 +8,15 @@ district without two-party votes, or the measure's own undefined case).
 One sign convention: every signed measure is positive when it favours party a.
 
 The engine entry point is :func:`compute_measures`; the single measures below are what the
-national-pool simulation calls on many simulated delegations at once.
+national-pool simulation calls on many simulated delegations at once. Every measure is declared
+once, in the module that computes it (:mod:`monitor.measures.registry`).
+
+Examples
+--------
+Two districts, a wins 60-40 and loses 30-70: a wastes 10 + 30 votes, b 40 + 20, of 200:
+
+>>> efficiency_gap([0, 0], [60.0, 30.0], [40.0, 70.0], 1).round(12)
+array([0.1])
 """
 
 from .catalog import MEASURE_NAMES, MEASURE_VERSIONS, MEASURES, MeasureDoc

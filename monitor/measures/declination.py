@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .registry import FAVOURS_A, Flag, Measure
 from .segments import Segments
 
 
@@ -65,3 +66,22 @@ def declination(unit, votes_a, votes_b, n_units: int) -> np.ndarray:
     -0.2136741375
     """
     return declination_of(Segments(unit, votes_a, votes_b, n_units))
+
+
+DECLARED = (
+    Measure(
+        name="declination", order=140, label="Declination", signed=True, headline=True, table=True,
+        plain="Looks at the districts each party won as two groups and compares the angle from the "
+              "50% line to the middle of each group. A kink at 50% suggests one side's wins were arranged "
+              "to be narrow and the other's to be lopsided.",
+        formula="-(2/pi) [arctan((2 zbar - 1) N / k') - arctan((1 - 2 ybar) N / k)], k / ybar: seats a lost "
+                "and their mean share, k' / zbar: seats a won and theirs; a tie counts 1/2 to each side",
+        sign=FAVOURS_A + " (the negated published delta)", source="Warrington, ELJ 17 (2018), arXiv:1705.09393",
+        summary="angle between the parties' won and lost districts",
+        compute=lambda u: declination_of(u.seg),
+        undefined=lambda u: u.asymmetry + [(u.seg.seats_a == 0, "party a won no seat"),
+                                           (u.seg.seats_a == u.n, "party b won no seat")],
+        interval=lambda seg, settings: declination_of(seg), null=declination,
+        flag=Flag("declination", null=True, short="declination"),
+    ),
+)

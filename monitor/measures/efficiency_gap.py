@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .registry import FAVOURS_A, Flag, Measure
 from .segments import Segments
 
 
@@ -108,3 +109,48 @@ def efficiency_gap_seats(unit, votes_a, votes_b, n_units: int) -> np.ndarray:
     array([2.])
     """
     return efficiency_gap_seats_of(Segments(unit, votes_a, votes_b, n_units))
+
+
+#: Thresholds proposed in the legal literature, drawn as reference lines: proposals, not law.
+PROPOSED_THRESHOLDS = (
+    {"measure": "efficiency_gap_seats", "value": 2.0, "unit": "seats", "applies_to": "congressional plans",
+     "source": "Stephanopoulos & McGhee (2015), 82 U. Chi. L. Rev. 831, as reported in press summaries of "
+               "the paper (not checked against the paper's text)"},
+    {"measure": "efficiency_gap", "value": 0.08, "unit": "share", "applies_to": "state-house plans",
+     "source": "Stephanopoulos & McGhee (2015), as reported in press summaries of the paper"},
+    {"measure": "efficiency_gap", "value": 0.07, "unit": "share", "applies_to": "state-house plans",
+     "source": "threshold argued by the plaintiffs in Whitford v. Gill (2016), as reported in the press"},
+)
+
+DECLARED = (
+    Measure(
+        name="efficiency_gap", order=80, label="Efficiency gap", signed=True, headline=True, table=True,
+        plain="Counts the votes each party 'wasted': every vote for a losing candidate, and every vote "
+              "for a winner beyond what was needed to win. The gap is the difference between the two "
+              "parties' wasted votes as a share of all votes. A plan that makes one party waste many more "
+              "votes than the other favours the party that wastes fewer.",
+        formula="EG = sum_i (w_b,i - w_a,i) / sum_i n_i; the loser's votes and the winner's votes above n_i/2 "
+                "are wasted, a tie wastes n_i/4 each; equals (S_w - 1/2) - 2 (V - 1/2), S_w turnout-weighted",
+        sign=FAVOURS_A, source="Stephanopoulos & McGhee, 82 U. Chi. L. Rev. 831 (2015); McGhee, LSQ 39 (2014)",
+        summary="difference of the parties' wasted votes over all votes",
+        compute=lambda u: efficiency_gap_of(u.seg), interval=lambda seg, settings: efficiency_gap_of(seg),
+        null=efficiency_gap, flag=Flag("efficiency_gap", null=True, short="efficiency gap"),
+        thresholds=PROPOSED_THRESHOLDS,
+    ),
+    Measure(
+        name="efficiency_gap_equal_turnout", order=90, label="Efficiency gap (equal-turnout form)", signed=True,
+        plain="A shortcut to the efficiency gap that assumes every district casts the same number of votes: it "
+              "compares the seat share with twice the vote margin.",
+        formula="(S - 1/2) - 2 (V - 1/2)", sign=FAVOURS_A, source="Stephanopoulos & McGhee (2015), simplified form",
+        summary="the efficiency gap's equal-turnout form (S - 1/2) - 2 (V - 1/2)",
+        compute=lambda u: efficiency_gap_equal_turnout_of(u.seg),
+    ),
+    Measure(
+        name="efficiency_gap_seats", order=100, label="Efficiency gap in seats", signed=True, digits=2,
+        headline=True, table=True, flag_of="efficiency_gap",
+        plain="The efficiency gap expressed in seats: the gap times the number of districts.",
+        formula="EG x N", sign=FAVOURS_A, source="Stephanopoulos & McGhee (2015), seat form for congressional plans",
+        summary="the efficiency gap times the number of districts",
+        compute=lambda u: efficiency_gap_seats_of(u.seg),
+    ),
+)

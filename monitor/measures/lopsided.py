@@ -14,6 +14,7 @@ from typing import NamedTuple
 
 import numpy as np
 
+from .registry import FAVOURS_A, Flag, Measure
 from .segments import Segments
 from .ttest import t_test_from_summary
 
@@ -69,3 +70,35 @@ def lopsided_test(unit, votes_a, votes_b, n_units: int, variant: str = "welch") 
     (8.98146, 7)
     """
     return lopsided_of(Segments(unit, votes_a, votes_b, n_units), variant)
+
+
+def _test(u) -> LopsidedResult:
+    return u.shared("lopsided", lambda: lopsided_of(u.seg, u.settings.lopsided_variant))
+
+
+def _gates(u):
+    lop = _test(u)
+    return u.asymmetry + [
+        ((lop.wins_a < 2) & (lop.wins_b < 2), "each party won fewer than 2 seats outright"),
+        (lop.wins_a < 2, "party a won fewer than 2 seats outright (the test needs 2 per party)"),
+        (lop.wins_b < 2, "party b won fewer than 2 seats outright (the test needs 2 per party)"),
+        (np.isnan(lop.statistic), "the winners' shares are constant in both parties (zero standard error)"),
+    ]
+
+
+DECLARED = (
+    Measure(
+        name="lopsided_t", order=130, label="Lopsided-outcomes t", signed=True, digits=2, headline=True, table=True,
+        plain="Compares how big each party's wins are. If one party wins its seats by much larger margins "
+              "than the other, its voters may have been packed. The test asks whether the difference in "
+              "average winning margins is larger than chance would give.",
+        formula="-(mean X - mean Y) / SE, X = a's shares where a won, Y = b's shares where b won (ties in "
+                "neither); Welch or pooled SE (setting lopsided_variant)",
+        sign=FAVOURS_A + " (the negated published t: positive raw t means a's wins are more lopsided)",
+        source="Wang, 68 Stan. L. Rev. 1263 (2016); ELJ 15 (2016) 367-384",
+        p_value="two-sided t-test p (lopsided_p)",
+        summary="t-test of each party's winning shares (Welch; pooled on request), with its p",
+        compute=lambda u: (_test(u).statistic, _test(u).pvalue), undefined=_gates,
+        flag=Flag("lopsided", p_value=True, short="lopsided t-test", label="Lopsided outcomes (t-test p)"),
+    ),
+)

@@ -33,6 +33,7 @@ from typing import NamedTuple
 import numpy as np
 from scipy import stats
 
+from .registry import FAVOURS_A, Flag, Measure
 from .segments import Segments
 
 #: sqrt(pi/2 - 1): SE of (median - mean) in units of sigma/sqrt(N) for normal data.
@@ -99,3 +100,37 @@ def mean_median_test(unit, votes_a, votes_b, n_units: int) -> MeanMedianTest:
     -0.5339
     """
     return mean_median_test_of(Segments(unit, votes_a, votes_b, n_units))
+
+
+def _test(u) -> MeanMedianTest:
+    return u.shared("mean_median_test", lambda: mean_median_test_of(u.seg))
+
+
+def _gates(u):
+    return u.asymmetry + [(u.n < 3, "identically 0 with fewer than 3 districts")]
+
+
+DECLARED = (
+    Measure(
+        name="mean_median", order=110, label="Mean-median difference", signed=True, headline=True, table=True,
+        plain="Compares party a's share in the middle district with its average share across districts. "
+              "When a party's voters are packed into a few lopsided districts, its median district does "
+              "worse than its average one.",
+        formula="median(x_i) - mean(x_i), unweighted district shares of a", sign=FAVOURS_A,
+        source="McDonald & Best, ELJ 14 (2015); Wang, 68 Stan. L. Rev. 1263 (2016); Best et al., ELJ 17 (2018)",
+        p_value="two-sided normal p of z = MM / (sqrt(pi/2 - 1) s / sqrt(N))",
+        summary="median minus mean of a's district shares, with its z-test p",
+        compute=lambda u: (_test(u).statistic, _test(u).pvalue), undefined=_gates,
+        null=mean_median, flag=Flag("mean_median", null=True, p_value=True, short="mean-median"),
+    ),
+    Measure(
+        name="mean_median_z", order=120, label="Mean-median z", signed=True, digits=2,
+        plain="The mean-median difference divided by its standard error: how unusual the difference is "
+              "for a plan of this size if district shares varied at random.",
+        formula="MM / (sqrt(pi/2 - 1) s / sqrt(N)), s the sample SD of the x_i", sign=FAVOURS_A,
+        source="SE of median - mean under normality (derived; Wang 2016 uses ~0.756, from memory)",
+        p_value="two-sided normal p", summary="the mean-median difference over its standard error",
+        compute=lambda u: (_test(u).z, _test(u).pvalue),
+        undefined=lambda u: _gates(u) + [(np.isnan(_test(u).z), "all district shares are equal (zero standard error)")],
+    ),
+)

@@ -42,6 +42,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .registry import FAVOURS_A, Flag, Measure
 from .segments import Segments, step
 
 REFERENCES = ("vote_weighted", "district_mean")
@@ -178,3 +179,49 @@ def seats_at_flipped_vote(unit, votes_a, votes_b, n_units: int, reference: str =
     array([2.])
     """
     return seats_at_flipped_vote_of(Segments(unit, votes_a, votes_b, n_units), reference)
+
+
+DECLARED = (
+    Measure(
+        name="partisan_bias", order=150, label="Partisan bias", signed=True, headline=True, table=True,
+        plain="Shifts every district by the same amount until the statewide vote is exactly 50-50, then "
+              "asks how many more (or fewer) than half of the seats party a would win.",
+        formula="S(1/2) - 1/2 under uniform swing of every district share", sign=FAVOURS_A,
+        source="Tufte, APSR 67 (1973); King & Browning, APSR 81 (1987)",
+        summary="a's seat share at 50% of the vote under uniform swing, minus one half",
+        compute=lambda u: partisan_bias_of(u.seg, u.settings.swing_reference),
+        interval=lambda seg, settings: partisan_bias_of(seg, settings.swing_reference),
+        null=partisan_bias, flag=Flag("partisan_bias", null=True, short="partisan bias"),
+    ),
+    Measure(
+        name="symmetry_bias", order=160, label="Symmetry bias (band average)", signed=True, table=True,
+        plain="The same question as partisan bias, averaged over a band of statewide votes around 50%, so "
+              "that a single close district does not decide it.",
+        formula="mean over v in [1/2 - w, 1/2 + w] of [S(v) - (1 - S(1 - v))] / 2, exact on the step function; "
+                "halved (Gelman & King's form) rather than the undivided difference, so that it is on the scale "
+                "of partisan bias and equals it as w shrinks to 0 (the undivided average is twice this value)",
+        sign=FAVOURS_A, source="Gelman & King, AJPS 38 (1994) (band and form from memory)",
+        summary="[S(v) - (1 - S(1 - v))]/2 averaged over 50% +- `measures.symmetry_band` (halved: on the scale of "
+                "partisan_bias, equal to it as the band shrinks to 0)",
+        compute=lambda u: symmetry_bias_of(u.seg, u.settings.symmetry_band, u.settings.swing_reference),
+    ),
+    Measure(
+        name="responsiveness", order=170, label="Responsiveness", digits=2, table=True,
+        plain="How many seats change hands per point of statewide vote near the observed result. "
+              "A steep curve means small swings move many seats.",
+        formula="[S(V + h) - S(V - h)] / 2h at the observed vote V",
+        sign="not signed (1 = proportional, 3 = cube law at 50 %)",
+        source="Tufte (1973); cube law: Kendall & Stuart, Br. J. Sociology 1 (1950)",
+        summary="slope of the uniform-swing seats-votes curve at the observed vote",
+        compute=lambda u: responsiveness_of(u.seg, u.settings.responsiveness_h, None, u.settings.swing_reference),
+    ),
+    Measure(
+        name="seats_at_flipped_vote", order=180, label="Seats (a) at the flipped vote", kind="count", digits=1,
+        table=True,
+        plain="The seats party a would win if the statewide vote were flipped (a's share becoming "
+              "b's). A symmetric plan gives a, at b's vote, the seats b actually won.",
+        formula="N S(1 - V) under uniform swing", sign="count of a's seats (compare with seats_b)",
+        source="uniform swing, as partisan_bias", summary="a's seats under uniform swing at b's vote share",
+        compute=lambda u: seats_at_flipped_vote_of(u.seg, u.settings.swing_reference),
+    ),
+)

@@ -34,6 +34,7 @@ from pathlib import Path, PurePosixPath
 
 import sqlite_utils
 
+import store
 from monitor.config import Config
 from monitor.errors import UsageError
 from monitor.publish.collect import collect
@@ -87,7 +88,7 @@ def build(source, config: Config | None = None, out: str | Path | None = None, *
     db, config, out, own = _resolve(source, config, out)
     own = own or _own
     out = Path(out).absolute()
-    check_output(out, _store_path(db), unmarked_ok=own)
+    check_output(out, store.path_of(db), unmarked_ok=own)
     with _lock(out):
         data = collect(db, config)
 
@@ -104,11 +105,6 @@ def build(source, config: Config | None = None, out: str | Path | None = None, *
 #: Written at the root of every build; its presence marks a folder as a levelfield site.
 MARKER = ".levelfield-site"
 MARKER_TEXT = b"This folder is a site built by levelfield publish; the next build replaces all of it.\n"
-
-
-def _store_path(db: sqlite_utils.Database) -> Path | None:
-    row = db.execute("PRAGMA database_list").fetchone()
-    return Path(row[2]).absolute() if row and row[2] else None
 
 
 def check_output(out: Path, store: Path | None = None, *, unmarked_ok: bool = False) -> None:

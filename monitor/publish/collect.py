@@ -1,12 +1,12 @@
 """Collect: read everything the site shows from the store into plain frames (a :class:`SiteData`).
 
-This is the first stage of the build (collect -> render -> write). It reads, never writes, and
-tolerates a fresh store: every frame then is empty with its columns, and the site says that
-nothing is loaded yet. The national aggregates (histogram, summary, excess seats by who drew the
-plan) come from :mod:`monitor.national`; the few derived numbers only the pages need (the
-seats-votes curve under uniform swing, what changed since each unit's previous cycle, what each
-correction changed) are computed here, in Python, so that templates only lay out what they are
-given.
+This is the first stage of the build (collect -> render -> write). It reads stored numbers only
+and never writes; it tolerates a fresh store: every frame then is empty with its columns, and the
+site says that nothing is loaded yet. The national aggregates (histogram, summary, excess seats by
+who drew the plan), the seats-votes curves and each unit's plan era are computed upstream by the
+aggregates step (:mod:`monitor.aggregates`) and read here from its tables; what remains here is
+words, not numbers: which flags changed since each unit's previous cycle and what each correction
+changed (from the load report, or by comparing the stored reductions of the two deliveries).
 """
 
 from __future__ import annotations
@@ -23,22 +23,20 @@ import sqlite_utils
 from monitor.config import OPTIONS, Config, Party
 from monitor.coverage import stored_coverage, with_shares
 from monitor.exports import coverage_columns, with_unit_coverage
-from monitor.inputs import UNIT_KEYS, reduced_contests
-from monitor.measures.swing import seat_share_at
-from monitor.national import (contest_shares, excess_by_drawer, measured, national_summary, plans_of_units,
-                              share_histogram)
-from monitor.reduce import describe_changes, reduce_contests
+from monitor.inputs import reduced_contests
+from monitor.measures import registry
+from monitor.reduce import describe_changes
 from monitor.results import results_export
 from monitor.publish.paths import unique_slugs
-from store import queries
+from store import aggregates, history, tables
+from store import reductions as stored_reductions
 
 #: Chamber codes of the sample contract, in display order, with their labels.
 CHAMBER_LABELS = {"federal": "Federal lower chamber", "state_lower": "State legislature, lower chamber"}
 CHAMBER_SHORT = {"federal": "federal", "state_lower": "state lower"}
 
 #: Measures charted over time and across states, in this order (when the store has them).
-HEADLINE_MEASURES = ("efficiency_gap", "efficiency_gap_seats", "mean_median", "lopsided_t",
-                     "declination", "partisan_bias")
+HEADLINE_MEASURES = tuple(m.name for m in registry.measures() if m.headline)
 
 EPOCH = dt.datetime(1970, 1, 1, tzinfo=dt.timezone.utc)
 
@@ -100,6 +98,7 @@ class SiteData:
     coverage_export: pd.DataFrame = field(default_factory=pd.DataFrame)  # the coverage download's rows
     min_coverage: float = 0.9
     drawers: pd.DataFrame = field(default_factory=pd.DataFrame)
+    seats_votes: pd.DataFrame = field(default_factory=pd.DataFrame)
     corrections: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=CORRECTION_COLUMNS))
     base_url: str = ""
     state_slugs: dict[str, str] = field(default_factory=dict)
@@ -161,11 +160,11 @@ class SiteData:
 
     def label(self, measure: str) -> str:
         doc = self.doc(measure)
-        if doc is not None:
-            return doc.label.replace("(a)", f"({self.parties['a'].name})").replace("(b)", f"({self.parties['b'].name})")
-        return {"seats": f"Seats ({self.parties['a'].name}) against the national pool",
-                "lopsided": "Lopsided outcomes (t-test p)"}.get(
-            measure, measure.replace("_", " "))
+        judged = registry.flag_by_name().get(measure)
+        label = doc.label if doc is not None else judged.flag.label if judged is not None else None
+        if label:
+            return label.replace("(a)", f"({self.parties['a'].name})").replace("(b)", f"({self.parties['b'].name})")
+        return measure.replace("_", " ")
 
 
 def chamber_order(chambers) -> list[str]:
@@ -174,19 +173,13 @@ def chamber_order(chambers) -> list[str]:
 
 
 def measure_docs() -> list:
-    """The measures' documentation from the measures engine (``monitor.measures.MEASURES``)."""
-    from monitor.measures import MEASURES
-
-    return list(MEASURES)
+    """The measures' documentation: their declarations in the registry."""
+    return registry.measures()
 
 
 def proposed_thresholds() -> list[dict]:
-    """Reference lines proposed in the legal literature (owned by the flags module)."""
-    try:
-        from monitor.flags import PROPOSED_THRESHOLDS
-    except ImportError:
-        return []
-    return [dict(t) for t in PROPOSED_THRESHOLDS]
+    """Reference lines proposed in the legal literature (declared with their measures)."""
+    return [dict(t) for m in registry.measures() for t in m.thresholds]
 
 
 def source_date_epoch() -> dt.datetime | None:
@@ -213,46 +206,45 @@ def latest_time(stamps) -> dt.datetime | None:
 
 
 def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
-    """Read the store into a :class:`SiteData` (no writes)."""
-    tables = {name: _table(db, name) for name in _COLUMNS}
-    units = tables.pop("units")
-    contests = _contests(db, config)
-    plans = tables["plans"]
-    for col in ("inferred",):
-        plans[col] = plans[col].fillna(0).astype(int)
-    states = _states(db)
-    loaded = tables["loads"][tables["loads"]["outcome"] == "loaded"]
-    site_time = source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH
-    curves, points = seats_votes_curves(contests)
-    unit_plans = plans_of_units(units, plans)
-    # coverage and vote shares as the last recompute stored them, on every measures and tails row
+    """Read the store into a :class:`SiteData` (no writes, no computation of numbers: the national
+    aggregates, curves and each unit's plan come from the aggregates step's tables, the coverage
+    from the measures step's)."""
+    frames = {name: _table(db, name) for name in _COLUMNS}
+    units = frames.pop("units")
+    plans = frames["plans"]
+    plans["inferred"] = plans["inferred"].fillna(0).astype(int)
+    derived = {name: aggregates.read(db, name) for name in aggregates.TABLES}
+    derived["unit_plans"]["inferred"] = derived["unit_plans"]["inferred"].fillna(0).astype(int)
+    loaded = frames["loads"][frames["loads"]["outcome"] == "loaded"]
+    # coverage and vote shares as the last recompute stored them, on every tails row
     stored = stored_coverage(db)
     cover = coverage_columns(stored.units)
-    tables["tails"] = with_unit_coverage(tables["tails"], cover, ["incomplete"])
+    frames["tails"] = with_unit_coverage(frames["tails"], cover, ["incomplete"])
     data = SiteData(
         parties={code: config.party(code) for code in ("a", "b")},
         policy=config.policy,
         settings=_settings(config),
         measure_docs=measure_docs(),
         thresholds=proposed_thresholds(),
-        loads=tables["loads"],
+        loads=frames["loads"],
         units=units,
-        contests=contests,
-        measures=tables["measures"],
-        pool=tables["pool_seats"],
-        tails=tables["tails"],
-        events=tables["flag_events"],
-        watch=tables["watch"],
+        contests=reduced_contests(db),
+        measures=frames["measures"],
+        pool=frames["pool_seats"],
+        tails=frames["tails"],
+        events=frames["flag_events"],
+        watch=frames["watch"],
         plans=plans,
-        unit_plans=unit_plans,
-        state_names=states,
-        curves=curves,
-        curve_points=points,
-        histogram=share_histogram(contests),
+        unit_plans=derived["unit_plans"],
+        state_names=history.state_names(db),
+        curves=derived["swing_curves"],
+        curve_points=derived["swing_points"],
+        histogram=derived["national_histogram"],
         results=results_export(db),
-        site_time=site_time,
-        national=national_summary(contests, tables["measures"], tables["tails"], tables["pool_seats"], unit_plans),
-        drawers=excess_by_drawer(tables["pool_seats"], unit_plans),
+        site_time=source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH,
+        national=derived["national_summary"],
+        drawers=derived["national_drawers"],
+        seats_votes=derived["seats_votes"],
         corrections=corrections(db),
         base_url=config["site.base_url"],
         coverage=with_shares(stored.units),
@@ -267,27 +259,9 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
 
 def _table(db: sqlite_utils.Database, name: str) -> pd.DataFrame:
     """A table (or the current units) with its known columns, empty when absent."""
-    columns = _COLUMNS[name]
     if name == "units":
-        sql = ("SELECT id AS unit_id, cycle, state, chamber, certification, load_id FROM units "
-               "WHERE superseded_by IS NULL ORDER BY cycle, state, chamber")
-    else:
-        if name not in db.table_names():
-            return pd.DataFrame(columns=columns)
-        present = set(db[name].columns_dict)
-        cols = [c for c in columns if c in present]
-        sql = f"SELECT {', '.join(cols)} FROM {name} ORDER BY {_ORDER[name]}"
-    frame = pd.read_sql_query(sql, db.conn)
-    for col in columns:
-        if col not in frame:
-            frame[col] = None
-    return frame[columns]
-
-
-def _states(db: sqlite_utils.Database) -> dict[str, str]:
-    if "states" not in db.table_names():
-        return {}
-    return {code: name for code, name in db.execute("SELECT code, name FROM states ORDER BY code") if name}
+        return history.current_units(db)[_COLUMNS["units"]]
+    return tables.read_table(db, name, _COLUMNS[name], _ORDER[name])
 
 
 def _settings(config: Config) -> list[dict]:
@@ -295,74 +269,6 @@ def _settings(config: Config) -> list[dict]:
     skip = ("parties.", "load.", "schedule.", "site.")
     return [{"name": opt.name, "value": config[opt.name], "default": opt.default, "help": opt.help}
             for opt in OPTIONS if not opt.name.startswith(skip)]
-
-
-def _contests(db: sqlite_utils.Database, config: Config) -> pd.DataFrame:
-    """Every current contest with its reduction, raw two-party share and the share that enters
-    the measures after the uncontested policy (:func:`monitor.national.contest_shares`)."""
-    return contest_shares(reduced_contests(db), config["uncontested.policy"], config["uncontested.winner_share"])
-
-
-def _measure_rows(contests: pd.DataFrame) -> pd.DataFrame:
-    rows = measured(contests)
-    return rows[[*UNIT_KEYS, "district", "votes_a_used", "votes_b_used", "share_used", "imputed"]]
-
-
-def seats_votes_curves(contests: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """The seats-votes curve under uniform swing of the latest cycle of every (state, chamber)
-    with at least two districts.
-
-    Shifting every district share by the same amount ``d`` moves the statewide vote-weighted
-    share from ``V`` to ``V + d``; district ``i`` changes hands at ``v_i = V + 1/2 - x_i``. The
-    curve is the step function through those points: just above ``v_i`` the seat share counts
-    every district whose flip point lies at or below it. Returned as step vertices (state,
-    chamber, cycle, vote, seat_share) over ``v`` in [0, 1], plus the marked points (observed
-    result, statewide vote flipped to ``1 - V``, and 50 %), each evaluated with the measures
-    engine's :func:`~monitor.measures.swing.seat_share_at` so they agree with ``partisan_bias``
-    and ``seats_at_flipped_vote``.
-    """
-    cols = ["state", "chamber", "cycle", "vote", "seat_share"]
-    pcols = ["state", "chamber", "cycle", "point", "vote", "seat_share", "seats", "districts"]
-    rows = _measure_rows(contests)
-    if rows.empty:
-        return pd.DataFrame(columns=cols), pd.DataFrame(columns=pcols)
-    latest = rows.groupby(["state", "chamber"])["cycle"].transform("max")
-    rows = rows[rows["cycle"] == latest]
-    # like the engine's uniform-swing measures, a curve needs at least two districts
-    rows = rows[rows.groupby(UNIT_KEYS)["district"].transform("size") >= 2]
-    if rows.empty:
-        return pd.DataFrame(columns=cols), pd.DataFrame(columns=pcols)
-    rows = rows.sort_values([*UNIT_KEYS, "district"], kind="mergesort")
-    units = rows[UNIT_KEYS].drop_duplicates().reset_index(drop=True)
-    unit = rows.groupby(UNIT_KEYS, sort=False).ngroup().to_numpy(np.int64)
-    va, vb = rows["votes_a_used"].to_numpy(float), rows["votes_b_used"].to_numpy(float)
-    n_units = len(units)
-    count = np.bincount(unit, minlength=n_units)
-    V = np.bincount(unit, va, n_units) / np.bincount(unit, va + vb, n_units)
-    flip = V[unit] + 0.5 - va / (va + vb)
-    order = np.lexsort((flip, unit))
-    flip, u_sorted = flip[order], unit[order]
-    starts = np.concatenate([[0], np.cumsum(count)[:-1]])
-    rank = np.arange(flip.size) - starts[u_sorted] + 1
-    inside = (flip > 0) & (flip < 1)
-    # seat share at the ends of [0, 1] from the engine, then one vertex per flip point inside
-    s0 = seat_share_at(unit, va, vb, n_units, np.zeros(n_units))
-    s1 = seat_share_at(unit, va, vb, n_units, np.ones(n_units))
-    vertex = pd.DataFrame({"u": u_sorted[inside], "vote": flip[inside], "seat_share": rank[inside] / count[u_sorted[inside]]})
-    ends = pd.DataFrame({"u": np.concatenate([np.arange(n_units)] * 2),
-                         "vote": np.concatenate([np.zeros(n_units), np.ones(n_units)]),
-                         "seat_share": np.concatenate([s0, s1])})
-    curve = pd.concat([ends.iloc[:n_units], vertex, ends.iloc[n_units:]], ignore_index=True)
-    curve = curve.sort_values(["u", "vote"], kind="mergesort")
-    # several districts flipping at the same point: keep the last (highest) step
-    curve = curve.drop_duplicates(["u", "vote"], keep="last")
-    curve = units.reset_index().rename(columns={"index": "u"}).merge(curve, on="u")[cols]
-
-    points = []
-    for name, at in (("observed", V), ("flipped vote", 1.0 - V), ("even vote", np.full(n_units, 0.5))):
-        share = seat_share_at(unit, va, vb, n_units, at)
-        points.append(units.assign(point=name, vote=at, seat_share=share, seats=share * count, districts=count))
-    return curve.reset_index(drop=True), pd.concat(points, ignore_index=True)[pcols]
 
 
 def flag_changes(data: SiteData, chamber: str | None = None) -> pd.DataFrame:
@@ -413,14 +319,7 @@ def corrections(db: sqlite_utils.Database) -> pd.DataFrame:
     """Every unit a load superseded (a correction), oldest first, with what changed: from the
     load's stored report when it has this unit's entry (``basis`` = ``load report``), otherwise by
     comparing the superseded unit with its successor (``basis`` = ``compared``)."""
-    if "units" not in db.table_names():
-        return pd.DataFrame(columns=CORRECTION_COLUMNS)
-    frame = pd.read_sql_query(
-        "SELECT l.id AS load_id, l.file_name, l.sha256, l.loaded_at, l.report, n.cycle, n.state, n.chamber, "
-        "n.id AS unit_id, n.certification, o.id AS old_unit_id, o.load_id AS old_load_id, "
-        "o.certification AS old_certification "
-        "FROM units n JOIN units o ON o.id = n.supersedes JOIN loads l ON l.id = n.load_id "
-        "WHERE l.outcome = 'loaded' ORDER BY l.id, n.cycle, n.state, n.chamber", db.conn)
+    frame = history.corrections(db)
     if frame.empty:
         return pd.DataFrame(columns=CORRECTION_COLUMNS)
     reports: dict[int, dict | None] = {}
@@ -469,15 +368,10 @@ def _compare_units(db: sqlite_utils.Database, rows) -> list[list[str]]:
     """What changed between each superseded unit and its successor, in the words of a load
     report: seats of each party, districts added or dropped, winners, vote totals, status."""
     ids = sorted({int(r.old_unit_id) for r in rows} | {int(r.unit_id) for r in rows})
-    votes = queries.unit_votes(db, ids)
     reduced = {}
-    for unit_id, part in votes.groupby("unit_id"):
-        contests = part.drop_duplicates("contest_id")[["contest_id", "seats", "district", "special", "runoff",
-                                                       "decides"]]
-        red = reduce_contests(part, contests[["contest_id", "seats"]]).merge(
-            contests[["contest_id", "district", "special", "runoff", "decides"]], on="contest_id")
-        red["key"] = list(zip(red["district"], red["special"].astype(int).astype(bool),
-                              red["runoff"].astype(int).astype(bool)))
+    for unit_id, red in stored_reductions.of_units(db, ids).groupby("unit_id"):
+        red = red.assign(key=list(zip(red["district"], red["special"].astype(int).astype(bool),
+                                      red["runoff"].astype(int).astype(bool))))
         reduced[int(unit_id)] = red.set_index("key")
     empty = pd.DataFrame(columns=["seats_a", "seats_b", "votes_a", "votes_b", "votes_other", "winner"])
     out = []

@@ -1,0 +1,244 @@
+"""Null distributions of the measures from the national pool, and the batched comparison of many
+units with the pool (expected seats and every null at once, in bounded memory)."""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, fields
+
+import numpy as np
+
+from monitor.measures import registry
+
+from .pool import NationalPool
+from .sampler import _CHUNK_CELLS, Delegations, _base_seed, simulate_delegations
+from .seats import SeatsResult, _weighted_midrank, _weighted_quantile, expected_seats
+
+#: The measures judged against their national-pool null (the registry's flags with ``null``), by
+#: their flag name, with the vectorised function ``f(unit, votes_a, votes_b, n_units)`` that
+#: :func:`null_distributions` evaluates on the simulated delegations.
+NULL_MEASURES: dict[str, Callable] = {m.flag.name: m.null for m in registry.flagged() if m.flag.null}
+
+
+@dataclass(frozen=True)
+class NullResult:
+    """One measure's null distribution from the national pool, per unit (arrays of shape (U,)).
+
+    Attributes
+    ----------
+    observed : the unit's own value, as given.
+    percentile : ``P(null < observed) + 1/2 P(null == observed)`` under the weighted null, in
+        [0, 1]; NaN when the observed value is NaN or no kept draw has a defined measure.
+    percentile_se : Monte Carlo standard error of ``percentile``.
+    tail : int8, +1 when ``percentile > 1 - alpha`` (favours a beyond the null), -1 when
+        ``percentile < alpha`` (favours b), 0 otherwise *and wherever percentile is NaN*.
+    null_low, null_high : weighted ``alpha`` and ``1 - alpha`` quantiles of the null.
+    null_mean : weighted mean of the null.
+    nan_fraction : weighted share of kept draws on which the measure is undefined (dropped).
+    n_used : kept draws with a defined measure.
+    """
+
+    observed: np.ndarray
+    percentile: np.ndarray
+    percentile_se: np.ndarray
+    tail: np.ndarray
+    null_low: np.ndarray
+    null_high: np.ndarray
+    null_mean: np.ndarray
+    nan_fraction: np.ndarray
+    n_used: np.ndarray
+
+
+def _default_measures() -> dict[str, Callable]:
+    return dict(NULL_MEASURES)
+
+
+def _evaluate(f: Callable, d: Delegations) -> np.ndarray:
+    """``f`` on every kept draw, in chunks of about ``_CHUNK_CELLS`` district rows."""
+    out = np.empty(d.n_draws)
+    if d.n_draws == 0:
+        return out
+    size = d.n_districts[d.draw_unit]
+    row_start = np.r_[0, np.cumsum(size)]
+    a, b = d.pool.votes_a, d.pool.votes_b
+    first = 0
+    while first < d.n_draws:
+        last = int(np.searchsorted(row_start, row_start[first] + _CHUNK_CELLS, side="right")) - 1
+        last = min(max(last, first + 1), d.n_draws)
+        r0, r1 = row_start[first], row_start[last]
+        idx = d.district[r0:r1]
+        unit = np.repeat(np.arange(last - first, dtype=np.int64), size[first:last])
+        vals = np.asarray(f(unit, a[idx], b[idx], last - first), dtype=np.float64)
+        if vals.shape != (last - first,):
+            raise ValueError(f"measure {getattr(f, '__name__', f)!r} returned shape {vals.shape}")
+        out[first:last] = vals
+        first = last
+    return out
+
+
+def null_distributions(
+    delegations: Delegations,
+    observed: Mapping[str, object],
+    *,
+    alpha: float = 0.025,
+    measures: Mapping[str, Callable] | None = None,
+) -> dict[str, NullResult]:
+    """Each measure's percentile within its null distribution from the national pool.
+
+    The null of a measure for unit ``u`` is its value on the unit's weighted simulated
+    delegations (:func:`simulate_delegations`): what the measure looks like for a state of this
+    size and statewide vote when its districts are drawn like the nation's.  Draws on which the
+    measure is NaN (declination after a sweep, say) are dropped and the rest reweighted; their
+    weighted share is reported as ``nan_fraction``.
+
+    Parameters
+    ----------
+    delegations : Delegations
+    observed : mapping name -> array_like of shape (U,)
+        The units' own values, one entry per measure evaluated (by default the keys of
+        :data:`NULL_MEASURES`: efficiency_gap, mean_median, declination, partisan_bias, seats).
+    alpha : float, default 0.025
+        Tail size on each side (two-sided test at level ``2 alpha``).
+    measures : mapping name -> callable, optional
+        Vectorised measures ``f(unit, votes_a, votes_b, n_units) -> ndarray``; default the
+        functions of ``monitor.measures`` named in :data:`NULL_MEASURES`.
+
+    Returns
+    -------
+    dict name -> NullResult
+
+    Examples
+    --------
+    At 50 % every two-district delegation of this pool pairs a 60/40 or 55/45 win with its mirror
+    loss, so the efficiency gap of every simulated delegation is exactly 0: an observed 0.1 lies
+    above the whole null (percentile 1, flagged in a's tail), an observed 0 at its mid-rank 1/2:
+
+    >>> from monitor.measures import efficiency_gap
+    >>> from monitor.pool import national_pool, simulate_delegations
+    >>> p = national_pool([60, 40, 55, 45], [40, 60, 45, 55], [0, 0, 1, 1])
+    >>> d = simulate_delegations(p, [9, 9], [2, 2], [0.5, 0.5], rng=0, accepted=500)
+    >>> r = null_distributions(d, {"eg": [0.1, 0.0]}, measures={"eg": efficiency_gap})["eg"]
+    >>> r.percentile.tolist(), r.tail.tolist(), r.null_mean.tolist()
+    ([1.0, 0.5], [1, 0], [0.0, 0.0])
+    """
+    d = delegations
+    if not 0 < alpha < 0.5:
+        raise ValueError("alpha must lie in (0, 0.5)")
+    fns = _default_measures() if measures is None else dict(measures)
+    if set(observed) != set(fns):
+        raise ValueError(
+            f"observed must give exactly the measures {sorted(fns)}; got {sorted(observed)}"
+        )
+    out: dict[str, NullResult] = {}
+    for name, f in fns.items():
+        obs = np.asarray(observed[name], dtype=np.float64)
+        if obs.shape != (d.n_units,):
+            raise ValueError(f"observed[{name!r}] must have one value per unit")
+        out[name] = _null_of(_evaluate(f, d), obs, d, alpha)
+    return out
+
+
+def _null_of(vals: np.ndarray, obs: np.ndarray, d: Delegations, alpha: float) -> NullResult:
+    """One measure's null from its values ``vals`` on every kept draw (NaN draws dropped)."""
+    U, g = d.n_units, d.draw_unit
+    ok = ~np.isnan(vals)
+    w = np.where(ok, d.weight, 0.0)
+    v = np.where(ok, vals, 0.0)
+    used_w = np.bincount(g, w, U)
+    pct, se = _weighted_midrank(v, w, g, U, obs)
+    pct = np.where(np.isnan(obs) | (used_w <= 0), np.nan, pct)
+    se = np.where(np.isnan(pct), np.nan, se)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(used_w > 0, np.bincount(g, w * v, U) / used_w, np.nan)
+    tail = np.zeros(U, np.int8)
+    tail[pct > 1 - alpha] = 1
+    tail[pct < alpha] = -1
+    return NullResult(
+        observed=obs,
+        percentile=pct,
+        percentile_se=se,
+        tail=tail,
+        null_low=_weighted_quantile(v, w, g, U, alpha),
+        null_high=_weighted_quantile(v, w, g, U, 1 - alpha),
+        null_mean=mean,
+        nan_fraction=np.where(d.n_accepted > 0, np.bincount(g, d.weight * ~ok, U), np.nan),
+        n_used=np.bincount(g, ok, U).astype(np.int64),
+    )
+
+
+def _concat(parts):
+    """Join per-unit result dataclasses of consecutive unit batches."""
+    cls = type(parts[0])
+    return cls(**{f.name: np.concatenate([getattr(p, f.name) for p in parts]) for f in fields(cls)})
+
+
+def compare_with_pool(
+    pool: NationalPool,
+    unit_state,
+    n_districts,
+    vote_share,
+    actual_seats,
+    observed: Mapping[str, object],
+    *,
+    rng,
+    tol: float = 0.005,
+    accepted: int = 10_000,
+    max_draws: int = 1_000_000,
+    exclude_own: bool = True,
+    unit_key=None,
+    level: float = 0.95,
+    alpha: float = 0.025,
+    measures: Mapping[str, Callable] | None = None,
+    max_cells: int = 1 << 25,
+) -> tuple[SeatsResult, dict[str, NullResult]]:
+    """Expected seats and null percentiles for many units, in memory-bounded batches.
+
+    Runs :func:`simulate_delegations`, :func:`expected_seats` and :func:`null_distributions` on
+    consecutive batches of units holding at most ``max_cells`` simulated district rows (about
+    ``accepted * N`` per unit; a larger unit runs alone) and joins the per-unit results.  With an
+    int or SeedSequence ``rng`` the output equals one unbatched run with the same ``unit_key``.
+
+    Returns
+    -------
+    (SeatsResult, dict name -> NullResult), both over all U units in the given order.
+    """
+    n_districts = np.asarray(n_districts)
+    U = n_districts.shape[0]
+    unit_state, vote_share = np.asarray(unit_state), np.asarray(vote_share, dtype=np.float64)
+    actual = np.asarray(actual_seats, dtype=np.float64)
+    obs = {k: np.asarray(v, dtype=np.float64) for k, v in observed.items()}
+    keys = np.arange(U) if unit_key is None else np.asarray(unit_key)
+    if actual.shape != (U,) or keys.shape != (U,) or any(v.shape != (U,) for v in obs.values()):
+        raise ValueError("actual_seats, unit_key and every observed array need one value per unit")
+    if max_cells < 1:
+        raise ValueError("max_cells must be >= 1")
+    base = _base_seed(rng)
+    fns = _default_measures() if measures is None else dict(measures)
+    cells = accepted * np.asarray(n_districts, dtype=np.int64)
+    batch = np.zeros(U, np.int64)
+    if U:
+        used = 0
+        for u in range(1, U):  # greedy cut into consecutive batches
+            used += int(cells[u - 1])
+            batch[u] = batch[u - 1]
+            if used + cells[u] > max_cells:
+                batch[u] += 1
+                used = 0
+    seats_parts, null_parts = [], []
+    for b in range(int(batch[-1]) + 1 if U else 0):
+        sel = np.flatnonzero(batch == b)
+        d = simulate_delegations(
+            pool, unit_state[sel], n_districts[sel], vote_share[sel], rng=base, tol=tol,
+            accepted=accepted, max_draws=max_draws, exclude_own=exclude_own, unit_key=keys[sel],
+        )
+        seats_parts.append(expected_seats(d, actual[sel], level=level))
+        null_parts.append(
+            null_distributions(d, {k: v[sel] for k, v in obs.items()}, alpha=alpha, measures=fns)
+        )
+    if not seats_parts:  # no units: run once on the empty set for correctly typed empty output
+        d = simulate_delegations(pool, unit_state, n_districts, vote_share, rng=base, tol=tol)
+        nulls = null_distributions(d, obs, alpha=alpha, measures=fns)
+        return expected_seats(d, actual, level=level), nulls
+    nulls = {name: _concat([part[name] for part in null_parts]) for name in fns}
+    return _concat(seats_parts), nulls
+

@@ -1,0 +1,401 @@
+"""Simulated delegations from the national pool, conditioned on the statewide share.
+
+Sampler: exponential tilting with importance weights
+----------------------------------------------------
+Plain rejection (draw uniformly, keep draws in ``A``) is exact but keeps a vanishing fraction of
+draws when ``V`` is far from the pool's average.  We draw instead from the tilted pool
+
+    q_j = exp(lam * y_j) / sum_k exp(lam * y_k),    y_j = (a_j - T n_j) / mean(n),
+
+with ``T`` the target share (``V`` itself whenever the pool can reach it) and ``lam`` the root of
+``E_q[y] = sum_j q_j y_j = 0`` (found with ``scipy.optimize.brentq``; ``E_q[y]`` increases with
+``lam`` because its derivative is ``Var_q(y) >= 0``).  Since ``sum_i a_{j_i} / sum_i n_{j_i} - T``
+has the sign of ``sum_i y_{j_i}``, tilted draws centre on the share ``T``, so a steady fraction of
+them lands in ``A`` wherever ``V`` lies.  Each kept draw gets the importance weight
+
+    w(J) = 1_A(J) * prod_i (1/M) / q_{j_i}  =  1_A(J) * (Z/M)^N * exp(-lam * sum_i y_{j_i}),
+
+Z = sum_k exp(lam y_k).  For any function ``f`` of the delegation,
+
+    E_q[w f] = sum_J q(J) 1_A(J) (p(J)/q(J)) f(J) = sum_{J in A} p(J) f(J) = P(A) E_p[f | A],
+
+with ``p(J) = M^{-N}`` the uniform law, and likewise ``E_q[w] = P(A)``; so the self-normalised
+average ``sum_r w_r f(J_r) / sum_r w_r`` over i.i.d. tilted draws converges to ``E_p[f | A]``, the
+conditional expectation under the uniform sampler, for every ``f`` at once: the weighted kept draws
+*are* the conditional distribution (exact in the limit, with an ``O(1/R)`` ratio bias, as for any
+self-normalised importance sampler [2]_).  The constant ``(Z/M)^N`` cancels on normalising, so the
+stored weights are ``exp(-lam * sum_i y_{j_i})`` scaled to sum to one per unit.  Draws in ``A`` have
+``|sum_i y_{j_i}| <= tol * sum_i n_{j_i} / mean(n)``, which keeps the weights nearly equal and the
+effective sample size close to the number of kept draws.  Any ``lam`` keeps the estimator exact; the
+choice of ``lam`` affects only its efficiency (``lam = 0`` is plain rejection).
+
+Monte Carlo error: Kish's effective sample size ``ESS = (sum w)^2 / sum w^2`` [3]_ and, for a
+weighted mean ``m = sum w f`` (weights normalised to one), the delta-method standard error of the
+self-normalised estimator, ``se = sqrt(sum w^2 (f - m)^2)`` [2]_.
+
+References
+----------
+.. [2] A. B. Owen, "Monte Carlo theory, methods and examples" (2013), ch. 9 (importance sampling,
+       self-normalised estimator and its variance, exponential tilting). Chapter from memory.
+.. [3] L. Kish, "Survey Sampling", Wiley (1965): effective sample size of a weighted sample.
+       From memory.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq
+
+from .pool import NationalPool
+
+# Upper bound on the number of (draw, district) cells held in memory at once.
+_CHUNK_CELLS = 1 << 21
+
+
+@dataclass(frozen=True)
+class Delegations:
+    """Weighted simulated delegations for U units (output of :func:`simulate_delegations`).
+
+    Kept draws of all units are stored flat, unit after unit, in the layout the measures engine
+    reads: ``row_draw`` (non-decreasing draw id per district row) and ``district`` (pool index of
+    each row), so ``f(row_draw, pool.votes_a[district], pool.votes_b[district], n_draws)``
+    evaluates any vectorised measure ``f`` on every simulated delegation at once.  Memory is
+    about 4 bytes per district row (``accepted * sum(N)`` rows); :func:`compare_with_pool` bounds
+    it by batching units.
+
+    Attributes
+    ----------
+    pool : NationalPool
+    n_districts, vote_share, unit_state : ndarray, shape (U,)
+        The units as given.
+    tol : float
+    draw_unit : ndarray of int64, shape (D,)
+        Unit of each kept draw (non-decreasing).
+    weight : ndarray of float64, shape (D,)
+        Importance weight of each kept draw, normalised to sum to 1 within its unit.
+    share : ndarray of float64, shape (D,)
+        Vote-weighted share of a in each kept draw (within ``tol`` of the unit's ``vote_share``).
+    seats : ndarray of float64, shape (D,)
+        Seats won by a in each kept draw (ties count 1/2).
+    district : ndarray of int32 (int64 for pools of 2**31 districts or more)
+        Pool index of each district row of the kept draws, shape (sum over kept draws of N,).
+    row_draw : ndarray of int64 (property, computed on access)
+        Draw id of each district row, non-decreasing.
+    n_proposed, n_accepted : ndarray of int64, shape (U,)
+        Tilted proposals drawn and kept per unit.
+    ess : ndarray of float64, shape (U,)
+        Kish effective sample size ``1 / sum w^2`` of the kept draws (NaN with no kept draw).
+    tilt : ndarray of float64, shape (U,)
+        The tilt ``lam`` used (0 = plain rejection).
+    tilt_share : ndarray of float64, shape (U,)
+        The share ``T`` the proposals were centred on (NaN when the target cannot be reached).
+    """
+
+    pool: NationalPool
+    n_districts: np.ndarray
+    vote_share: np.ndarray
+    unit_state: np.ndarray
+    tol: float
+    draw_unit: np.ndarray
+    weight: np.ndarray
+    share: np.ndarray
+    seats: np.ndarray
+    district: np.ndarray
+    n_proposed: np.ndarray
+    n_accepted: np.ndarray
+    ess: np.ndarray
+    tilt: np.ndarray
+    tilt_share: np.ndarray
+
+    @property
+    def n_units(self) -> int:
+        return int(self.n_districts.shape[0])
+
+    @property
+    def n_draws(self) -> int:
+        return int(self.draw_unit.shape[0])
+
+    @property
+    def row_draw(self) -> np.ndarray:
+        return np.repeat(np.arange(self.n_draws, dtype=np.int64), self.n_districts[self.draw_unit])
+
+
+def _base_seed(rng) -> np.random.SeedSequence:
+    """The seed sequence the per-unit streams are spawned from."""
+    if isinstance(rng, np.random.SeedSequence):
+        return rng
+    if isinstance(rng, np.random.Generator):
+        return rng.spawn(1)[0].bit_generator.seed_seq
+    if isinstance(rng, (int, np.integer)) and not isinstance(rng, bool) and rng >= 0:
+        return np.random.SeedSequence(int(rng))
+    raise TypeError("rng must be a non-negative int, a numpy SeedSequence or a numpy Generator")
+
+
+def _solve_tilt(y: np.ndarray) -> float:
+    """Root ``lam`` of ``E_q[y] = 0`` for ``q_j ∝ exp(lam y_j)``; needs ``min y < 0 < max y``."""
+
+    def mean_tilted(lam: float) -> float:
+        z = lam * y
+        e = np.exp(z - z.max())
+        return float(e @ y / e.sum())
+
+    m0 = mean_tilted(0.0)
+    if m0 == 0.0:
+        return 0.0
+    step = -1.0 if m0 > 0 else 1.0  # E_q[y] increases with lam
+    inner, outer = 0.0, step
+    # E_q[y] tends to max y > 0 (lam -> inf) and min y < 0 (lam -> -inf): a sign change exists.
+    for _ in range(200):
+        if np.sign(mean_tilted(outer)) != np.sign(m0):
+            break
+        inner, outer = outer, 2.0 * outer
+    else:  # pragma: no cover - unreachable when min y < 0 < max y
+        raise RuntimeError("could not bracket the tilt")
+    lo, hi = sorted((inner, outer))
+    return float(brentq(mean_tilted, lo, hi, xtol=1e-12, rtol=1e-12))
+
+
+def _inverse_cdf(cdf: np.ndarray, guide: np.ndarray, u: np.ndarray) -> np.ndarray:
+    """``j = min{i : cdf[i] > u}`` for each ``u`` in [0, 1): the index sampled by inverse CDF.
+
+    Same result as ``np.searchsorted(cdf, u, side="right")`` (so the law is exactly the one
+    ``cdf`` encodes; zero-probability entries are never returned), found faster with a guide
+    table (``guide[k] = min{i : cdf[i] > k/M}``, Devroye 1986, "Non-Uniform Random Variate
+    Generation", ch. III, indexed search; from memory): start at the guide entry just below
+    ``u`` and step forward.  ``cdf`` must end in exactly 1.0.
+    """
+    shape, u = u.shape, u.ravel()
+    m = cdf.size
+    k = np.minimum((u * m).astype(np.int64), m - 1)
+    j = guide[np.maximum(k - 1, 0)]  # one slot lower: safe against rounding in u * m
+    todo = np.flatnonzero(cdf[j] <= u)
+    while todo.size:
+        j[todo] += 1
+        todo = todo[cdf[j[todo]] <= u[todo]]
+    return j.reshape(shape)
+
+
+def _tilted_proposal(a: np.ndarray, n: np.ndarray, share: np.ndarray, v: float, tol: float):
+    """Centre share T, tilt lam, scaled y and proposal q for one unit; None if A is empty.
+
+    Every delegation's share is a weighted mean of its districts' shares, so it lies in
+    [min x, max x]; the event A is empty when [V - tol, V + tol] misses that range.
+    """
+    xmin, xmax = float(share.min()), float(share.max())
+    lo, hi = max(v - tol, xmin), min(v + tol, xmax)
+    if lo > hi:
+        return None
+    # Centre on V when the pool can average to V; otherwise on the reachable part of the window.
+    t = v if xmin < v < xmax or xmin == xmax else 0.5 * (lo + hi)
+    y = (a - t * n) / n.mean()
+    if y.min() < 0.0 < y.max():
+        lam = _solve_tilt(y)
+    else:
+        # All districts on one side of T (identical shares, or T on the pool's edge): no finite
+        # tilt centres on T; uniform proposals (plain rejection) stay exact.
+        lam = 0.0
+    z = lam * y
+    q = np.exp(z - z.max())
+    q /= q.sum()
+    return t, lam, y, q
+
+
+def simulate_delegations(
+    pool: NationalPool,
+    unit_state,
+    n_districts,
+    vote_share,
+    *,
+    rng,
+    tol: float = 0.005,
+    accepted: int = 10_000,
+    max_draws: int = 1_000_000,
+    exclude_own: bool = True,
+    unit_key=None,
+) -> Delegations:
+    """Simulated delegations from the national pool, conditioned on the statewide share.
+
+    For each unit ``u``, draws ``N_u`` districts i.i.d. from the eligible pool (all districts, or
+    all but the unit's own state's when ``exclude_own``), by exponential tilting (module
+    docstring), until ``accepted`` draws fall within ``tol`` of ``V_u`` or ``max_draws`` proposals
+    have been made.  The kept draws with their normalised weights represent the uniform sampler
+    conditioned on ``|sum a / sum (a + b) - V_u| <= tol``.
+
+    Parameters
+    ----------
+    pool : NationalPool
+        From :func:`national_pool`.
+    unit_state : array_like, shape (U,)
+        State id of each unit (matched against ``pool.state`` for ``exclude_own``).
+    n_districts : array_like of int, shape (U,)
+        Districts per unit, >= 1.
+    vote_share : array_like of float, shape (U,)
+        Statewide vote-weighted two-party share of a, in [0, 1].
+    rng : int or numpy.random.SeedSequence or numpy.random.Generator
+        Source of randomness (required).  Unit ``u`` draws from its own stream, the child of the
+        base seed sequence with spawn key ``unit_key[u]``; with an int or SeedSequence the draws
+        of a unit therefore depend only on the seed, its key and its own inputs (not on the other
+        units in the call or how units are batched), and the same seed gives identical output.
+        A Generator supplies the base by spawning one child (so reusing it gives fresh draws).
+    tol : float, default 0.005
+        Half-width of the acceptance window on the statewide share (design choice, see the
+        methods note on simulated delegations).
+    accepted : int, default 10_000
+        Kept draws wanted per unit.
+    max_draws : int, default 1_000_000
+        Cap on proposals per unit; a unit may end with fewer kept draws (see ``n_accepted``).
+    exclude_own : bool, default True
+        Leave the unit's own state's districts out of its pool.
+    unit_key : array_like of non-negative int, shape (U,), optional
+        Stable key of each unit's random stream; default ``0..U-1``.
+
+    Returns
+    -------
+    Delegations
+        Units with an empty eligible pool, or a target the pool cannot reach, get no kept draws
+        (``n_accepted == 0``, ``ess`` and ``tilt_share`` NaN).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from monitor.pool import national_pool
+    >>> p = national_pool([60, 40, 55, 45, 70], [40, 60, 45, 55, 30], ["X", "X", "Y", "Y", "Z"])
+    >>> d = simulate_delegations(p, ["X"], [2], [0.5], rng=1, accepted=1000)
+    >>> int(d.n_accepted[0]), bool(np.all(np.abs(d.share - 0.5) <= 0.005))
+    (1000, True)
+    >>> sorted(set(p.state[d.district].tolist()))  # X's own districts are left out
+    ['Y']
+    """
+    unit_state, n_districts, vote_share, keys = _check_units(pool, unit_state, n_districts, vote_share, tol,
+                                                             accepted, max_draws, unit_key)
+    base = _base_seed(rng)
+    units = []
+    for u in range(unit_state.shape[0]):
+        eligible = np.flatnonzero(pool.state != unit_state[u]) if exclude_own else np.arange(pool.size)
+        stream = lambda key=int(keys[u]): np.random.default_rng(  # noqa: E731
+            np.random.SeedSequence(base.entropy, spawn_key=(*base.spawn_key, key)))
+        units.append(_draw_unit(pool, eligible, int(n_districts[u]), float(vote_share[u]), tol, accepted,
+                                max_draws, stream))
+    return _assemble(pool, unit_state, n_districts, vote_share, tol, units)
+
+
+def _check_units(pool, unit_state, n_districts, vote_share, tol, accepted, max_draws, unit_key):
+    """The units' arrays after checking them (every problem raises ValueError), and their keys."""
+    if not isinstance(pool, NationalPool):
+        raise TypeError("pool must be a NationalPool (use national_pool())")
+    unit_state = np.asarray(unit_state)
+    n_districts = np.asarray(n_districts)
+    vote_share = np.asarray(vote_share, dtype=np.float64)
+    shape = unit_state.shape
+    if unit_state.ndim != 1 or n_districts.shape != shape or vote_share.shape != shape:
+        raise ValueError(
+            "unit_state, n_districts and vote_share must be 1-D arrays of the same length"
+        )
+    if n_districts.size and (
+        not np.issubdtype(n_districts.dtype, np.integer) or (n_districts < 1).any()
+    ):
+        raise ValueError("n_districts must be integers >= 1")
+    n_districts = n_districts.astype(np.int64)
+    if not (np.isfinite(vote_share).all() and ((vote_share >= 0) & (vote_share <= 1)).all()):
+        raise ValueError("vote_share must lie in [0, 1]")
+    if not (np.isfinite(tol) and tol >= 0):
+        raise ValueError("tol must be a finite number >= 0")
+    if accepted < 1 or max_draws < 1:
+        raise ValueError("accepted and max_draws must be >= 1")
+    U = unit_state.shape[0]
+    keys = np.arange(U) if unit_key is None else np.asarray(unit_key)
+    bad_keys = U and (not np.issubdtype(keys.dtype, np.integer) or (keys < 0).any())
+    if keys.shape != (U,) or bad_keys:
+        raise ValueError("unit_key must give one non-negative integer per unit")
+    return unit_state, n_districts, vote_share, keys
+
+
+@dataclass(frozen=True)
+class _UnitDraws:
+    """One unit's kept draws: pool indexes (kept, N), normalised weights, shares, seats; counts."""
+
+    district: np.ndarray
+    weight: np.ndarray
+    share: np.ndarray
+    seats: np.ndarray
+    proposed: int = 0
+    accepted: int = 0
+    ess: float = np.nan
+    tilt: float = 0.0
+    tilt_share: float = np.nan
+
+
+def _draw_unit(pool: NationalPool, eligible: np.ndarray, N: int, v: float, tol: float, accepted: int,
+               max_draws: int, stream) -> _UnitDraws:
+    """Tilted proposals for one unit (``stream()`` gives its generator) until ``accepted`` land within
+    ``tol`` of ``v`` or ``max_draws`` were made; nothing kept when the target is out of reach."""
+    prop = None
+    if eligible.size:
+        a, n, x = pool.votes_a[eligible], pool.turnout[eligible], pool.share[eligible]
+        prop = _tilted_proposal(a, n, x, v, tol)
+    if prop is None:
+        return _UnitDraws(np.empty((0, N), np.int64), np.empty(0), np.empty(0), np.empty(0))
+    t, lam, y, q = prop
+    rng = stream()
+    seat = pool.seat_a[eligible]
+    cdf = np.cumsum(q)
+    cdf /= cdf[-1]
+    guide = np.searchsorted(cdf, np.arange(cdf.size) / cdf.size, side="right")
+    rows = max(1, _CHUNK_CELLS // N)
+    kept_j, kept_logw, kept_share, kept_seats = [], [], [], []
+    got = done = 0
+    while got < accepted and done < max_draws:
+        # size the batch from the acceptance seen so far (the first guesses 1 in 4)
+        rate = got / done if got else (0.25 if done == 0 else 0.5 / done)
+        want = int(np.ceil(1.2 * (accepted - got) / rate)) + 64
+        r = min(rows, max_draws - done, want)
+        j = _inverse_cdf(cdf, guide, rng.random((r, N)))
+        sh = a[j].sum(axis=1) / n[j].sum(axis=1)
+        ok = np.flatnonzero(np.abs(sh - v) <= tol)
+        if ok.size > accepted - got:  # stop at the accepted-th kept draw
+            ok = ok[: accepted - got]
+            done += int(ok[-1]) + 1
+        else:
+            done += r
+        got += ok.size
+        kept_j.append(j[ok])
+        kept_logw.append(-lam * y[j[ok]].sum(axis=1))
+        kept_share.append(sh[ok])
+        kept_seats.append(seat[j[ok]].sum(axis=1))
+    logw = np.concatenate(kept_logw)
+    w, ess = logw, np.nan
+    if got:
+        w = np.exp(logw - logw.max())
+        w /= w.sum()
+        ess = 1.0 / float(w @ w)
+    return _UnitDraws(eligible[np.concatenate(kept_j)], w, np.concatenate(kept_share), np.concatenate(kept_seats),
+                      done, got, ess, lam, t)
+
+
+def _assemble(pool, unit_state, n_districts, vote_share, tol, units: list[_UnitDraws]) -> Delegations:
+    """The units' draws, flat, unit after unit."""
+    U = len(units)
+    n_acc = np.array([u.accepted for u in units], dtype=np.int64)
+    index_type = np.int32 if pool.size < 2**31 else np.int64
+    district = np.concatenate([u.district.ravel().astype(index_type) for u in units] + [np.empty(0, index_type)])
+    flat = lambda name: np.concatenate([getattr(u, name) for u in units]) if U else np.empty(0)  # noqa: E731
+    return Delegations(
+        pool=pool,
+        n_districts=n_districts,
+        vote_share=vote_share,
+        unit_state=unit_state,
+        tol=float(tol),
+        draw_unit=np.repeat(np.arange(U, dtype=np.int64), n_acc),
+        weight=flat("weight"),
+        share=flat("share"),
+        seats=flat("seats"),
+        district=district,
+        n_proposed=np.array([u.proposed for u in units], dtype=np.int64),
+        n_accepted=n_acc,
+        ess=np.array([u.ess for u in units], dtype=np.float64),
+        tilt=np.array([u.tilt for u in units], dtype=np.float64),
+        tilt_share=np.array([u.tilt_share for u in units], dtype=np.float64),
+    )
+

@@ -1,0 +1,198 @@
+"""The chart kit: the neutral palette, the :class:`Chart` and :class:`Style` objects, value
+formatting and the small Vega-Lite building blocks every chart of :mod:`monitor.publish.charts`
+is made of (encodings, tooltips, rules, cycle axes, plan-era bands)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import altair as alt
+import numpy as np
+import pandas as pd
+
+from monitor.config import Party
+from monitor.measures import registry
+from monitor.publish import formats as F
+
+INK = "#2b2a27"
+MUTED = "#6f6b63"
+FAINT = "#b9b4a9"
+GRID = "#e7e3da"
+ERA_FILLS = ("#f3f0e8", "#e6e2d6")
+BAND = "#cdd3d8"
+FONT = "system-ui, -apple-system, 'Segoe UI', Roboto, 'Helvetica Neue', Arial, sans-serif"
+NOT_FLAGGED = "not flagged"
+SCHEMA_URL = alt.SCHEMA_URL
+
+CONFIG = {
+    "font": FONT,
+    "background": "#ffffff",
+    "view": {"stroke": None},
+    "axis": {"labelColor": MUTED, "titleColor": INK, "gridColor": GRID, "domainColor": FAINT,
+             "tickColor": FAINT, "labelFontSize": 11, "titleFontSize": 12, "titleFontWeight": "normal",
+             "titlePadding": 8},
+    "legend": {"orient": "bottom", "labelColor": INK, "titleColor": INK, "labelFontSize": 11,
+               "titleFontSize": 11, "titleFontWeight": "normal", "symbolStrokeWidth": 1.5,
+               "labelLimit": 320},
+    "text": {"color": INK, "fontSize": 11},
+}
+
+#: Digits shown for each measure (three for share-like measures).
+DIGITS = {**{m.name: m.digits for m in registry.measures()},
+          **{m.flag.name: m.flag.digits for m in registry.flagged() if m.flag.digits is not None}}
+
+
+def fmt_measure(measure: str, value) -> str:
+    return F.signed(value, DIGITS.get(measure, 3))
+
+
+@dataclass
+class Chart:
+    """One chart: the spec, its accessible text and the table of its data."""
+
+    id: str
+    title: str
+    description: str
+    spec: dict
+    columns: list[str] = field(default_factory=list)
+    rows: list[list[str]] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class Style:
+    a: Party
+    b: Party
+
+    def party(self, code) -> str:
+        return {"a": self.a.name, "b": self.b.name}.get(code, NOT_FLAGGED)
+
+    def flag_domain(self) -> list[str]:
+        return [f"favours {self.a.name}", f"favours {self.b.name}", NOT_FLAGGED]
+
+    def flag_colour(self) -> dict:
+        return {"domain": self.flag_domain(), "range": [self.a.colour, self.b.colour, MUTED]}
+
+    def flag_shape(self) -> dict:
+        return {"domain": self.flag_domain(), "range": ["triangle-up", "triangle-down", "circle"]}
+
+    def flag_label(self, flagged, direction) -> str:
+        if flagged and direction in ("a", "b"):
+            return f"favours {self.party(direction)}"
+        return NOT_FLAGGED
+
+
+# --- spec helpers -------------------------------------------------------------------------------
+def _clean(value):
+    if value is None or value is pd.NA:
+        return None
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return None if math.isnan(value) or math.isinf(value) else round(value, 6)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
+
+
+def records(frame: pd.DataFrame, columns: list[str]) -> list[dict]:
+    """Rows as JSON-ready dicts (NaN -> null, floats rounded to 6 digits)."""
+    cols = [frame[c].tolist() for c in columns]
+    return [{c: _clean(v) for c, v in zip(columns, row)} for row in zip(*cols)]
+
+
+def _q(field_name: str, **extra) -> dict:
+    return {"field": field_name, "type": "quantitative", **extra}
+
+
+def _n(field_name: str, **extra) -> dict:
+    return {"field": field_name, "type": "nominal", **extra}
+
+
+def _tip(field_name: str, kind: str = "quantitative", title: str | None = None, fmt: str | None = None) -> dict:
+    out = {"field": field_name, "type": kind}
+    if title:
+        out["title"] = title
+    if fmt:
+        out["format"] = fmt
+    return out
+
+
+def _spec(layers: list[dict], datasets: dict[str, list], height: int) -> dict:
+    return {"$schema": SCHEMA_URL, "width": "container", "height": height, "autosize": {"type": "fit-x", "contains": "padding"},
+            "config": CONFIG, "datasets": datasets, "layer": layers}
+
+
+def _rule(axis: str, value: float, title: str, colour: str = FAINT, dash: list | None = None) -> dict:
+    """A reference line; ``title`` repeats the axis title so that layers merge to one title."""
+    mark = {"type": "rule", "color": colour}
+    if dash:
+        mark["strokeDash"] = dash
+    return {"data": {"values": [{"v": value}]}, "mark": mark, "encoding": {axis: _q("v", title=title)}}
+
+
+def _signed_title(label: str, style: Style) -> list[str]:
+    """An axis title in two short lines, the measure and then its direction, so that it fits the
+    narrow charts of the cycle pages instead of running past their edge."""
+    return [label, f"positive favours {style.a.name}"]
+
+
+def _cycle_ticks(lo: float, hi: float, most: int = 7) -> list[int]:
+    """Explicit cycle ticks: every 2, 4, 10, 20 or 50 years, the finest step giving at most ``most``
+    ticks between the first and last cycle shown (``lo + 1`` to ``hi - 1``), so labels never crowd.
+
+    >>> _cycle_ticks(1971, 2027)
+    [1980, 1990, 2000, 2010, 2020]
+    >>> _cycle_ticks(2017, 2025)
+    [2018, 2020, 2022, 2024]
+    """
+    first, last = math.ceil(lo + 1), math.floor(hi - 1)
+    for step in (2, 4, 10, 20, 50):
+        values = list(range(math.ceil(first / step) * step, last + 1, step))
+        if len(values) <= most:
+            break
+    return values or [first]
+
+
+def _cycle_axis(lo: float, hi: float) -> dict:
+    """The cycle x encoding: explicit ticks (see ``_cycle_ticks``), labels centred on their tick
+    (not pushed flush against the ends, which made neighbours collide) and, as a last resort at very
+    narrow widths, overlapping labels dropped."""
+    return _q("cycle", title="cycle", scale={"domain": [lo, hi], "nice": False, "zero": False},
+              axis={"format": "d", "values": _cycle_ticks(lo, hi), "tickMinStep": 2, "labelFlush": False,
+                    "labelOverlap": "greedy", "labelSeparation": 6})
+
+
+#: Height in pixels of the band above the plot that holds the plan-era labels.
+ERA_BAND = 16
+
+
+def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[dict]]:
+    """Era rectangles (first - 1 to last + 1, clipped to the shown cycles), alternately shaded
+    (two layers with a constant colour each, so the colour scale stays free for the data), and
+    the era labels: ``[rect_even, rect_odd]`` go under the data, ``[labels]`` after it.
+
+    The rectangles reach ``ERA_BAND`` pixels above the plot; the labels sit in that band, outside
+    the data area, each cut (with an ellipsis) to its era's drawn width and hidden when the era is
+    too narrow for even a few letters (its tooltip, the description and the table keep the name)."""
+    if eras.empty:
+        return [], []
+    e = eras.copy()
+    e["x"] = np.maximum(e["first_cycle"].astype(float) - 1, lo)
+    e["x2"] = np.minimum(e["last_cycle"].astype(float).fillna(hi) + 1, hi)
+    e = e[e["x2"] > e["x"]].sort_values("x").reset_index(drop=True)
+    e["parity"] = [i % 2 for i in range(len(e))]
+    x = _q("x", title="cycle")
+    tip = [_tip("era_label", "nominal", "plan drawn by")]
+    rects = [{"data": {"name": "eras"}, "transform": [{"filter": {"field": "parity", "equal": k}}],
+              "mark": {"type": "rect", "color": ERA_FILLS[k]},
+              "encoding": {"x": x, "x2": {"field": "x2"}, "y": {"value": -ERA_BAND}, "y2": {"value": "height"},
+                           "tooltip": tip}}
+             for k in (0, 1) if (e["parity"] == k).any()]
+    room = "scale('x', datum.x2) - scale('x', datum.x) - 6"
+    labels = {"data": {"name": "eras"},
+              "mark": {"type": "text", "align": "left", "baseline": "middle", "dx": 3, "fontSize": 10, "color": MUTED,
+                       "limit": {"expr": f"max(1, {room})"}, "opacity": {"expr": f"{room} < 18 ? 0 : 1"}},
+              "encoding": {"x": x, "y": {"value": -ERA_BAND / 2}, "text": _n("era_label"), "tooltip": tip}}
+    return records(e, ["x", "x2", "parity", "era_label"]), rects + [labels]

@@ -1,0 +1,223 @@
+"""The state page's context: a (state, chamber)'s measures over time, its plan eras, seats and
+votes, seats-votes curve, results, corrections and flag history (a part of :class:`Views`)."""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from monitor.coverage import summary as coverage_summary
+from monitor.inputs import UNIT_KEYS
+from monitor.measures import registry
+from monitor.publish import charts as C
+from monitor.publish import formats as F
+from monitor.publish.collect import parse_time
+
+#: Column labels of the seats-and-votes chart's table: which share each line is (the same shares
+#: as the measures table and the seats-votes curve).
+SEATS_VOTES_COLUMNS = {"vote share": "vote share (two-party, after the uncontested policy)",
+                       "seat share": "seat share (districts in the measures)",
+                       "expected seat share": "expected seat share at that vote share (national pool)"}
+
+
+TABLE_MEASURES = tuple(m.name for m in registry.measures() if m.table)
+
+
+class StatePage:
+    """The state page of :class:`monitor.publish.views.Views` (which provides ``d``, ``by`` and the
+    shared pieces)."""
+
+    def state(self, state: str, chamber: str, root: str) -> dict:
+        d = self.d
+        where = f"{self.state_label(state)}, {d.chamber_label(chamber)}"
+        units = self.by("units", ("state", "chamber"), (state, chamber))
+        plans = self.by("plans", ("state", "chamber"), (state, chamber)).copy()
+        plans["era_label"] = [self.drawer(r.drawn_by) + (" (inferred)" if r.inferred else "") for r in plans.itertuples()]
+        current = self.by("unit_plans", ("state", "chamber"), (state, chamber)).tail(1)
+        slug = "m"
+        charts = []
+        for measure in d.headline():
+            frame = self._measure_frame(measure, state=state, chamber=chamber)
+            frame = frame.merge(units[UNIT_KEYS + ["certification"]], on=UNIT_KEYS, how="right")
+            if frame["value"].notna().sum() == 0:
+                continue
+            lines = [t for t in d.thresholds if t.get("measure") == measure and applies(t, chamber)]
+            charts.append(C.trend(f"{slug}-{measure}", frame, plans[["first_cycle", "last_cycle", "era_label"]],
+                                  measure, d.label(measure), self.style, where, lines))
+        seats = self._seats_over_time(state, chamber, units)
+        seats_chart = C.seats_votes_time("seats-votes", seats, plans[["first_cycle", "last_cycle", "era_label"]],
+                                         self.style, where) if not seats.empty else None
+        if seats_chart is not None:
+            self._label_seats_votes(seats_chart)
+        curve = self.by("curves", ("state", "chamber"), (state, chamber))
+        points = self.by("curve_points", ("state", "chamber"), (state, chamber))
+        swing = None
+        if not curve.empty:
+            cycle = int(points["cycle"].iloc[0])
+            swing = C.swing_curve("swing", curve, points, self.style, f"{where} ({cycle} results)")
+        events = self.by("events", ("state", "chamber"), (state, chamber))
+        watch = self.by("watch", ("state", "chamber"), (state, chamber))
+        return {
+            "state": self.state_label(state), "code": state, "chamber": d.chamber_label(chamber), "where": where,
+            "current_plan": self._plan_row(current.iloc[0]) if len(current) else None,
+            "eras": [{"plan_id": r.plan_id, "first": int(r.first_cycle),
+                      "last": "" if F.missing(r.last_cycle) else str(int(r.last_cycle)),
+                      "drawn_by": self.drawer(r.drawn_by), "inferred": bool(r.inferred), "note": F.text(r.note),
+                      "source": F.text(r.source)} for r in plans.itertuples()],
+            "watch": self._watch_rows(watch, root), "charts": charts, "seats_chart": seats_chart,
+            "undefined": self._undefined_reasons(state, chamber) if not charts else [],
+            "swing": swing, "swing_cycle": int(points["cycle"].iloc[0]) if not points.empty else None,
+            "table": self._measure_table(state, chamber, units),
+            "coverage": self._coverage(state, chamber), "min_coverage": F.share(d.min_coverage, 0),
+            "vote": self._vote_headline(state, chamber),
+            "results": self._results(state, chamber),
+            "events": self._events(events, root),
+            "corrections": self._corrections(state, chamber),
+            "policy": d.policy,
+            "unofficial": [int(c) for c in units.loc[units["certification"] == "unofficial", "cycle"]],
+            "provenance": self.provenance(units["load_id"]),
+        }
+
+    def _undefined_reasons(self, state: str, chamber: str) -> list[str]:
+        """Why the headline measures have no value for this state (as the engine stored it)."""
+        m = self.by("measures", ("state", "chamber"), (state, chamber))
+        m = m[m["measure"].isin(self.d.headline()) & m["value"].isna()]
+        return sorted({F.text(r) for r in m["reason"] if F.text(r)})
+
+    def _plan_row(self, r) -> dict:
+        return {"plan_id": r["plan_id"] if isinstance(r["plan_id"], str) else None,
+                "drawn_by": self.drawer(r["drawn_by"]), "inferred": bool(r["inferred"]), "cycle": int(r["cycle"])}
+
+    def _seats_over_time(self, state: str, chamber: str, units: pd.DataFrame) -> pd.DataFrame:
+        """Party a's vote share and seat share per cycle as the measures define them: the districts
+        that enter the measures, votes after the uncontested policy (the measures table's
+        vote_share and seat_share, the seats-votes curve's observed point); and the seat share the
+        national pool expects at that vote share (the pool conditions on the same vote share and
+        counts the same districts), so that the band compares with the seat-share line. The shares
+        are stored by the aggregates step (:func:`monitor.curves.seats_votes_series`)."""
+        series = self.by("seats_votes", ("state", "chamber"), (state, chamber))
+        if series.empty:
+            return pd.DataFrame()
+        out = series[["cycle", "vote_share", "seat_share"]].astype({"cycle": int}).reset_index(drop=True)
+        pool = self.by("pool", ("state", "chamber"), (state, chamber))
+        pool = pool.assign(expected_share=pool["expected_seats"] / pool["districts"],
+                           expected_low=pool["low"] / pool["districts"], expected_high=pool["high"] / pool["districts"])
+        out = out.merge(pool[["cycle", "expected_share", "expected_low", "expected_high"]], on="cycle", how="left")
+        for col in ("vote_share", "seat_share", "expected_share", "expected_low", "expected_high"):
+            out[col] = pd.to_numeric(out[col], errors="coerce").astype(float)
+        return out
+
+    def _label_seats_votes(self, chart) -> None:
+        """Say in the seats-and-votes chart's table and text which shares its lines are."""
+        chart.columns = [SEATS_VOTES_COLUMNS.get(col, col) for col in chart.columns]
+        chart.description += (f" Vote share: {self.d.parties['a'].name}'s share of the two-party vote after the uncontested "
+                              f"policy ({self.d.policy}), as in the measures table and on the seats-votes curve; seat "
+                              "share: seats won in the districts that enter the measures. The grey band is the seat "
+                              "share expected at that vote share from the national pool: compare it with the "
+                              "seat-share line.")
+
+    def _measure_table(self, state: str, chamber: str, units: pd.DataFrame) -> dict:
+        d = self.d
+        m = self.by("measures", ("state", "chamber"), (state, chamber))
+        present = [name for name in TABLE_MEASURES if name in set(m["measure"])]
+        cells: dict[tuple, str] = {}
+        for cycle, name, value, p, reason in zip(m["cycle"], m["measure"], m["value"], m["p_value"], m["reason"]):
+            if name not in present:
+                continue
+            if F.missing(value):
+                text = f"{F.DASH} ({reason})" if isinstance(reason, str) else F.DASH
+            else:
+                text = self.measure_value(name, value) + ("" if F.missing(p) else f" (p {F.pvalue(p)})")
+            cells[(int(cycle), name)] = text
+        pool = self.by("pool", ("state", "chamber"), (state, chamber))
+        excess = {int(c): F.signed(x, 2) for c, x in zip(pool["cycle"], pool["excess_seats"])}
+        flagged = self.by("tails", ("state", "chamber"), (state, chamber))
+        flags: dict[int, list[str]] = {}
+        for cycle, name, flag, direction in zip(flagged["cycle"], flagged["measure"], flagged["flagged"], flagged["direction"]):
+            if flag == 1:
+                flags.setdefault(int(cycle), []).append(f"{d.label(name)} ({self.party(direction)})")
+        rows = []
+        for cycle, cert in sorted(zip(units["cycle"].astype(int), units["certification"]), reverse=True):
+            incomplete = (cycle, state, chamber) in self._incomplete_units
+            flagged = ", ".join(flags.get(cycle, []))
+            if flagged and incomplete:  # a flag on a unit the measures do not wholly cover says so
+                flagged += " (on an incomplete unit: see coverage)"
+            row = [cells.get((cycle, name), F.DASH) for name in present]
+            row += [excess.get(cycle, F.DASH), flagged or F.DASH]
+            rows.append({"cycle": cycle, "unofficial": cert == "unofficial", "incomplete": incomplete, "cells": row})
+        labels = {"vote_share": f"{d.label('vote_share')}, two-party, after the uncontested policy",
+                  "seat_share": f"{d.label('seat_share')}, districts in the measures"}
+        return {"columns": [labels.get(n) or d.label(n) for n in present] + ["Excess seats (national pool)", "Flags"],
+                "rows": rows}
+
+    def _coverage(self, state: str, chamber: str) -> list[dict]:
+        """Each cycle's coverage, newest first: what the measures cover, what is missing or left
+        out and why, and whether the unit is below flags.min_coverage (never flagged)."""
+        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
+        gaps = self.by("coverage_gaps", ("state", "chamber"), (state, chamber))
+        by_cycle = {int(c): g for c, g in gaps.groupby("cycle")} if len(gaps) else {}
+        rows = []
+        for r in cov.sort_values("cycle", ascending=False).to_dict("records"):
+            cycle = int(r["cycle"])
+            share = r["seat_coverage"]
+            g = by_cycle.get(cycle, gaps.iloc[0:0])
+            rows.append({
+                "cycle": cycle, "summary": coverage_summary(r), "incomplete": int(r["incomplete"]) == 1,
+                "share": F.share(share, 0),
+                "never_flagged": not F.missing(share) and float(share) < self.d.min_coverage,
+                "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats), "reason": reason}
+                         for dist, seats, gap, reason in zip(g["district"], g["seats"], g["gap"], g["reason"])],
+            })
+        return rows
+
+    def _vote_headline(self, state: str, chamber: str) -> dict | None:
+        """The latest cycle's two vote shares of party a, each named: as cast and after the policy."""
+        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
+        if cov.empty:
+            return None
+        r = cov.sort_values("cycle").iloc[-1]
+        return {"cycle": int(r["cycle"]), "as_cast": F.share(r["vote_share_as_cast"]),
+                "after_policy": F.share(r["vote_share_after_policy"]), "policy": self.d.policy,
+                "differ": F.share(r["vote_share_as_cast"]) != F.share(r["vote_share_after_policy"])}
+
+    def _corrections(self, state: str, chamber: str) -> list[dict]:
+        """The corrections of this state and chamber, newest first, with what each changed."""
+        c = self.d.corrections
+        c = c[(c["state"] == state) & (c["chamber"] == chamber)]
+        return [{"cycle": int(r.cycle), "load": f"#{int(r.load_id)}", "file_name": r.file_name,
+                 "at": F.stamp(parse_time(r.loaded_at)), "changes": list(r.changes) or ["no difference found"],
+                 "basis": r.basis, "superseded": f"#{int(r.old_load_id)}"}
+                for r in c.sort_values(["load_id", "cycle"], ascending=False).itertuples()]
+
+    def _results(self, state: str, chamber: str) -> list[dict]:
+        c = self.by("contests", ("state", "chamber"), (state, chamber))
+        out = []
+        for cycle, part in sorted(c.groupby("cycle"), key=lambda kv: -kv[0]):
+            cols = {k: part[k].tolist() for k in ("district", "special", "runoff", "seats", "votes_a", "votes_b",
+                                                  "votes_other", "share_a", "share_used", "imputed", "winner", "status")}
+            rows = [{
+                "district": dist + {(1, 0): " (special)", (0, 1): " (runoff)", (1, 1): " (special runoff)"}.get(
+                    (int(spec), int(run)), ""), "seats": int(seats),
+                "votes_a": F.count(va), "votes_b": F.count(vb), "votes_other": F.count(vo), "share": F.share(sa),
+                "share_used": F.share(su) + (" (imputed)" if imp else ""),
+                "winner": self.party(win) if win in ("a", "b") else win, "winner_code": win,
+                "status": status.replace("_", " "),
+            } for dist, spec, run, seats, va, vb, vo, sa, su, imp, win, status in zip(*cols.values())]
+            deciding = part[part["decides"].astype(int) == 1]  # one contest per seat
+            out.append({"cycle": int(cycle), "unofficial": part["certification"].iloc[0] == "unofficial", "rows": rows,
+                        "seats_a": F.number(deciding["seats_a"].sum(), 1),
+                        "seats_b": F.number(deciding["seats_b"].sum(), 1),
+                        "load": int(part["load_id"].iloc[0])})
+        return out
+
+
+
+def applies(threshold: dict, chamber: str) -> bool:
+    """Whether a proposed threshold is meant for this chamber: proposals for congressional plans
+    go with the federal chamber, proposals for state-house plans with the state chambers; a
+    threshold saying neither goes everywhere."""
+    text = str(threshold.get("applies_to", "")).casefold()
+    if "congress" in text:
+        return chamber == "federal"
+    if "state" in text:
+        return chamber != "federal"
+    return True
