@@ -105,7 +105,7 @@ POSITIONS = ("1", "2")
 # State senates (upper chambers): staggered in two classes. Every seat is elected in the first
 # cycle of a plan; then the odd-numbered districts two years later, the even-numbered ones four
 # years later, and so on alternately (so a cycle elects about half the chamber).
-STATE_UPPER_SIZES = {"JS": 24, "WD": 30, "OV": 40, "EV": 40, "JR": 36}
+STATE_UPPER_SIZES = {"JS": 24, "EB": 24, "WD": 30, "OV": 40, "EV": 40, "JR": 36, "YR": 50}
 CLASSES = 2
 # the chambers added after the first version of the sample: their own random streams and names,
 # so that the federal and original state-house results stay as they were
@@ -186,6 +186,7 @@ ENGINEERED: dict[tuple[str, str, int], Spec] = {
 for _first in (2002, 2012, 2022):  # each party holds a state-house gerrymander through three censuses
     ENGINEERED[("JS", STATE_LOWER, _first)] = _gerry("a", "state house, redrawn after each census")
     ENGINEERED[("JS", STATE_UPPER, _first)] = _gerry("a", "staggered state senate, redrawn after each census")
+    ENGINEERED[("EB", STATE_UPPER, _first)] = _gerry("b", "staggered state senate, redrawn after each census")
     ENGINEERED[("EB", STATE_LOWER, _first)] = _gerry("b", "state house, redrawn after each census")
 for _first in (1992, 2002, 2012, 2022):
     ENGINEERED[("EV", FEDERAL, _first)] = _commission()
