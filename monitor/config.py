@@ -106,18 +106,14 @@ def _expected_counts(value):
 
 
 def _staggered_classes(value):
-    """``{chamber: N | {STATE: N, "*": N}}``: the classes a chamber is elected in."""
+    """``{chamber: N | {STATE: N, "*": N}}``: the classes a chamber is elected in (1 to 10)."""
     if not isinstance(value, dict):
         return f"must be a table like classes.state_upper = 2, got {value!r}"
     for chamber, classes in value.items():
-        if isinstance(classes, dict):
-            for state, count in classes.items():
-                if not (_count(count) and count <= 10):
-                    return (f"has {chamber}.{state} = {count!r}: must be a whole number of classes, 1 (not "
-                            "staggered) to 10")
-        elif not (_count(classes) and classes <= 10):
-            return (f"has {chamber} = {classes!r}: must be a whole number of classes (1 to 10) or a table "
-                    f"of state codes, like classes.{chamber} = {{ QV = 2 }}")
+        for where, n in (classes.items() if isinstance(classes, dict) else [("", classes)]):
+            if not (_count(n) and n <= 10):
+                return (f"has {chamber}{'.' + where if where else ''} = {n!r}: must be a whole number of classes, "
+                        f"1 (not staggered) to 10, or a table of states like classes.{chamber} = {{ QV = 2 }}")
     return None
 
 
@@ -351,11 +347,14 @@ LoadSettings = section_type("load", "LoadSettings", "Limits of the loader.")
 ScheduleSettings = section_type("schedule", "ScheduleSettings", "When the watcher runs its jobs.")
 SiteSettings = section_type("site", "SiteSettings", "How the site is published.")
 CoverageSettings = section_type("coverage", "CoverageSettings", "What each unit's coverage is measured against.")
+MultiMemberSettings = section_type("multi_member", "MultiMemberSettings",
+                                   "How multi-member contests enter the district-share measures.")
+StaggeredSettings = section_type("staggered", "StaggeredSettings", "Which chambers are elected in classes.")
 
 #: the typed sections, by the name of the section they are built from
 SECTION_TYPES: dict[str, type] = {cls.SECTION: cls for cls in (
     MeasureSettings, PoolSettings, FlagSettings, UncontestedSettings, LoadSettings, ScheduleSettings, SiteSettings,
-    CoverageSettings)}
+    CoverageSettings, MultiMemberSettings, StaggeredSettings)}
 
 
 @dataclass(frozen=True)

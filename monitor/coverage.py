@@ -381,13 +381,27 @@ def not_flagged_reason(share: float, minimum: float) -> str:
 def coverage_lines(units: pd.DataFrame, minimum: float, detail: int = 0) -> list[str]:
     """The coverage in a few lines: how many units are incomplete and how many are below
     ``flags.min_coverage``; with ``detail``, that many incomplete units listed (those below the
-    minimum first, then the newest cycles), each with what is missing or left out and why."""
+    minimum first, then the newest cycles), each with what is missing or left out and why. The
+    per-cycle units of staggered chambers are counted apart, in one line (they are never
+    flagged; their whole-chamber units are counted with the others)."""
     if units.empty:
         return []
+    partial = (units["partial"].fillna(0).astype(int) == 1) if "partial" in units else pd.Series(False, index=units.index)
+    out = []
+    if partial.any():
+        halves = units[partial]
+        from monitor.staggered import whole_code
+
+        chambers = "; ".join(f"{ch} of {', '.join(sorted(part['state'].unique()))} (measured whole as {whole_code(ch)})"
+                             for ch, part in halves.groupby("chamber", sort=True))
+        out.append(f"staggered chambers: {int(partial.sum())} per-cycle unit(s) are partial (one class of the seats; "
+                   f"never flagged, not listed below): {chambers}")
+        units = units[~partial]
     low = below_minimum(units, minimum)
     incomplete = units["incomplete"].astype(int) == 1
-    out = [f"coverage: {int(incomplete.sum())} of {len(units)} unit(s) incomplete (districts missing or left out "
-           f"of the measures); {int(low.sum())} cover less than {percent(minimum)} of their seats (never flagged)"]
+    out.insert(0, f"coverage: {int(incomplete.sum())} of {len(units)} unit(s) incomplete (districts missing or left "
+                  f"out of the measures); {int(low.sum())} cover less than {percent(minimum)} of their seats "
+                  "(never flagged)")
     if detail and incomplete.any():
         # cycles of one state and chamber with the same gaps are one line
         shown = units[incomplete].assign(_low=low[incomplete].astype(int))
