@@ -3,7 +3,9 @@
 A unit's inputs hash covers its two-party district inputs (after the uncontested policy), the
 policy and the measure settings; a stored measure is stale when that hash or the measure's method
 version differs. ``full=True`` recomputes everything. The coverage of every unit
-(:mod:`monitor.coverage`) is recomputed and stored in the same step.
+(:mod:`monitor.coverage`) is recomputed and stored in the same step. The whole-chamber units of
+staggered chambers (:mod:`monitor.staggered`) are recomputed with their chamber: when one of its
+units, its plans, its classes or the settings changed.
 """
 
 from __future__ import annotations
@@ -20,7 +22,7 @@ import sqlite_utils
 
 from monitor.config import Config
 from monitor.coverage import coverage_lines, refresh_coverage, write_coverage
-from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
+from monitor.inputs import UNIT_KEYS, measure_inputs, measured_contests, reduced_contests, stored_unit_id
 from monitor.measures import MEASURE_VERSIONS, compute_measures
 from monitor.progress import tell
 from store import bases as store_bases
@@ -112,33 +114,87 @@ def _compute_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: 
     stale = units if full else units[[known.get(str(u)) != b for u, b in zip(units["unit_id"], units["basis"])]]
     report.units_computed = len(stale)
     report.units_unchanged = len(units) - len(stale)
-    current = set(zip(units["cycle"], units["state"], units["chamber"]))
-    gone = sorted(held - current)
-    report.units_removed = len(gone)
     cover = refresh_coverage(db, config, units, stale, full)
 
     rows: list[tuple] = []
     tell(progress, "measures", 1, 3, f"computing {len(stale)} unit(s)")
     for part in _batches(stale):
-        contests = reduced_contests(db, unit_ids=part["unit_id"].tolist())
-        _, long = compute_frame(config, contests)
-        long = long.astype(object).where(long.notna(), None)
-        rows += [(r.cycle, r.state, r.chamber, r.measure, r.value, r.low, r.high, r.p_value, r.reason,
-                  MEASURE_VERSIONS[r.measure], config.policy, r.inputs_hash, r.unit_id, stamp)
-                 for r in long.itertuples(index=False)]
-    report.computed = sorted(zip(stale["cycle"], stale["state"], stale["chamber"]))
+        rows += _rows(config, reduced_contests(db, unit_ids=part["unit_id"].tolist()), stamp)
+    whole = _whole_chambers(db, config, units, cover.all_bases, held, full)
+    for part in whole.batches:
+        rows += _rows(config, measured_contests(db, config, unit_ids=part)[0].pipe(lambda c: c[c["unit_id"] < 0]),
+                      stamp)
+    computed_whole = {(r[0], r[1], r[2]) for r in rows if r[12] is None}
+    current = set(zip(units["cycle"], units["state"], units["chamber"])) | whole.kept | computed_whole
+    gone = sorted(held - current)
+    report.units_removed = len(gone)
+    report.units_total += len(whole.kept | computed_whole)
+    report.units_computed += len(computed_whole)
+    report.units_unchanged += len(whole.kept)
+    report.computed = sorted({*zip(stale["cycle"], stale["state"], stale["chamber"]), *computed_whole})
     report.coverage = coverage_lines(cover.whole, config["flags.min_coverage"])
     bases = {str(u): b for u, b in zip(stale["unit_id"], stale["basis"])}
     tell(progress, "measures", 2, 3, f"writing {len(rows)} row(s)")
 
     def write(conn) -> ComputeReport:
-        store_measures.replace_units(conn, report.computed + gone, rows)
+        store_measures.replace_units(conn, sorted({*report.computed, *gone, *whole.replaced}), rows)
         report.rows_written = len(rows)
         write_coverage(conn, cover, config.policy, stamp)
         store_bases.replace(conn, "measures", bases, every=full)
+        store_bases.replace(conn, "whole", whole.bases, drop=whole.dropped, every=full)
         return report
 
     return write
+
+
+def _rows(config: Config, contests: pd.DataFrame, stamp: str) -> list[tuple]:
+    """The ``measures`` rows of the units of ``contests`` (a whole-chamber unit's without unit id)."""
+    _, long = compute_frame(config, contests)
+    long = long.astype(object).where(long.notna(), None)
+    return [(r.cycle, r.state, r.chamber, r.measure, r.value, r.low, r.high, r.p_value, r.reason,
+             MEASURE_VERSIONS[r.measure], config.policy, r.inputs_hash, stored_unit_id(r.unit_id), stamp)
+            for r in long.itertuples(index=False)]
+
+
+@dataclass
+class WholeWork:
+    """The whole-chamber units to recompute: ``batches`` of stored unit ids (whole state chambers),
+    the stored keys they replace, the keys kept as stored, and the bases to record or drop."""
+
+    batches: list[list[int]]
+    replaced: set
+    kept: set
+    bases: dict
+    dropped: list
+
+
+def _whole_chambers(db, config: Config, units: pd.DataFrame, chamber_bases: dict, held: set,
+                    full: bool) -> WholeWork:
+    """Which staggered state chambers' whole-chamber units are recomputed: those whose basis (the
+    chamber's coverage basis: its units, plans and classes; and :func:`settings_salt`) changed, or
+    that have no stored whole-chamber rows. A whole-chamber unit combines its chamber's cycles, so
+    a chamber's whole-chamber units are recomputed together."""
+    from monitor.staggered import Classes, base_chamber, is_whole
+
+    classes = Classes.from_config(config)
+    salt = settings_salt(config)
+    staggered = {k: hashlib.sha256(f"{b}|{salt}".encode()).hexdigest() for k, b in chamber_bases.items()
+                 if classes.of(*k.split("|", 1)) > 1}
+    held_whole = {k for k in held if is_whole(k[2])}
+    series_held = {f"{s}|{base_chamber(ch)}" for _, s, ch in held_whole}
+    known = {} if full else store_bases.read(db, "whole")
+    todo = [k for k, b in staggered.items() if known.get(k) != b or k not in series_held]
+    replaced = {k for k in held_whole if f"{k[1]}|{base_chamber(k[2])}" in set(todo)}
+    kept = {k for k in held_whole if f"{k[1]}|{base_chamber(k[2])}" in staggered} - replaced
+    series = pd.Series([f"{s}|{c}" for s, c in zip(units["state"], units["chamber"])], index=units.index)
+    batches, batch = [], []
+    for n, key in enumerate(todo):
+        batch += units.loc[series == key, "unit_id"].tolist()
+        if len(batch) >= BATCH_UNITS or n == len(todo) - 1:
+            batches.append(batch)
+            batch = []
+    return WholeWork(batches, replaced, kept, {k: staggered[k] for k in todo},
+                     sorted(k for k in known if k not in staggered))
 
 
 #: units computed at once: bounds the memory of a full recompute on a national history

@@ -30,6 +30,8 @@ import sqlite_utils
 from monitor.config import Config
 from monitor.coverage import stored_coverage
 from monitor.inputs import UNIT_KEYS
+from monitor.staggered import Classes, base_chamber, is_whole
+from monitor.staggered import partial as staggered_partial
 from store import flags as store_flags
 from store import measures as store_measures
 from store import write_from_snapshot
@@ -130,17 +132,33 @@ def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
 
 def flag_units(db: sqlite_utils.Database) -> pd.DataFrame:
     """The units the flags judge, from what the measures step stored (no vote line or reduction
-    is read): every current unit with stored measures, sorted by cycle, state, chamber (index
-    0..n-1), with its unit_id, load_id, the inputs hash its measures were computed from and its
-    districts in the measures (the stored ``districts`` measure)."""
+    is read): every current unit with stored measures and every whole-chamber unit of a staggered
+    chamber, sorted by cycle, state, chamber (index 0..n-1), with its unit_id (a whole-chamber
+    unit's virtual, negative), load_id (a whole-chamber unit's: its cycle's unit's), the inputs
+    hash its measures were computed from and its districts in the measures (the stored
+    ``districts`` measure)."""
     from store import reductions as stored_reductions
 
     keys = stored_reductions.current_keys(db)[["unit_id", *UNIT_KEYS, "load_id"]]
     measured = store_measures.read(db, [*UNIT_KEYS, "value", "inputs_hash"], ["districts"])
-    units = measured.merge(keys, on=UNIT_KEYS, how="inner").rename(columns={"value": "districts_eligible"})
+    units = measured.merge(keys, on=UNIT_KEYS, how="left").rename(columns={"value": "districts_eligible"})
+    whole = units["chamber"].map(is_whole).to_numpy(bool)
+    if whole.any():
+        loads = keys.set_index(UNIT_KEYS)["load_id"]
+        at = pd.MultiIndex.from_arrays([units.loc[whole, "cycle"], units.loc[whole, "state"],
+                                        units.loc[whole, "chamber"].map(base_chamber)])
+        units.loc[whole, "load_id"] = loads.reindex(at).to_numpy()
+        units.loc[whole, "unit_id"] = -np.arange(1, int(whole.sum()) + 1)
+    units = units[units["unit_id"].notna()].copy()
+    units["unit_id"] = units["unit_id"].astype(np.int64)
     units["districts_eligible"] = units["districts_eligible"].fillna(0).astype(np.int64)
     return units.sort_values(UNIT_KEYS).reset_index(drop=True)[[*UNIT_KEYS, "unit_id", "load_id", "inputs_hash",
                                                                 "districts_eligible"]]
+
+
+def partial_units(units: pd.DataFrame, config: Config) -> np.ndarray:
+    """True for each unit that is one class of a staggered chamber (never flagged)."""
+    return staggered_partial(units, Classes.from_config(config))
 
 
 def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str, progress=None):
@@ -162,7 +180,8 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     districts = units.set_index(UNIT_KEYS)["districts_eligible"]
     cover = stored_coverage(db).units
     coverage_share = pd.to_numeric(cover.set_index(UNIT_KEYS)["seat_coverage"], errors="coerce").astype(float)
-    judged = context_stats(judge(tails, pvals, districts, config, coverage_share))
+    partial = pd.Series(partial_units(units, config), index=pd.MultiIndex.from_frame(units[UNIT_KEYS]))
+    judged = context_stats(judge(tails, pvals, districts, config, coverage_share, partial))
     judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
     watch = watch_list(judged, plans, seats, config)
     report.flags = int(judged["flagged"].sum())
@@ -195,7 +214,7 @@ def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, 
     """Expected seats and tails of every (cycle, chamber) group: recomputed where the group's inputs
     changed (or ``full``), reading that group's stored reductions only; else taken over from what
     the previous run stored."""
-    from monitor.inputs import measure_inputs, reduced_contests
+    from monitor.inputs import measure_inputs, measured_contests, reduced_contests
     from monitor.tails import NULL_FLAGGED, group_hash, pool_group
 
     observed, undefined, actual_seats = stored
@@ -217,7 +236,9 @@ def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, 
         report.groups_computed += 1
         report.units_pooled += len(part)
         rows = part.index.to_numpy()
-        arrays = measure_inputs(reduced_contests(db, int(cycle), chamber=chamber), config, hashes=False)
+        contests = (measured_contests(db, config, cycle=int(cycle), chamber=chamber)[0] if is_whole(chamber)
+                    else reduced_contests(db, int(cycle), chamber=chamber))
+        arrays = measure_inputs(contests, config, hashes=False)
         order = pd.MultiIndex.from_frame(arrays.units[UNIT_KEYS]).get_indexer(pd.MultiIndex.from_frame(part[UNIT_KEYS]))
         if (order < 0).any():
             raise RuntimeError(f"the stored measures of {cycle} {chamber} name units without stored reductions: "

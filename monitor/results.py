@@ -9,7 +9,7 @@ from store import reductions
 
 RESULT_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id"]
 REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner", "runoff",
-                     "decides"]
+                     "decides", "position"]
 
 
 def results_export(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:

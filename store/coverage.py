@@ -12,8 +12,8 @@ import pandas as pd
 UNIT_COLUMNS = ["cycle", "state", "chamber", "unit_id", "districts_stored", "seats_stored", "districts_measured",
                 "seats_measured", "districts_expected", "seats_expected", "expected_from", "seat_coverage",
                 "incomplete", "note", "votes_a_cast", "votes_b_cast", "votes_a_measured", "votes_b_measured",
-                "policy", "computed_at"]
-GAP_COLUMNS = ["cycle", "state", "chamber", "district", "seats", "gap", "reason"]
+                "policy", "computed_at", "partial", "combines", "districts_treated", "seats_treated"]
+GAP_COLUMNS = ["cycle", "state", "chamber", "district", "seats", "gap", "reason", "position"]
 
 
 def replace_coverage(conn: sqlite3.Connection, units: Sequence[tuple], gaps: Sequence[tuple]) -> None:
@@ -48,13 +48,15 @@ def read_coverage(db) -> pd.DataFrame:
 
 
 def read_gaps(db) -> pd.DataFrame:
-    """Every stored gap, sorted by unit, kind (missing first) and district."""
+    """Every stored gap, sorted by unit, kind (missing, not up, left out, then the treated
+    districts) and district."""
     conn = getattr(db, "conn", db)
     if not _has(conn, "coverage_gaps"):
         return pd.DataFrame(columns=GAP_COLUMNS)
     return pd.read_sql_query(
-        f"SELECT {', '.join(GAP_COLUMNS)} FROM coverage_gaps "
-        "ORDER BY cycle, state, chamber, gap DESC, district", conn)
+        f"SELECT {', '.join(GAP_COLUMNS)} FROM coverage_gaps ORDER BY cycle, state, chamber, "
+        "CASE gap WHEN 'missing' THEN 0 WHEN 'not up' THEN 1 WHEN 'left out' THEN 2 ELSE 3 END, district, position",
+        conn)
 
 
 def plan_counts_and_eras(db) -> pd.DataFrame:

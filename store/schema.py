@@ -5,6 +5,9 @@
 
 from __future__ import annotations
 
+from store.schema_bases import BASES_MIGRATION
+from store.schema_seats import SEATS_MIGRATION
+
 MIGRATIONS: list[tuple[int, str, str]] = [
     (
         1,
@@ -474,27 +477,11 @@ MIGRATIONS: list[tuple[int, str, str]] = [
         );
         """,
     ),
-    (
-        7,
-        "work follows the change: the reduction's method version, and what each derived piece was "
-        "computed from",
-        """
-        -- a unit's reductions are stale when its content, the policy or the reduction method changed
-        ALTER TABLE reduced_units ADD COLUMN method_version TEXT NOT NULL DEFAULT '';
-        -- what each stored piece of a derived step was computed from (a digest of its inputs):
-        -- step 'measures' keyed by unit id, 'coverage' by state and chamber, 'aggregates' by cycle
-        -- and chamber; a piece is recomputed only when the digest of its inputs differs
-        CREATE TABLE bases (
-            step TEXT NOT NULL,
-            key TEXT NOT NULL,
-            basis TEXT NOT NULL,
-            PRIMARY KEY (step, key)
-        );
-        """,
-    ),
+    SEATS_MIGRATION,
+    BASES_MIGRATION,
 ]
 
 # migrations that rebuild a table another one references: run with foreign keys off (a pragma
 # that only takes effect outside a transaction), then checked with ``PRAGMA foreign_key_check``
 # before the commit, as SQLite's documentation of ALTER TABLE prescribes
-REBUILDS = {4}
+REBUILDS = {4, 7}

@@ -90,3 +90,36 @@ def test_nothing_changed_means_nothing_recomputed(history):
     again = pipeline.recompute(h["db"], h["config"])
     assert again.measures_computed == 0 and again.groups_computed == 0
     assert not verify_store(h["db"], h["config"])
+
+
+def test_staggered_chambers_follow_the_change_too(tmp_path):
+    """With the state senates declared staggered (issue 16), a correction of one senate unit
+    recomputes that unit and its chamber's whole-chamber units, and nothing else; the store still
+    equals a from-scratch recompute after a new cycle and the correction."""
+    data = tmp_path / "data"
+    summary = synthetic.generate(data, states=3, cycles=2, new_cycles=1)
+    ws = Workspace(tmp_path / "ws")
+    ws.ensure()
+    toml = (data / "levelfield.toml").read_text(encoding="utf-8")
+    (ws.root / "levelfield.toml").write_text(toml + "\n[staggered]\nclasses.state_upper = 2\n", encoding="utf-8")
+    db, config = ws.open_store(), ws.config()
+    h = {"db": db, "config": config}
+    files = [Path(p) for p in summary["files"]]
+    for path in files[:2]:
+        load_file(db, path, config)
+    pipeline.prepare(db, config)
+    pipeline.recompute(db, config)
+    whole = db.execute("SELECT COUNT(DISTINCT cycle || state) FROM measures WHERE chamber = 'state_upper_whole'")
+    assert whole.fetchone()[0] == 6  # 3 states x 2 cycles
+    assert not verify_store(db, config)
+    new_cycle = _arrive(h, files[2])
+    # the new cycle's 9 units, and the 2 + 1 whole-chamber units of each of the 3 senates
+    assert new_cycle.measures_computed == 9 + 9
+    assert not verify_store(db, config)
+    path, state, _ = scenarios.corrected_file(files[0], tmp_path / "fix.csv", state=None, chamber="state_upper")
+    report = _arrive(h, path)
+    assert report.measures_computed == 1 + 3  # the corrected unit and its senate's 3 whole-chamber units
+    differences = verify_store(db, config)
+    assert not differences, "\n".join(map(str, differences[:20]))
+    again = pipeline.recompute(db, config)
+    assert again.measures_computed == 0 and again.groups_computed == 0

@@ -1,8 +1,8 @@
 """The native formats: long (one row per candidate line) and wide (one ``votes_<party>`` column per party).
 
 Long header: ``cycle,state,chamber,district,party,candidate,votes`` plus optional
-``seats,special,runoff,writein,status``. Wide header: ``cycle,state,chamber,district`` plus one
-``votes_<party label>`` column per party, optional ``seats,special,runoff,status``. Native files
+``seats,special,runoff,writein,status,position``. Wide header: ``cycle,state,chamber,district`` plus one
+``votes_<party label>`` column per party, optional ``seats,special,runoff,status,position``. Native files
 refuse a candidate's repeated lines on one party line (a mapping can sum them).
 """
 
@@ -16,9 +16,9 @@ from monitor.ingest.fields import shown
 from monitor.ingest.records import ParseContext, Record, contest_key, describe_contest, parse_record
 
 LONG_REQUIRED = ("cycle", "state", "chamber", "district", "party", "candidate", "votes")
-LONG_OPTIONAL = ("seats", "special", "runoff", "writein", "status")
+LONG_OPTIONAL = ("seats", "special", "runoff", "writein", "status", "position")
 WIDE_REQUIRED = ("cycle", "state", "chamber", "district")
-WIDE_OPTIONAL = ("seats", "special", "runoff", "status")
+WIDE_OPTIONAL = ("seats", "special", "runoff", "status", "position")
 VOTES_PREFIX = "votes_"
 
 
@@ -134,7 +134,7 @@ def parse_native(
         row_seen: set[Problem] = set()
         if not any(cells[i].strip() for _, i in parties):
             key = contest_key(ctx, get)
-            where = (describe_contest(*key[:4], bool(key[4]), bool(key[5])) if None not in key[:4]
+            where = (describe_contest(*key[:4], bool(key[4]), bool(key[5]), key[6]) if None not in key[:4]
                      else "a district")
             row_problems.append(Problem(ctx.file, row, None, f"no votes_ column has a count: {where} "
                                                              "with no votes at all"))
