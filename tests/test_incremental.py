@@ -103,12 +103,13 @@ def test_staggered_chambers_follow_the_change_too(tmp_path):
     toml = (data / "levelfield.toml").read_text(encoding="utf-8")
     (ws.root / "levelfield.toml").write_text(toml + "\n[staggered]\nclasses.state_upper = 2\n", encoding="utf-8")
     db, config = ws.open_store(), ws.config()
-    h = {"db": db, "config": config}
+    h = {"db": db, "config": config, "root": tmp_path}
     files = [Path(p) for p in summary["files"]]
     for path in files[:2]:
         load_file(db, path, config)
     pipeline.prepare(db, config)
     pipeline.recompute(db, config)
+    build(db, config, tmp_path / "public")
     whole = db.execute("SELECT COUNT(DISTINCT cycle || state) FROM measures WHERE chamber = 'state_upper_whole'")
     assert whole.fetchone()[0] == 6  # 3 states x 2 cycles
     assert not verify_store(db, config)
@@ -121,5 +122,6 @@ def test_staggered_chambers_follow_the_change_too(tmp_path):
     assert report.measures_computed == 1 + 3  # the corrected unit and its senate's 3 whole-chamber units
     differences = verify_store(db, config)
     assert not differences, "\n".join(map(str, differences[:20]))
+    _republish_equals_a_full_build(h, "staggered")
     again = pipeline.recompute(db, config)
     assert again.measures_computed == 0 and again.groups_computed == 0
