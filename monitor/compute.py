@@ -21,7 +21,8 @@ import pandas as pd
 import sqlite_utils
 
 from monitor.config import Config
-from monitor.coverage import coverage_lines, refresh_coverage, write_coverage
+from monitor.coverage import coverage_lines
+from monitor.coverage_step import refresh_coverage, write_coverage
 from monitor.inputs import UNIT_KEYS, measure_inputs, measured_contests, reduced_contests, stored_unit_id
 from monitor.measures import MEASURE_VERSIONS, compute_measures
 from monitor.progress import tell
@@ -89,7 +90,7 @@ def compute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
     Only the units whose content, policy, reduction method, measure settings or method versions
     changed are read and recomputed (:func:`measure_bases`, kept in ``bases``); the coverage of
     the state chambers they belong to (or whose plans or expected counts changed) likewise
-    (:func:`monitor.coverage.coverage_bases`). Reads, computation and write are one consistent
+    (:func:`monitor.coverage_step.coverage_bases`). Reads, computation and write are one consistent
     step (:func:`store.write_from_snapshot`): a load committed meanwhile makes the step run again,
     so stale measures never overwrite new ones. ``progress``: an optional callback
     (:mod:`monitor.progress`) told each stage."""
