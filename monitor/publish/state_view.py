@@ -69,7 +69,8 @@ class StatePage:
             "table": self._measure_table(state, chamber, units),
             "coverage": self._coverage(state, chamber), "min_coverage": F.share(d.min_coverage, 0),
             "vote": self._vote_headline(state, chamber),
-            "results": self._results(state, chamber),
+            # each cycle's district results: rendered by the renderer from _results, once per delivery
+            "results": [],
             "events": self._events(events, root),
             "corrections": self._corrections(state, chamber),
             "policy": d.policy,
@@ -188,8 +189,9 @@ class StatePage:
                  "basis": r.basis, "superseded": f"#{int(r.old_load_id)}"}
                 for r in c.sort_values(["load_id", "cycle"], ascending=False).itertuples()]
 
-    def _results(self, state: str, chamber: str) -> list[dict]:
-        c = self.by("contests", ("state", "chamber"), (state, chamber))
+    def _results(self, state: str, chamber: str, cycles=None) -> list[dict]:
+        """Each cycle's district results (of ``cycles`` only, when given), newest first."""
+        c = self.d.contests_of(state, chamber, cycles)
         out = []
         for cycle, part in sorted(c.groupby("cycle"), key=lambda kv: -kv[0]):
             cols = {k: part[k].tolist() for k in ("district", "special", "runoff", "seats", "votes_a", "votes_b",
