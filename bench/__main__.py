@@ -26,9 +26,20 @@ TARGETS = {
     "measures_speedup": 20.0,        # fast / per-unit baseline, at least
     "pool_draws_speedup": 50.0,      # effective draws per second, tilted / rejection, at least
     "incremental_fraction": 0.10,    # incremental / full rebuild, at most
+    "correction_fraction": 1 / 30,   # one state's corrected file / full rebuild, at most (issue 17)
+    "flags_speedup": 4.0,            # full flags before issue 17 / now, at least
     "growth_slope": 1.2,             # log-log slope of time on contests, at most (near-linear)
-    "peak_rss_mb_1x": 1536.0,        # peak memory at 1x, below
+    "rss_slope": 1.0,                # log-log slope of peak RSS on contests, below (sub-linear)
+    "peak_rss_mb_1x": 1024.0,        # peak memory of every stage at 1x, below
 }
+
+#: The full flags (national pool with 2,000 kept draws per unit, every cycle) before issue 17,
+#: measured by this bench on this machine (2 CPUs, AMD EPYC, 2026-12-02; README, Performance): the
+#: baseline of the flags speed-up. That path drew the nulls one unit at a time with a guide table
+#: of one slot per district, sorted every delegation with a two-key sort and re-read and
+#: re-reduced every contest of the history; the sampler's draws are unchanged bit for bit, so
+#: the numbers it computed are the ones computed now (tests/test_pool.py, levelfield verify).
+FLAGS_FULL_BEFORE = {"0.25": 57.5, "0.5": 109.4, "1": 221.9, "2": 504.7}
 
 
 def machine() -> dict:
@@ -142,7 +153,8 @@ class Runner:
         return entry
 
 
-def run_scale(runner: Runner, scale: float, work: Path, complete: bool, real_flags: bool) -> dict:
+def run_scale(runner: Runner, scale: float, work: Path, complete: bool, real_flags: bool,
+              arrivals: bool = False) -> dict:
     """The stages at one scale. ``complete``: also the paired baselines and the pool stages
     (their ratios are judged at one scale); otherwise only the growth-curve stages."""
     print(f"scale x{scale:g}" + ("" if complete else " (growth-curve stages)"), flush=True)
@@ -197,6 +209,14 @@ def run_scale(runner: Runner, scale: float, work: Path, complete: bool, real_fla
                                          scale=scale, first_args={"ws": str(final), "keep": True})
     if (final / "history.sqlite").exists():
         st["flags_nochange"] = runner.timed("flags_nochange", {**base, "final": str(final)}, scale=scale)
+        st["correction"] = runner.timed("correction", {**base, "final": str(final), "file": str(files[-1])},
+                                        scale=scale)
+        st["startup"] = runner.timed("startup", {**base, "final": str(final)}, scale=scale, max_runs=1)
+    if arrivals and (ready / "history.sqlite").exists():
+        st["arrivals"] = runner.timed("arrivals", {**base, "ready": str(ready), "file": str(files[-1])},
+                                      scale=scale, max_runs=1)
+        if st["arrivals"].get("watch_peak_rss_mb"):
+            st["arrivals"]["peak_rss_mb"] = max(st["arrivals"]["peak_rss_mb"], st["arrivals"]["watch_peak_rss_mb"])
     for path in (ready, final, snaps, data):
         shutil.rmtree(path, ignore_errors=True)
     return {"summary": summary, "generate_seconds": gen_s, "stages": st}
@@ -269,6 +289,9 @@ def derive(scale_result: dict) -> dict:
         d["incremental_fraction_without_flags"] = no_flags_inc / no_flags_full if no_flags_full else None
         if inc["steps"].get("publish") is not None and _sec(st.get("publish_full")):
             d["republish_vs_naive"] = inc["steps"]["publish"] / st["publish_full"]["seconds"]
+    corr = _sec(st.get("correction"))
+    if corr is not None and d.get("full_rebuild"):
+        d["correction_fraction"] = corr / d["full_rebuild"]
     d["peak_rss_mb"] = max((s.get("peak_rss_mb") or 0) for s in st.values())
     d["peak_rss_stage"] = max(st, key=lambda k: st[k].get("peak_rss_mb") or 0)
     return d
@@ -296,6 +319,8 @@ def calibrate_flags(results: dict) -> None:
             full = sum(p for p in parts if p is not None)
             d["full_rebuild"] = full
             d["incremental_fraction"] = inc["seconds"] / full
+            if _sec(st.get("correction")) is not None:
+                d["correction_fraction"] = _sec(st["correction"]) / full
             rest = full - d["flags_full_used"]
             d["incremental_fraction_without_flags"] = (inc["seconds"] - inc["steps"]["flags"]) / rest if rest else None
 
@@ -323,7 +348,9 @@ def slope(xs: list[float], ys: list[float]) -> float | None:
 
 
 GROWTH_STAGES = ("load_full", "compute_full", "flags_one_cycle", "flags_full_used", "publish_full",
-                 "incremental", "full_rebuild")
+                 "incremental", "correction", "full_rebuild")
+#: the stages whose peak RSS should grow sub-linearly with the history
+RSS_STAGES = ("load_full", "compute_full", "flags_full", "publish_full", "incremental", "correction")
 
 
 def growth(results: dict) -> dict:
@@ -338,6 +365,15 @@ def growth(results: dict) -> dict:
                 xs.append(r["summary"]["contests"])
                 ys.append(y)
         out[name] = {"slope": slope(xs, ys), "contests": xs, "seconds": ys}
+    for name in RSS_STAGES:
+        xs, ys = [], []
+        for s in scales:
+            r = results[s]
+            mb = (r["stages"].get(name) or {}).get("peak_rss_mb")
+            if mb:
+                xs.append(r["summary"]["contests"])
+                ys.append(mb)
+        out[f"rss {name}"] = {"slope": slope(xs, ys), "contests": xs, "peak_rss_mb": ys}
     return out
 
 
@@ -400,12 +436,32 @@ def table(results: dict, growth_fit: dict) -> tuple[list[str], list[dict]]:
     check("incremental cycle / full rebuild", d.get("incremental_fraction"), 0.10, "<=",
           f"full flags {d.get('full_rebuild_flags')}")
     check("incremental / full rebuild, flags left out", d.get("incremental_fraction_without_flags"), 0.10, "<=")
+    check("one state's corrected file / full rebuild", d.get("correction_fraction"), 1 / 30, "<=",
+          f"correction {_fmt(_sec(one['stages'].get('correction')))} s")
+    before = FLAGS_FULL_BEFORE.get(ref_scale)
+    flags_now = _sec(one["stages"].get("flags_full"))
+    check("full flags: before issue 17 (recorded) / now", before / flags_now if before and flags_now else None,
+          4, ">=", f"{before} s recorded, {_fmt(flags_now)} s now")
     for name in GROWTH_STAGES:
         g = growth_fit.get(name, {})
         check(f"growth slope {name} (x{scales[0]}..x{scales[-1]})", g.get("slope"), 1.2, "<=",
               f"{len(g.get('seconds', []))} scales")
-    check("peak RSS at x1 (MB)", results["1"]["derived"]["peak_rss_mb"] if "1" in results else None, 1536, "<",
-          results["1"]["derived"]["peak_rss_stage"] if "1" in results else "")
+    su = one["stages"].get("startup") or {}
+    heavy = sorted({m for k in ("help", "status", "flags") for m in su.get(f"{k}_imports", [])})
+    check("levelfield --help start-up (s)", su.get("help_seconds"), 0.3, "<",
+          f"status {_fmt(su.get('status_seconds'))} s, flags {_fmt(su.get('flags_seconds'))} s; "
+          f"heavy imports: {', '.join(heavy) or 'none'}")
+    arr = one["stages"].get("arrivals") or {}
+    if arr.get("files"):
+        checks.append({"target": f"{arr['files']} state files one by one (watch --once)", "measured": arr.get("seconds"),
+                       "goal": "reported", "verdict": "measured", "scale": ref_scale,
+                       "note": f"median {_fmt(arr.get('per_file_median'))} s, max {_fmt(arr.get('per_file_max'))} s "
+                               f"per file (1 s of it the settle wait); {arr.get('failed')} failed"})
+    for name in RSS_STAGES:
+        g = growth_fit.get(f"rss {name}", {})
+        check(f"peak RSS growth slope {name}", g.get("slope"), 1.0, "<", f"{len(g.get('peak_rss_mb', []))} scales")
+    check("peak RSS of every stage at x1 (MB)", results["1"]["derived"]["peak_rss_mb"] if "1" in results else None,
+          1024, "<", results["1"]["derived"]["peak_rss_stage"] if "1" in results else "")
     lines.append("Targets (scale x%s unless noted):" % ref_scale)
     lines.append(f"{'target':<66}{'measured':>11}{'goal':>10}  verdict")
     for c in checks:
@@ -435,6 +491,8 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--measure-flags-up-to", type=float, default=1.0, metavar="SCALE",
                         help="run the full flags for real up to this scale (beyond it the earlier cycles' "
                              "pool rows are seeded cheaply and the full flags time is projected)")
+    parser.add_argument("--arrivals-at", type=float, default=None, metavar="SCALE",
+                        help="the scale of the 50-state-files scenario (default x1; --quick: x0.25)")
     parser.add_argument("--budget-minutes", type=float, default=38.0,
                         help="after 85%% of this, every stage runs once")
     parser.add_argument("--out", default=str(RESULTS), help="JSON results file")
@@ -453,8 +511,9 @@ def main(argv: list[str] | None = None) -> int:
     try:
         complete_at = scales[0] if opts.quick else (1.0 if 1.0 in scales else scales[-1])
         for s in scales:
+            arrivals_at = opts.arrivals_at if opts.arrivals_at is not None else complete_at
             r = run_scale(runner, s, work / f"x{s:g}", complete=opts.complete or s == complete_at,
-                          real_flags=s <= opts.measure_flags_up_to)
+                          real_flags=s <= opts.measure_flags_up_to, arrivals=s == arrivals_at)
             r["derived"] = derive(r)
             results[f"{s:g}"] = r
     finally:
@@ -483,6 +542,7 @@ def main(argv: list[str] | None = None) -> int:
             "seats_effective_draws": 100_000, "null_draws": 10_000, "interval_draws": "levelfield.toml default",
             "rejection_seconds_cap_per_unit": __import__("bench.stages", fromlist=["x"]).REJECTION_SECONDS,
             "seeded_pool_draws_before_new_cycle": __import__("bench.stages", fromlist=["x"]).SEED_DRAWS,
+            "flags_full_before_issue_17_seconds": FLAGS_FULL_BEFORE,
         },
     }
     Path(opts.out).parent.mkdir(parents=True, exist_ok=True)

@@ -77,6 +77,9 @@ def _workspace(root: str, data: str, store: str | None = None, public: str | Non
         shutil.copy(store, root / "history.sqlite")
     if public:
         shutil.copytree(public, root / "public")
+        parts = Path(public).parent / f".{Path(public).name}-parts"  # the downloads' encoded parts
+        if parts.is_dir():
+            shutil.copytree(parts, root / ".public-parts")
     ws = Workspace(root)
     return ws, ws.open_store(), ws.config()
 
@@ -411,7 +414,7 @@ def stage_prepare(args: dict) -> dict:
     cheaply* with SEED_DRAWS per unit, untimed setup, see the README), and a full publish into
     the empty ``public/`` (timed: every page rendered and written). The workspace is kept as the
     state before the new cycle arrives."""
-    from monitor import aggregates
+    from monitor import aggregates, events, tails  # noqa: F401  (imported before the clock starts, as before)
     from monitor.compute import compute
     from monitor.flags import run_flags
 
@@ -507,7 +510,106 @@ def stage_publish_full(args: dict) -> dict:
     return {"seconds": dt, "force_option": _force_option(fn), **_publish_info(report)}
 
 
+def _timed_chain(ws, db, config, path: Path) -> dict:
+    """Load ``path`` (and reduce it), recompute (incremental), flags and aggregates, republish:
+    the steps and their seconds."""
+    from monitor import aggregates, reductions
+    from monitor.compute import compute
+    from monitor.flags import run_flags
+    from monitor.ingest.load import load_file
+
+    t0 = start_timed()
+    load_file(db, path, config)
+    reductions.refresh(db, config)
+    t1 = time.perf_counter()
+    measures = compute(db, config)
+    t2 = time.perf_counter()
+    flags = run_flags(db, config)
+    aggregates.refresh(db)
+    t3 = time.perf_counter()
+    report = _publish(ws, db, config)
+    t4 = time.perf_counter()
+    return {"seconds": t4 - t0, "steps": {"load": t1 - t0, "compute": t2 - t1, "flags": t3 - t2, "publish": t4 - t3},
+            "units_computed": measures.units_computed, "groups_computed": flags.groups_computed,
+            "groups_total": flags.groups_total, **_publish_info(report)}
+
+
+def stage_correction(args: dict) -> dict:
+    """One state's corrected file after the new cycle: one unit re-delivered (the first state's
+    lower chamber of the new cycle, a few counts changed), then the incremental chain and the
+    republish, as a watcher runs them."""
+    from bench.scenarios import corrected_file
+
+    src = Path(args["final"])
+    ws, db, config = _workspace(args["ws"], args["data"], str(src / "history.sqlite"), str(src / "public"))
+    path, state, chamber = corrected_file(Path(args["file"]), Path(args["ws"]).parent / "corrected.csv")
+    out = _timed_chain(ws, db, config, path)
+    out.update(state=state, chamber=chamber)
+    return out
+
+
+def stage_arrivals(args: dict) -> dict:
+    """The new cycle arriving state by state: one file per state dropped into the inbox, each
+    followed by ``levelfield watch --once --every 1`` (a fresh process, as from cron: look, wait
+    one second for the file to settle, load, recompute, republish). Seconds per file with and
+    without that one-second wait; the largest peak RSS of the watcher processes."""
+    from bench.scenarios import state_files
+
+    src = Path(args["ready"])
+    ws, db, config = _workspace(args["ws"], args["data"], str(src / "history.sqlite"), str(src / "public"))
+    db.conn.close()
+    files = state_files(Path(args["file"]), Path(args["ws"]).parent / "arrivals")
+    limit = args.get("max_files")
+    files = files[:limit] if limit else files
+    exe = [sys.executable, "-m", "monitor", "-w", str(ws.root), "watch", "--once", "--every", "1"]
+    per_file, failures = [], 0
+    t0 = start_timed()
+    for path in files:
+        shutil.copy(path, ws.inbox / path.name)
+        t = time.perf_counter()
+        proc = __import__("subprocess").run(exe, capture_output=True, text=True)
+        per_file.append(time.perf_counter() - t)
+        failures += proc.returncode != 0
+    total = time.perf_counter() - t0
+    child = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+    return {"seconds": total, "files": len(files), "failed": failures, "per_file": per_file,
+            "per_file_max": max(per_file), "per_file_median": sorted(per_file)[len(per_file) // 2],
+            "seconds_without_settle_wait": total - len(files) * 1.0, "watch_peak_rss_mb": child}
+
+
+def stage_startup(args: dict) -> dict:
+    """Start-up of ``levelfield --help``, ``status`` and ``flags`` on the final store (fresh
+    processes, median of 5 each), and whether they import what they do not use."""
+    import statistics
+    import subprocess
+
+    src = Path(args["final"])
+    ws, db, config = _workspace(args["ws"], args["data"], str(src / "history.sqlite"))
+    db.conn.close()
+    heavy = ("scipy", "altair", "jinja2", "vl_convert", "apscheduler", "monitor.measures", "monitor.pool")
+    out: dict = {}
+    start_timed()
+    for name, argv in (("help", ["--help"]), ("status", ["-w", str(ws.root), "status"]),
+                       ("flags", ["-w", str(ws.root), "flags"])):
+        runs = []
+        for _ in range(5):
+            t = time.perf_counter()
+            subprocess.run([sys.executable, "-m", "monitor", *argv], capture_output=True, check=True)
+            runs.append(time.perf_counter() - t)
+        out[f"{name}_seconds"] = statistics.median(runs)
+        trace = subprocess.run([sys.executable, "-X", "importtime", "-m", "monitor.cli", *argv],
+                               capture_output=True, text=True).stderr
+        loaded = {line.rsplit("|", 1)[-1].strip() for line in trace.splitlines() if line.startswith("import time:")}
+        out[f"{name}_imports"] = sorted(m for m in heavy if m in loaded)
+        out[f"{name}_imports_pandas"] = "pandas" in loaded
+    out["seconds"] = out["help_seconds"]
+    return out
+
+
 STAGES = {
+    "correction": stage_correction,
+    "arrivals": stage_arrivals,
+    "startup": stage_startup,
     "load": stage_load,
     "compute": stage_compute,
     "measures": stage_measures,

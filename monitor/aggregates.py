@@ -13,6 +13,8 @@ It reads the stored reductions, measures, tails, expected seats and plans, and r
 
 from __future__ import annotations
 
+import hashlib
+
 import numpy as np
 import pandas as pd
 import sqlite_utils
@@ -21,42 +23,144 @@ from monitor.curves import seats_votes_curves, seats_votes_series
 from monitor.inputs import UNIT_KEYS, reduced_contests
 from monitor.national import excess_by_drawer, national_summary, plans_of_units, share_histogram
 from store import aggregates as stored
+from store import bases as store_bases
 from store import history, tables, write_from_snapshot
 from store import measures as store_measures
+from store import reductions as stored_reductions
 
 PLAN_COLUMNS = ["state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "inferred"]
 
 
-def frames(db: sqlite_utils.Database) -> dict[str, pd.DataFrame]:
-    """Every table of :data:`store.aggregates.TABLES`, computed from what the store holds."""
-    contests = reduced_contests(db)
+#: the method version of the stored aggregates: bump it when what they hold changes
+METHOD_VERSION = "aggregates-1"
+#: the order of the marked points of the seats-votes curves (as :func:`seats_votes_curves` writes them)
+POINTS = {"observed": 0, "flipped vote": 1, "even vote": 2}
+TABLE_COLUMNS = stored.TABLES
+
+
+def _inputs(db: sqlite_utils.Database) -> dict[str, pd.DataFrame]:
+    """Everything the aggregates read besides the reductions: units, plans, measures, flags, pool."""
     units = history.current_units(db)
     plans = tables.read_table(db, "plans", PLAN_COLUMNS, "state, chamber, first_cycle")
     plans["inferred"] = plans["inferred"].fillna(0).astype(int)
-    unit_plans = plans_of_units(units, plans)
-    measures = store_measures.read(db, [*UNIT_KEYS, "measure", "value"], ["competitive", "uncontested"])
-    tails = tables.read_table(db, "tails", [*UNIT_KEYS, "flagged"], "cycle, state, chamber, measure")
-    pool = tables.read_table(db, "pool_seats", [*UNIT_KEYS, "excess_seats"], "cycle, state, chamber")
-    curves, points = seats_votes_curves(contests)
     return {
+        "units": units, "keys": stored_reductions.current_keys(db), "unit_plans": plans_of_units(units, plans),
+        "measures": store_measures.read(db, [*UNIT_KEYS, "measure", "value"], ["competitive", "uncontested"]),
+        "tails": tables.read_table(db, "tails", [*UNIT_KEYS, "flagged"], "cycle, state, chamber, measure"),
+        "pool": tables.read_table(db, "pool_seats", [*UNIT_KEYS, "excess_seats"], "cycle, state, chamber"),
+    }
+
+
+def group_bases(inputs: dict[str, pd.DataFrame]) -> dict[str, str]:
+    """``cycle|chamber`` -> what its aggregates are computed from: its units' content, policy and
+    reduction method, their stored competitive and uncontested counts, flags, excess seats and
+    plan eras."""
+    digests: dict[str, "hashlib._Hash"] = {}
+    for name in ("keys", "measures", "tails", "pool", "unit_plans"):
+        frame = inputs[name]
+        cols = [c for c in frame.columns if c not in ("unit_id", "load_id")]
+        for row in frame.sort_values(UNIT_KEYS, kind="mergesort")[cols].itertuples(index=False):
+            key = f"{row.cycle}|{row.chamber}"
+            h = digests.setdefault(key, hashlib.sha256(METHOD_VERSION.encode()))
+            h.update(f"{name}|{'|'.join(map(str, row))}\n".encode())
+    live = _groups(inputs["keys"])
+    return {key: h.hexdigest() for key, h in digests.items() if key in live}
+
+
+def _groups(units: pd.DataFrame) -> set[str]:
+    return {f"{c}|{ch}" for c, ch in zip(units["cycle"], units["chamber"])}
+
+
+def frames(db: sqlite_utils.Database, groups: set[str] | None = None,
+           old: dict[str, pd.DataFrame] | None = None) -> dict[str, pd.DataFrame]:
+    """Every table of :data:`store.aggregates.TABLES`, computed from what the store holds: of the
+    (cycle, chamber) ``groups`` only (every group when None; then ``old`` is not needed), their
+    rows merged with the ``old`` stored rows of the other groups in the order a whole recompute
+    gives."""
+    inputs = _inputs(db)
+    keys = inputs["keys"]
+    if groups is None:
+        contests = reduced_contests(db)
+    else:
+        parts = [reduced_contests(db, int(c), chamber=ch) for c, ch in (g.split("|", 1) for g in sorted(groups))]
+        contests = pd.concat(parts, ignore_index=True) if parts else reduced_contests(db, unit_ids=[])
+    unit_plans = inputs["unit_plans"]
+    curves, points = seats_votes_curves(contests[_latest(contests, keys)])
+    new = {
         "unit_plans": unit_plans,
-        "national_summary": national_summary(contests, measures, tails, pool, unit_plans),
+        "national_summary": national_summary(contests, inputs["measures"], inputs["tails"], inputs["pool"],
+                                             unit_plans),
         "national_histogram": share_histogram(contests),
-        "national_drawers": excess_by_drawer(pool, unit_plans),
+        "national_drawers": excess_by_drawer(inputs["pool"], unit_plans),
         "swing_curves": curves,
         "swing_points": points,
         "seats_votes": seats_votes_series(contests),
     }
+    if groups is None:
+        return new
+    return _merged(new, old, groups, keys)
 
 
-def refresh(db: sqlite_utils.Database) -> dict[str, int]:
-    """Recompute and store every aggregate (one consistent step); return the rows per table."""
+def _latest(contests: pd.DataFrame, keys: pd.DataFrame) -> np.ndarray:
+    """Which contests belong to their (state, chamber)'s latest current cycle."""
+    if contests.empty:
+        return np.zeros(0, bool)
+    latest = keys.groupby(["state", "chamber"])["cycle"].max().rename("latest").reset_index()
+    at = contests[["state", "chamber"]].merge(latest, on=["state", "chamber"], how="left")["latest"]
+    return contests["cycle"].to_numpy() == at.to_numpy()
+
+
+def _merged(new: dict, old: dict, groups: set[str], keys: pd.DataFrame) -> dict[str, pd.DataFrame]:
+    """The recomputed groups' rows with the other groups' stored rows, in a whole recompute's order."""
+    live = _groups(keys)
+    latest = keys.groupby(["state", "chamber"])["cycle"].max()
+    redone_pairs = {(s, ch) for (s, ch), c in latest.items() if f"{c}|{ch}" in groups}
+    out = {"unit_plans": new["unit_plans"], "national_drawers": new["national_drawers"]}
+    for name, order in (("national_summary", ["cycle", "chamber"]),
+                        ("national_histogram", ["cycle", "chamber", "bin_start", "kind", "side"]),
+                        ("seats_votes", UNIT_KEYS)):
+        frame = old[name]
+        g = frame["cycle"].astype(int).astype(str) + "|" + frame["chamber"].astype(str)
+        kept = frame[g.isin(live) & ~g.isin(groups)]
+        out[name] = _stack(kept, new[name], order, TABLE_COLUMNS[name])
+    for name in ("swing_curves", "swing_points"):
+        kept = old[name]
+        pair = list(zip(kept["state"], kept["chamber"]))
+        current = [latest.get(p) == c and p not in redone_pairs for p, c in zip(pair, kept["cycle"].astype(int))]
+        kept = kept[np.array(current, dtype=bool)]
+        frame = pd.concat([kept[TABLE_COLUMNS[name]], new[name][TABLE_COLUMNS[name]]], ignore_index=True)
+        if name == "swing_points":
+            frame = frame.assign(_k=frame["point"].map(POINTS))
+            frame = frame.sort_values(["_k", "cycle", "state", "chamber"], kind="mergesort").drop(columns="_k")
+        else:
+            frame = frame.sort_values(["cycle", "state", "chamber"], kind="mergesort")
+        out[name] = frame.reset_index(drop=True)
+    return out
+
+
+def _stack(kept: pd.DataFrame, new: pd.DataFrame, order: list[str], columns: list[str]) -> pd.DataFrame:
+    frame = pd.concat([kept[columns], new[columns]], ignore_index=True)
+    frame["cycle"] = frame["cycle"].astype(int)
+    return frame.sort_values(order, kind="mergesort").reset_index(drop=True)
+
+
+def refresh(db: sqlite_utils.Database, *, full: bool = False) -> dict[str, int]:
+    """Recompute and store the aggregates of the (cycle, chamber) groups whose inputs changed
+    (:func:`group_bases`; every group when ``full`` or when none was recorded), reading only
+    those groups' reductions (one consistent step); return the rows per table."""
     def prepare():
+        now = group_bases(_inputs(db))
+        known = {} if full else store_bases.read(db, "aggregates")
+        todo = {g for g, b in now.items() if known.get(g) != b}
+        old = None if full or not known else {name: stored.read(db, name) for name in stored.TABLES}
+        made = frames(db) if old is None else frames(db, todo, old)
         rows = {name: [tuple(_plain(v) for v in r) for r in frame[stored.TABLES[name]].itertuples(index=False)]
-                for name, frame in frames(db).items()}
+                for name, frame in made.items()}
 
         def write(conn) -> dict[str, int]:
             stored.replace_all(conn, rows)
+            store_bases.replace(conn, "aggregates", now if old is None else {g: now[g] for g in todo},
+                                every=old is None, drop=[g for g in known if g not in now])
             return {name: len(r) for name, r in rows.items()}
 
         return write

@@ -335,7 +335,24 @@ def verify(ws: Workspace) -> None:
                "aggregates equal a from-scratch recompute")
 
 
-@main.group()
+class _Exports(click.Group):
+    """The ``export`` group: one subcommand per row of :data:`monitor.exports.EXPORTS`, made when
+    the group is used (so that ``levelfield --help`` does not import the tables behind them)."""
+
+    def _made(self) -> None:
+        if not self.commands:
+            _add_exports()
+
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        self._made()
+        return super().list_commands(ctx)
+
+    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
+        self._made()
+        return super().get_command(ctx, name)
+
+
+@main.group(cls=_Exports)
 @workspace_option
 def export() -> None:
     """Export stored data as CSV or JSON."""
@@ -372,22 +389,22 @@ def _add_exports() -> None:
         _export_command(item)
 
 
-_add_exports()
-
 
 @main.command()
 @workspace_option
 @click.option("--out", type=click.Path(path_type=Path, file_okay=False),
               help="Folder to publish into (default the workspace's public/). It is replaced "
                    "entirely, so it must be new, empty or an earlier levelfield site.")
+@click.option("--full", is_flag=True, help="Render every page and download, not only those whose inputs changed.")
 @click.pass_obj
 @guarded
-def publish(ws: Workspace, out: Path | None) -> None:
+def publish(ws: Workspace, out: Path | None, full: bool) -> None:
     """Build the static site from the store: pages, charts, downloads and feed.
 
     The site is built beside the output folder and swapped in at once: a failed build leaves
-    the previous site whole. Pages whose content did not change are not rewritten. A folder
-    holding other files (or the store) is refused rather than emptied.
+    the previous site whole. Only the pages and downloads whose inputs changed since the last
+    build are rendered (--full: all of them); files whose content did not change are not
+    rewritten. A folder holding other files (or the store) is refused rather than emptied.
     """
     from monitor.progress import for_terminal, tell
     from monitor.publish import build_site
@@ -396,7 +413,7 @@ def publish(ws: Workspace, out: Path | None) -> None:
     db = _store(ws)
     tell(progress, "publish", 0, None, "building the site")
     try:
-        report = build_site(ws, db=db, out=out)
+        report = build_site(ws, db=db, out=out, full=full)
     finally:
         _clear(progress)
     for line in report.lines():

@@ -123,6 +123,18 @@ def _state_names(value):
     return None
 
 
+def _staggered_classes(value):
+    """``{chamber: N | {STATE: N, "*": N}}``: the classes a chamber is elected in (1 to 10)."""
+    if not isinstance(value, dict):
+        return f"must be a table like classes.state_upper = 2, got {value!r}"
+    for chamber, classes in value.items():
+        for where, n in (classes.items() if isinstance(classes, dict) else [("", classes)]):
+            if not (_count(n) and n <= 10):  # monitor.staggered.MAX_CLASSES
+                return (f"has {chamber}{'.' + where if where else ''} = {n!r}: must be a whole number of classes, "
+                        f"1 (not staggered) to 10, or a table of states like classes.{chamber} = {{ QV = 2 }}")
+    return None
+
+
 def _colour(value):
     if not isinstance(value, str) or not _COLOUR.match(value):
         return f'must be a colour like "#1b7f79", got {value!r}'
@@ -257,6 +269,24 @@ OPTIONS: list[Option] = [
         example=('expected.federal.QV = 12', 'expected.state_lower.QV = { districts = 40, seats = 60 }'),
     ),
     Option(
+        "multi_member", "treatment", "leave_out",
+        "how a contest electing several members (block voting) enters the district-share measures: leave_out "
+        "(left out, said in the coverage) | pseudo_districts (each seat a pseudo-district with the mean vote of "
+        "each party's winning and losing candidates, seats as actually won: project choice, no verified source; "
+        "stored with every number as part of the policy)",
+        _typed(str, choices=("leave_out", "pseudo_districts")),
+    ),
+    Option(
+        "staggered", "classes", {},
+        "chambers elected in classes (a staggered senate: each cycle elects part of it): classes.<chamber> = N "
+        "for every state, or = { <STATE> = N, \"*\" = N } per state (1 = not staggered). Each cycle's unit of "
+        "such a chamber is partial and never flagged; the measures and flags of the whole chamber are those of "
+        "<chamber>_whole, which combines the latest election of every seat over the last N cycles of the same "
+        "plan (project choice)",
+        _staggered_classes,
+        example=('classes.state_upper = 2', 'classes.state_upper = { QV = 2, ZX = 1 }'),
+    ),
+    Option(
         "load", "max_votes_per_row", 50_000_000,
         "a vote count above this is refused as implausible",
         _typed(int, low=1),
@@ -342,11 +372,14 @@ LoadSettings = section_type("load", "LoadSettings", "Limits of the loader.")
 ScheduleSettings = section_type("schedule", "ScheduleSettings", "When the watcher runs its jobs.")
 SiteSettings = section_type("site", "SiteSettings", "How the site is published.")
 CoverageSettings = section_type("coverage", "CoverageSettings", "What each unit's coverage is measured against.")
+MultiMemberSettings = section_type("multi_member", "MultiMemberSettings",
+                                   "How multi-member contests enter the district-share measures.")
+StaggeredSettings = section_type("staggered", "StaggeredSettings", "Which chambers are elected in classes.")
 
 #: the typed sections, by the name of the section they are built from
 SECTION_TYPES: dict[str, type] = {cls.SECTION: cls for cls in (
     MeasureSettings, PoolSettings, FlagSettings, UncontestedSettings, LoadSettings, ScheduleSettings, SiteSettings,
-    CoverageSettings)}
+    CoverageSettings, MultiMemberSettings, StaggeredSettings)}
 
 
 @dataclass(frozen=True)
@@ -406,11 +439,15 @@ class Config:
 
     @property
     def policy(self) -> str:
-        """The uncontested policy as stored with every measure, e.g. ``impute:0.75``."""
+        """The policy as stored with every measure: the uncontested policy, e.g. ``impute:0.75``,
+        then the multi-member treatment when it is not the default
+        (``impute:0.75+multi_member:pseudo_districts``)."""
+        from monitor.multi_member import policy_suffix
+
         policy = self["uncontested.policy"]
         if policy == "impute":
-            return f"impute:{self['uncontested.winner_share']:g}"
-        return policy
+            policy = f"impute:{self['uncontested.winner_share']:g}"
+        return policy + policy_suffix(self["multi_member.treatment"])
 
 
 def normalise_label(label: str) -> str:

@@ -61,12 +61,22 @@ COVERAGE_FIELDS: list[tuple[str, str, str]] = [
      "the same share as cast, nationwide for the cycle and chamber"),
     ("national_vote_share_after_policy", "number",
      "the share after the uncontested policy, nationwide for the cycle and chamber"),
+    ("partial", "string",
+     "yes for a per-cycle unit of a staggered chamber (one class of its seats): never flagged, never measured as "
+     "the whole chamber; its whole-chamber unit is <chamber>_whole"),
+    ("combines", "string", "the cycles a whole-chamber unit combines (2022+2024); empty for any other unit"),
+    ("districts_treated", "integer",
+     "multi-member districts that entered the measures under [multi_member] treatment = pseudo_districts"),
+    ("seats_treated", "integer", "their seats (each a pseudo-district)"),
 ]
 
 GAP_FIELDS: list[tuple[str, str, str]] = [
     *KEYS, ("district", "string", "district code (empty: more districts expected than stored, codes not known)"),
     ("seats", "integer", "seats of the district (or of the unknown districts)"),
-    ("gap", "string", "missing | left out"), ("reason", "string", "why it is missing or left out"),
+    ("gap", "string", "missing | not up (a staggered chamber's other class) | left out | treated (entered under the "
+                      "multi-member treatment: not a gap)"),
+    ("reason", "string", "why it is missing, not up or left out (or how it entered)"),
+    ("position", "string", "the numbered seat of the district (empty for none)"),
 ]
 
 EXPECTED_SEATS_FIELDS: list[tuple[str, str, str]] = [
@@ -117,6 +127,7 @@ def coverage_columns(units: pd.DataFrame) -> pd.DataFrame:
     out = out.rename(columns={"districts_measured": "districts_in_measures", "seats_measured": "seats_in_measures",
                               "note": "missing_or_left_out"})
     out["incomplete"] = np.where(out["incomplete"].astype(int) == 1, "yes", "no")
+    out["partial"] = np.where(out["partial"].fillna(0).astype(int) == 1, "yes", "no")
     return typed(out[[*UNIT_KEYS, *names(COVERAGE_FIELDS)]], [*KEYS, *COVERAGE_FIELDS])
 
 

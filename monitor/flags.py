@@ -27,21 +27,31 @@ import numpy as np
 import pandas as pd
 import sqlite_utils
 
-from monitor import events as E
 from monitor.config import Config
 from monitor.coverage import stored_coverage
-from monitor.inputs import UNIT_KEYS, measure_inputs, reduced_contests
-from monitor.plans import assign_plans, write_inferred
-from monitor.tails import (JUDGED, NULL_FLAGGED, P_FLAGGED, POOL_METHOD_VERSION, context_stats, group_hash, judge,
-                           observed_values, pool_group, stored_names)
+from monitor.inputs import UNIT_KEYS
+from monitor.staggered import Classes, base_chamber, is_whole
+from monitor.staggered import partial as staggered_partial
 from store import flags as store_flags
 from store import measures as store_measures
 from store import write_from_snapshot
 
-#: every flag name
-FLAG_MEASURES = tuple(JUDGED)
+# The national pool and the measures' registry (monitor.tails, monitor.events) are imported by the
+# steps that compute: `levelfield flags` only reads stored rows (flag_table) and starts without them.
 
 __all__ = ["FLAG_MEASURES", "FlagsReport", "flag_table", "judge", "run_flags", "watch_list"]
+
+
+def __getattr__(name: str):
+    if name == "FLAG_MEASURES":  # every flag name
+        from monitor.tails import JUDGED
+
+        return tuple(JUDGED)
+    if name == "judge":
+        from monitor.tails import judge
+
+        return judge
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 @dataclass
@@ -120,27 +130,58 @@ def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
     return report
 
 
+def flag_units(db: sqlite_utils.Database) -> pd.DataFrame:
+    """The units the flags judge, from what the measures step stored (no vote line or reduction
+    is read): every current unit with stored measures and every whole-chamber unit of a staggered
+    chamber, sorted by cycle, state, chamber (index 0..n-1), with its unit_id (a whole-chamber
+    unit's virtual, negative), load_id (a whole-chamber unit's: its cycle's unit's), the inputs
+    hash its measures were computed from and its districts in the measures (the stored
+    ``districts`` measure)."""
+    from store import reductions as stored_reductions
+
+    keys = stored_reductions.current_keys(db)[["unit_id", *UNIT_KEYS, "load_id"]]
+    measured = store_measures.read(db, [*UNIT_KEYS, "value", "inputs_hash"], ["districts"])
+    units = measured.merge(keys, on=UNIT_KEYS, how="left").rename(columns={"value": "districts_eligible"})
+    whole = units["chamber"].map(is_whole).to_numpy(bool)
+    if whole.any():
+        loads = keys.set_index(UNIT_KEYS)["load_id"]
+        at = pd.MultiIndex.from_arrays([units.loc[whole, "cycle"], units.loc[whole, "state"],
+                                        units.loc[whole, "chamber"].map(base_chamber)])
+        units.loc[whole, "load_id"] = loads.reindex(at).to_numpy()
+        units.loc[whole, "unit_id"] = -np.arange(1, int(whole.sum()) + 1)
+    units = units[units["unit_id"].notna()].copy()
+    units["unit_id"] = units["unit_id"].astype(np.int64)
+    units["districts_eligible"] = units["districts_eligible"].fillna(0).astype(np.int64)
+    return units.sort_values(UNIT_KEYS).reset_index(drop=True)[[*UNIT_KEYS, "unit_id", "load_id", "inputs_hash",
+                                                                "districts_eligible"]]
+
+
+def partial_units(units: pd.DataFrame, config: Config) -> np.ndarray:
+    """True for each unit that is one class of a staggered chamber (never flagged)."""
+    return staggered_partial(units, Classes.from_config(config))
+
+
 def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str, progress=None):
     """Read the store, compute tails, flags, watch list and events; return the writer."""
+    from monitor import events as E
+    from monitor.plans import assign_plans, write_inferred
+    from monitor.tails import P_FLAGGED, POOL_METHOD_VERSION, context_stats, judge, observed_values, stored_names
+
     report = FlagsReport()
-    contests = reduced_contests(db)
-    arrays = measure_inputs(contests, config)
-    units = arrays.units
-    stored = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "reason", "inputs_hash"], stored_names())
-    # a unit's inputs, as its stored measures were computed from them
-    hashes = stored.drop_duplicates(UNIT_KEYS).set_index(UNIT_KEYS)["inputs_hash"]
-    units["inputs_hash"] = hashes.reindex(pd.MultiIndex.from_frame(units[UNIT_KEYS])).fillna("").to_numpy()
+    units = flag_units(db)
+    stored = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "reason"], stored_names())
     observed, undefined, actual_seats = observed_values(stored, units)
-    loads = contests.drop_duplicates("unit_id").set_index("unit_id")["load_id"]
+    loads = units.set_index("unit_id")["load_id"]
     plans, inferred = assign_plans(db, units)
     old = {name: store_flags.read_all(db, name) for name in ("pool_seats", "tails", "watch")}
     pvals = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "p_value", "reason"], sorted(P_FLAGGED.values()))
-    seats, tails = _pool_groups(arrays, (observed, undefined, actual_seats), old, store_flags.group_hashes(db),
+    seats, tails = _pool_groups(db, units, (observed, undefined, actual_seats), old, store_flags.group_hashes(db),
                                 config, full, report, progress)
     districts = units.set_index(UNIT_KEYS)["districts_eligible"]
     cover = stored_coverage(db).units
     coverage_share = pd.to_numeric(cover.set_index(UNIT_KEYS)["seat_coverage"], errors="coerce").astype(float)
-    judged = context_stats(judge(tails, pvals, districts, config, coverage_share))
+    partial = pd.Series(partial_units(units, config), index=pd.MultiIndex.from_frame(units[UNIT_KEYS]))
+    judged = context_stats(judge(tails, pvals, districts, config, coverage_share, partial))
     judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
     watch = watch_list(judged, plans, seats, config)
     report.flags = int(judged["flagged"].sum())
@@ -168,14 +209,18 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
     return write
 
 
-def _pool_groups(arrays, stored: tuple, old: dict, stored_hash: dict, config: Config, full: bool,
-                 report: FlagsReport, progress) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, old: dict, stored_hash: dict,
+                 config: Config, full: bool, report: FlagsReport, progress) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Expected seats and tails of every (cycle, chamber) group: recomputed where the group's inputs
-    changed (or ``full``), else taken over from what the previous run stored."""
+    changed (or ``full``), reading that group's stored reductions only; else taken over from what
+    the previous run stored."""
+    from monitor.inputs import measure_inputs, measured_contests, reduced_contests
+    from monitor.tails import NULL_FLAGGED, group_hash, pool_group
+
     observed, undefined, actual_seats = stored
     old_seats, old_tails = old["pool_seats"], old["tails"]
     seat_frames, tail_frames = [], []
-    groups = arrays.units.groupby(["cycle", "chamber"], sort=True)
+    groups = units.groupby(["cycle", "chamber"], sort=True)
     for done, ((cycle, chamber), part) in enumerate(groups):
         if progress is not None:
             progress("flags", done, groups.ngroups, f"{cycle} {chamber}")
@@ -190,9 +235,18 @@ def _pool_groups(arrays, stored: tuple, old: dict, stored_hash: dict, config: Co
             continue
         report.groups_computed += 1
         report.units_pooled += len(part)
-        members = part.index.to_numpy()
-        seats, tails = pool_group(arrays, members, {k: v[members] for k, v in observed.items()},
-                                  {k: v[members] for k, v in undefined.items()}, actual_seats[members],
+        rows = part.index.to_numpy()
+        contests = (measured_contests(db, config, cycle=int(cycle), chamber=chamber)[0] if is_whole(chamber)
+                    else reduced_contests(db, int(cycle), chamber=chamber))
+        arrays = measure_inputs(contests, config, hashes=False)
+        order = pd.MultiIndex.from_frame(arrays.units[UNIT_KEYS]).get_indexer(pd.MultiIndex.from_frame(part[UNIT_KEYS]))
+        if (order < 0).any():
+            raise RuntimeError(f"the stored measures of {cycle} {chamber} name units without stored reductions: "
+                               "run levelfield compute --full")
+        members = np.sort(order)
+        pick = rows[np.argsort(order)]  # the stored values of the members, in the members' order
+        seats, tails = pool_group(arrays, members, {k: v[pick] for k, v in observed.items()},
+                                  {k: v[pick] for k, v in undefined.items()}, actual_seats[pick],
                                   config, int(cycle), chamber)
         seats["inputs_hash"] = digest
         seat_frames.append(seats.assign(_fresh=True))

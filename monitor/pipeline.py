@@ -19,10 +19,8 @@ from typing import Callable
 
 import sqlite_utils
 
-from monitor import aggregates, reductions
-from monitor.compute import compute
+from monitor import reductions
 from monitor.config import Config
-from monitor.flags import run_flags
 from monitor.ingest.labels import recode_message, sync_party_codes
 from monitor.progress import Progress, tell
 from monitor.workspace import Workspace
@@ -51,6 +49,10 @@ def recompute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
               progress: Progress | None = None) -> RefreshReport:
     """Measures, then the national pool and flags, then the aggregates, from the stored reductions
     (``full``: everything again, the reductions included)."""
+    from monitor import aggregates  # the derived steps bring the measures engine and the pool
+    from monitor.compute import compute
+    from monitor.flags import run_flags
+
     out = RefreshReport()
     if full:
         reductions.refresh(db, config, full=True)
@@ -61,7 +63,7 @@ def recompute(db: sqlite_utils.Database, config: Config, *, full: bool = False,
     out.groups_computed = flags.groups_computed
     out.flag_changes = len(flags.events)
     out.lines += flags.lines()
-    aggregates.refresh(db)
+    aggregates.refresh(db, full=full)
     return out
 
 

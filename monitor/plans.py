@@ -146,7 +146,10 @@ def census_start(cycle: int) -> int:
 
 def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple]]:
     """For units (cycle, state, chamber): plan_id, drawn_by, inferred. Units outside every loaded
-    era get an inferred decade plan; those plans are returned as rows for :func:`write_inferred`."""
+    era get an inferred decade plan; those plans are returned as rows for :func:`write_inferred`.
+    A whole-chamber unit (``state_upper_whole``, :mod:`monitor.staggered`) has its chamber's plan."""
+    from monitor.staggered import base_chamber
+
     plans = store_plans.loaded(db)
     eras = defaultdict(list)
     for p in plans.itertuples():
@@ -155,14 +158,15 @@ def assign_plans(db: sqlite_utils.Database, units: pd.DataFrame) -> tuple[pd.Dat
     out = []
     inferred: dict[tuple, tuple] = {}
     for u in units[["cycle", "state", "chamber"]].itertuples(index=False):
-        match = next((p for p in eras.get((u.state, u.chamber), ())
+        chamber = base_chamber(u.chamber)
+        match = next((p for p in eras.get((u.state, chamber), ())
                       if p.first_cycle <= u.cycle and (pd.isna(p.last_cycle) or u.cycle <= p.last_cycle)), None)
         if match is not None:
             out.append((match.plan_id, match.drawn_by, 0))
             continue
         start = census_start(int(u.cycle))
-        plan_id = inferred_plan_id(u.state, u.chamber, start, loaded_ids.get((u.state, u.chamber), set()))
-        key = (u.state, u.chamber, plan_id)
+        plan_id = inferred_plan_id(u.state, chamber, start, loaded_ids.get((u.state, chamber), set()))
+        key = (u.state, chamber, plan_id)
         first, last = inferred.get(key, (u.cycle, u.cycle))
         inferred[key] = (min(first, u.cycle), max(last, u.cycle))
         out.append((plan_id, "other", 1))

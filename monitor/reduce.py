@@ -33,18 +33,17 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from monitor import multi_member as M
 from monitor.eligibility import ENTERS, contest_reasons
 
 STATUSES = ("contested", "uncontested", "same_party", "no_major")
 
 
-def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame:
-    """``votes``: columns contest_id, party_code, candidate, votes.
-    ``contests``: contest_id (index or column), seats.
-    Returns one row per contest_id with votes_a, votes_b, votes_other, total, status,
-    seats_a, seats_b, seats_other, winner (a | b | other | split) and candidates_a,
-    candidates_b, candidates_other (how many candidates of each code stood).
-    """
+def candidate_results(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame:
+    """One row per candidate of each contest (fusion lines summed): contest_id, key (the
+    candidate), votes, code (a | b | other), seats (of the contest) and won (1 for a seat, 0
+    for none, a share for a tie at the last winning place), sorted by contest then votes
+    (highest first). ``votes`` and ``contests`` as in :func:`reduce_contests`."""
     contests = contests.reset_index() if "contest_id" not in contests.columns else contests
     seats = contests.set_index("contest_id")["seats"].astype(np.int64)
     v = votes[["contest_id", "party_code", "candidate", "votes"]].copy()
@@ -76,13 +75,35 @@ def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame
     n_equal = pd.Series(equal).groupby(cand["contest_id"].to_numpy()).transform("sum").to_numpy()
     remaining = cand["seats"].to_numpy() - n_above
     cand["won"] = np.where(above, 1.0, np.where(equal, remaining / np.maximum(n_equal, 1), 0.0))
+    return cand
+
+
+def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame:
+    """``votes``: columns contest_id, party_code, candidate, votes.
+    ``contests``: contest_id (index or column), seats.
+    Returns one row per contest_id with votes_a, votes_b, votes_other, total, status,
+    seats_a, seats_b, seats_other, winner (a | b | other | split), candidates_a,
+    candidates_b, candidates_other (how many candidates of each code stood) and won_votes_a,
+    won_votes_b (the votes of the party's candidates who won, a tied candidate's counted by its
+    share of the seat) and tie_across_parties (candidates of different codes tied at the last
+    winning place).
+    """
+    contests = contests.reset_index() if "contest_id" not in contests.columns else contests
+    seats = contests.set_index("contest_id")["seats"].astype(np.int64)
+    cand = candidate_results(votes, contests)
 
     out = pd.DataFrame(index=seats.index)
+    cand["won_votes"] = cand["votes"] * cand["won"]  # a tie within a party: equal votes, either counts
     for c in ("a", "b", "other"):
         part = cand[cand["code"] == c].groupby("contest_id")
         out[f"votes_{c}"] = part["votes"].sum().reindex(out.index).fillna(0).astype(np.int64)
         out[f"seats_{c}"] = part["won"].sum().reindex(out.index).fillna(0.0)
         out[f"n_{c}"] = part.size().reindex(out.index).fillna(0).astype(np.int64)
+        if c != "other":  # the votes of the party's candidates who won (multi-member treatment)
+            out[f"won_votes_{c}"] = part["won_votes"].sum().reindex(out.index).fillna(0.0)
+    # a tie at the last winning place between candidates of different codes: no whole seat count
+    tied = cand[(cand["won"] > 0) & (cand["won"] < 1)].groupby("contest_id")["code"].nunique()
+    out["tie_across_parties"] = (tied.reindex(out.index).fillna(0) > 1).to_numpy()
     out["total"] = out[["votes_a", "votes_b", "votes_other"]].sum(axis=1)
     out["seats"] = seats
     has_a, has_b = out["n_a"] > 0, out["n_b"] > 0
@@ -99,13 +120,44 @@ def reduce_contests(votes: pd.DataFrame, contests: pd.DataFrame) -> pd.DataFrame
     return out.reset_index()
 
 
-def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
+def two_party_inputs(reduced: pd.DataFrame, policy: str, winner_share: float, treatment: str = M.LEAVE_OUT,
+                     *, per_seat: bool = False) -> pd.DataFrame:
     """The contests that enter the district-share measures, with ``votes_a``/``votes_b`` after the
-    uncontested policy and an ``uncontested`` flag. Left out: multi-member contests and contests
-    with no major party (no single two-party share per seat), and contests won by a minor party
-    or an independent (a two-party share would hand a major party a seat it did not win); under
-    ``exclude``, uncontested contests. The rules are :func:`monitor.eligibility.contest_reasons`."""
-    r = reduced[contest_reasons(reduced, policy) == ENTERS].copy()
+    uncontested policy and an ``uncontested`` flag. Left out: multi-member contests (unless the
+    multi-member ``treatment`` takes them) and contests with no major party (no single two-party
+    share per seat), and contests won by a minor party or an independent (a two-party share would
+    hand a major party a seat it did not win); under ``exclude``, uncontested contests. The rules
+    are :func:`monitor.eligibility.contest_reasons`.
+
+    A multi-member contest that enters under ``pseudo_districts`` (:mod:`monitor.multi_member`)
+    is one row with its pseudo-districts' votes added up (``uncontested`` when any of them is),
+    or, with ``per_seat``, one row per pseudo-district (``seat`` 1..k; 0 for every other row)."""
+    r = reduced[contest_reasons(reduced, policy, treatment) == ENTERS].copy()
+    multi = r["seats"].astype(int).to_numpy() > 1 if len(r) else np.zeros(0, dtype=bool)
+    single = _single_member_inputs(r[~multi], policy, winner_share).assign(seat=0)
+    if not multi.any():
+        return single
+    pseudo = M.pseudo_districts(r[multi].reset_index(drop=True).assign(contest_id=np.flatnonzero(multi)),
+                                policy, winner_share)
+    if per_seat:
+        rows = r.iloc[pseudo["contest_id"].to_numpy()].copy()
+        rows["seat"] = pseudo["seat"].to_numpy()
+    else:
+        pseudo = pseudo.groupby("contest_id", sort=True).agg(votes_a=("votes_a", "sum"), votes_b=("votes_b", "sum"),
+                                                             uncontested=("uncontested", "any"))
+        rows = r.iloc[pseudo.index.to_numpy()].copy()
+        rows["seat"] = 0
+    rows["votes_a"] = pseudo["votes_a"].to_numpy(float)
+    rows["votes_b"] = pseudo["votes_b"].to_numpy(float)
+    rows["uncontested"] = pseudo["uncontested"].to_numpy(bool)
+    where = pseudo["contest_id"].to_numpy() if per_seat else pseudo.index.to_numpy()  # positions in r
+    order = np.argsort(np.r_[np.flatnonzero(~multi), where], kind="mergesort")
+    return pd.concat([single, rows]).iloc[order]
+
+
+def _single_member_inputs(r: pd.DataFrame, policy: str, winner_share: float) -> pd.DataFrame:
+    """:func:`two_party_inputs` for contests electing one member (all of which enter)."""
+    r = r.copy()
     lopsided = r["status"].isin(["uncontested", "same_party"])
     r["uncontested"] = lopsided
     va = r["votes_a"].astype(float)
@@ -145,7 +197,7 @@ def describe_changes(old: pd.DataFrame, new: pd.DataFrame) -> list[str]:
     party, districts added or dropped, winners, vote totals.
 
     ``old`` and ``new``: reduced contests (:func:`reduce_contests` columns) indexed by the
-    contest key ``(district, special, runoff)`` (or ``(district, special)``), with an optional
+    contest key ``(district, special, runoff, position)`` (or a prefix of it), with an optional
     ``decides`` column (whether the contest decides its seat).
     """
     changes = []
@@ -155,9 +207,9 @@ def describe_changes(old: pd.DataFrame, new: pd.DataFrame) -> list[str]:
             changes.append(f"seats of party {code}: {before:g} -> {after:g}")
     both = "decides" in old.columns and "decides" in new.columns
     for key in sorted(set(old.index) | set(new.index)):
-        district, special, runoff = (*key, False)[:3]
+        district, special, runoff, position = (*key, False, False, "")[:4]
         kind = " ".join(k for k, on in (("special", special), ("runoff", runoff)) if on)
-        label = f"district {district}" + (f" ({kind})" if kind else "")
+        label = f"district {district}" + (f" seat {position}" if position else "") + (f" ({kind})" if kind else "")
         if key not in new.index:
             changes.append(f"{label}: dropped")
         elif key not in old.index:

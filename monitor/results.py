@@ -9,12 +9,13 @@ from store import reductions
 
 RESULT_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id"]
 REDUCTION_COLUMNS = ["special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner", "runoff",
-                     "decides"]
+                     "decides", "position"]
 
 
-def results_export(db: sqlite_utils.Database) -> pd.DataFrame:
-    """The ``district_results`` columns (a fixed contract) followed by the reduction columns."""
-    lines = reductions.result_lines(db)
+def results_export(db: sqlite_utils.Database, cycle: int | None = None) -> pd.DataFrame:
+    """The ``district_results`` columns (a fixed contract) followed by the reduction columns (of
+    ``cycle`` only, when given)."""
+    lines = reductions.result_lines(db, cycle)
     if lines.empty:
         return pd.DataFrame(columns=RESULT_COLUMNS + REDUCTION_COLUMNS)
     out = lines.rename(columns={"status": "contest_status", "certification": "status"})

@@ -27,13 +27,15 @@ class StoreStatus:
     measures: int = 0
     extra: dict[str, str] = field(default_factory=dict)
     coverage: list[str] = field(default_factory=list)  # incomplete units, what is missing and why
+    staggered: dict[str, str] = field(default_factory=dict)  # chamber -> how it is staggered, in words
 
     def lines(self) -> list[str]:
         out = [f"schema version {self.schema_version}"]
         if not self.cycles_by_chamber:
             out.append("no results stored yet")
         for chamber, cycles in sorted(self.cycles_by_chamber.items()):
-            out.append(f"chamber {chamber}: {len(cycles)} cycle(s), {_spans(cycles)}")
+            out.append(f"chamber {chamber}: {len(cycles)} cycle(s), {_spans(cycles)}"
+                       + (f" ({self.staggered[chamber]})" if chamber in self.staggered else ""))
         out.append(f"states {self.states}, current contests {self.contests}, vote lines {self.vote_lines}, "
                    f"measures {self.measures}")
         out.extend(self.coverage)
@@ -69,9 +71,28 @@ def store_status(ws: Workspace, db: sqlite_utils.Database | None = None, last: i
                       if p.is_file() and not p.name.endswith(".error.txt"))
     result = StoreStatus(store.schema_version(db), held["cycles_by_chamber"], held["states"], held["contests"],
                          held["vote_lines"], held["loads"], pending, rejected, held["measures"])
-    result.coverage = coverage_lines(stored_coverage(db).units, ws.config()["flags.min_coverage"], detail=10)
+    config = ws.config()
+    result.coverage = coverage_lines(stored_coverage(db).units, config["flags.min_coverage"], detail=10)
+    result.staggered = staggered_chambers(config, held["cycles_by_chamber"])
     result.extra.update(_watcher_state(ws))
     return result
+
+
+def staggered_chambers(config, chambers) -> dict[str, str]:
+    """Each stored chamber that ``[staggered] classes`` declares staggered somewhere, in words."""
+    from monitor.staggered import whole_code
+
+    declared = config["staggered.classes"] or {}
+    out = {}
+    for chamber in chambers:
+        value = next((v for k, v in declared.items() if k.lower() == chamber), None)
+        if value is None or (not isinstance(value, dict) and int(value) < 2):
+            continue
+        how = (f"staggered, {value} classes" if not isinstance(value, dict) else
+               "staggered in " + ", ".join(f"{k} ({v} classes)" for k, v in sorted(value.items()) if int(v) > 1))
+        out[chamber] = (f"{how}: each cycle's unit is partial and never flagged; the whole chamber is measured as "
+                        f"{whole_code(chamber)}")
+    return out
 
 
 def _watcher_state(ws: Workspace) -> dict[str, str]:

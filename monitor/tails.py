@@ -153,8 +153,16 @@ def _f(x) -> float | None:
     return x if np.isfinite(x) else None
 
 
+def partial_reason(chamber: str) -> str:
+    """Why a per-cycle unit of a staggered chamber is never flagged, in words."""
+    from monitor.staggered import whole_code
+
+    return (f"partial: one class of a staggered chamber (the seats elected this cycle, not the chamber): never "
+            f"flagged; the whole chamber is judged as {whole_code(chamber)}")
+
+
 def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config: Config,
-          seat_coverage: pd.Series | None = None) -> pd.DataFrame:
+          seat_coverage: pd.Series | None = None, partial: pd.Series | None = None) -> pd.DataFrame:
     """Add the flag decision to every tails row (and rows of the measures judged by their p-value
     alone, ``lopsided``).
 
@@ -162,7 +170,8 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     ``districts``: eligible districts per unit key (cycle, state, chamber).
     ``seat_coverage``: the share of each unit's seats in the measures (:mod:`monitor.coverage`);
     a unit below ``flags.min_coverage`` is never flagged and its rows say why (a unit without a
-    coverage row is judged as before).
+    coverage row is judged as before). ``partial``: true for the per-cycle units of staggered
+    chambers (:mod:`monitor.staggered`), never flagged either, and saying so.
     """
     alpha, p_cut, minimum = config["flags.tail"], config["flags.p_threshold"], config["flags.min_districts"]
     t = tails.copy()
@@ -187,7 +196,9 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     share = (seat_coverage.reindex(pd.MultiIndex.from_frame(t[UNIT_KEYS])).to_numpy(float)
              if seat_coverage is not None else np.full(len(t), np.nan))
     thin = np.isfinite(share) & (share < config["flags.min_coverage"])
-    big &= ~thin
+    half = (partial.reindex(pd.MultiIndex.from_frame(t[UNIT_KEYS])).fillna(False).to_numpy(bool)
+            if partial is not None else np.zeros(len(t), dtype=bool))
+    big &= ~thin & ~half
     by_null = big & ((pct > 1 - alpha) | (pct < alpha))
     by_p = big & (p < p_cut) & np.isfinite(v) & (v != 0)
     direction_null = np.where(pct > 0.5, "a", "b")
@@ -202,6 +213,7 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     t["reason"] = np.where(small & unexplained, f"fewer than {minimum} districts: not flagged", t["reason"])
     coverage_reason = [not_flagged_reason(x, config["flags.min_coverage"]) for x in share]
     t["reason"] = np.where(thin & ~small & unexplained, coverage_reason, t["reason"])
+    t["reason"] = np.where(half & unexplained, [partial_reason(c) for c in t["chamber"]], t["reason"])
     return t
 
 

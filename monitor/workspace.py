@@ -7,13 +7,13 @@ import os
 import sqlite3
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
-import sqlite_utils
-
-import store
 from monitor.config import Config, default_toml, load_config
 from monitor.errors import ConfigError, UsageError
+
+if TYPE_CHECKING:  # the store (sqlite_utils brings pandas and numpy) is imported where it is opened
+    import sqlite_utils
 
 DEFAULT_WORKSPACE = "workspace"
 ENV_VAR = "LEVELFIELD_WORKSPACE"
@@ -91,6 +91,8 @@ class Workspace:
         """Open the store (creating the workspace and the store's schema on first use). Opening never
         writes data: bringing the stored inputs up to date with levelfield.toml is an explicit step
         (:func:`monitor.pipeline.prepare`)."""
+        import store
+
         self.ensure()
         if self.store_path.is_dir():
             raise UsageError(f"{self.store_path}: is a folder; the store must be a file")

@@ -40,7 +40,7 @@ NEXT_CYCLE = 2026
 CENSUSES = tuple(range(1970, 2021, 10))
 PLAN_HORIZON = 2030  # last cycle before the next census: the end of the plans now in force
 FEDERAL_SEATS = 300
-FEDERAL, STATE_LOWER = "federal", "state_lower"
+FEDERAL, STATE_LOWER, STATE_UPPER = "federal", "state_lower", "state_upper"
 SOURCE = "invented: sample_history/generate.py"
 
 # --- parties --------------------------------------------------------------------------------
@@ -96,6 +96,21 @@ STATE_INDEX = {s[0]: i for i, s in enumerate(STATES)}
 # State legislature lower chambers: districts (the HH chamber has one two-seat district).
 STATE_LOWER_SIZES = {"JS": 40, "EB": 40, "HH": 59, "WD": 60, "OV": 120, "EV": 80, "YR": 100, "JR": 70}
 MULTI_MEMBER = ("HH", STATE_LOWER, "007")  # elects two members every cycle
+# Lower chambers added later, each of its own kind: every district elects two members by block
+# voting (each voter has two votes, the top two candidates win) in EK and OD; in HY every district
+# elects two members to numbered seats (positions 1 and 2, each a contest of its own).
+BLOCK_VOTING = {"EK": 30, "OD": 26}
+NUMBERED_SEATS = {"HY": 40}
+POSITIONS = ("1", "2")
+# State senates (upper chambers): staggered in two classes. Every seat is elected in the first
+# cycle of a plan; then the odd-numbered districts two years later, the even-numbered ones four
+# years later, and so on alternately (so a cycle elects about half the chamber).
+STATE_UPPER_SIZES = {"JS": 24, "EB": 24, "WD": 30, "OV": 40, "EV": 40, "JR": 36, "YR": 50}
+CLASSES = 2
+# the chambers added after the first version of the sample: their own random streams and names,
+# so that the federal and original state-house results stay as they were
+ADDED = ({(s, STATE_LOWER) for s in (*BLOCK_VOTING, *NUMBERED_SEATS)}
+         | {(s, STATE_UPPER) for s in STATE_UPPER_SIZES})
 SAME_PARTY_GENERAL = ("WD", STATE_LOWER, 2014)  # the safest Harbour seat: two Harbour candidates
 FUSION = ("EW", FEDERAL, 2002, 2010)  # the Harbour candidate of EW's most marginal Harbour seat is also
 #                                        the Hearth Alliance candidate (always contested)
@@ -170,6 +185,8 @@ ENGINEERED: dict[tuple[str, str, int], Spec] = {
 }
 for _first in (2002, 2012, 2022):  # each party holds a state-house gerrymander through three censuses
     ENGINEERED[("JS", STATE_LOWER, _first)] = _gerry("a", "state house, redrawn after each census")
+    ENGINEERED[("JS", STATE_UPPER, _first)] = _gerry("a", "staggered state senate, redrawn after each census")
+    ENGINEERED[("EB", STATE_UPPER, _first)] = _gerry("b", "staggered state senate, redrawn after each census")
     ENGINEERED[("EB", STATE_LOWER, _first)] = _gerry("b", "state house, redrawn after each census")
 for _first in (1992, 2002, 2012, 2022):
     ENGINEERED[("EV", FEDERAL, _first)] = _commission()
@@ -186,7 +203,7 @@ MID_DECADE = {("HY", FEDERAL): (1986,), ("OV", FEDERAL): (2006,), ("YR", FEDERAL
 # Geometry parameters (two-party share of a unless stated)
 # neutral partition: SD of the district shares around the state's share (share units); state-house
 # districts are smaller, so more homogeneous and more spread out than federal ones
-NEUTRAL_SPREAD = {FEDERAL: 0.13, STATE_LOWER: 0.17}
+NEUTRAL_SPREAD = {FEDERAL: 0.13, STATE_LOWER: 0.17, STATE_UPPER: 0.15}
 PACKED = (0.76, 0.84)  # victim's share in a packed district
 PROTECT_OFFSET = 0.85  # logit distance of a protected seat from the state lean
 CITY_FRACTION, CITY_SHARE = 0.25, (0.76, 0.84)
@@ -194,14 +211,14 @@ REMEDIAL_WEIGHT = 0.25  # remedial plan: this much of a gerrymander's shape, the
 # Personal vote of a sitting member (logit). Small in the state houses: with 40-120 seats the
 # within-state tests see the majority's incumbency bonus (its incumbent holds the median seat) as
 # asymmetry; see README "Why the state houses are modelled as they are".
-INCUMBENCY = {FEDERAL: 0.20, STATE_LOWER: 0.05}
+INCUMBENCY = {FEDERAL: 0.20, STATE_LOWER: 0.05, STATE_UPPER: 0.05}
 # Chance that the weaker major party stays out: top / (1 + exp(-(margin - midpoint) / width)), with
 # margin = |expected share - 1/2|. Set so that uncontested seats would have given their winner 75%
 # on average, the share the sample's levelfield.toml imputes (imputation unbiased on average).
-UNCONTESTED = {FEDERAL: (0.40, 0.21, 0.03), STATE_LOWER: (0.42, 0.20, 0.03)}
-DISTRICT_NOISE = {FEDERAL: 0.10, STATE_LOWER: 0.13}
+UNCONTESTED = {FEDERAL: (0.40, 0.21, 0.03), STATE_LOWER: (0.42, 0.20, 0.03), STATE_UPPER: (0.42, 0.20, 0.03)}
+DISTRICT_NOISE = {FEDERAL: 0.10, STATE_LOWER: 0.13, STATE_UPPER: 0.12}
 STATE_NOISE, SWING_NOISE = 0.02, 0.03
-RETIRE = {FEDERAL: 0.10, STATE_LOWER: 0.12}  # chance a sitting member does not run again
+RETIRE = {FEDERAL: 0.10, STATE_LOWER: 0.12, STATE_UPPER: 0.12}  # chance a sitting member does not run again
 ADULT_SHARE, MIDTERM_TURNOUT = 0.71, 0.76  # adults per resident; turnout factor of a midterm year
 
 
@@ -223,6 +240,8 @@ class District:
     pop_share: float  # share of the state's population
     turnout_factor: float
     drift: float  # relative population drift per decade
+    positions: tuple[str, ...] = ()  # numbered seats: one contest per position
+    klass: int = 0  # staggered chamber: 1 (odd-numbered districts) or 2 (even-numbered)
 
 
 @dataclass
@@ -326,21 +345,33 @@ class Names:
         self.rng = rng
         self.used: set[str] = set()
 
+    def surname(self) -> str:
+        r = self.rng
+        return (SUR_HEAD[r.integers(len(SUR_HEAD))] + SUR_LINK[r.integers(len(SUR_LINK))]
+                + SUR_TAIL[r.integers(len(SUR_TAIL))])
+
     def new(self) -> str:
         r = self.rng
         while True:
             given = GIVEN_HEAD[r.integers(len(GIVEN_HEAD))] + GIVEN_TAIL[r.integers(len(GIVEN_TAIL))]
-            sur = (SUR_HEAD[r.integers(len(SUR_HEAD))] + SUR_LINK[r.integers(len(SUR_LINK))]
-                   + SUR_TAIL[r.integers(len(SUR_TAIL))])
-            name = f"{given} {sur}"
+            name = f"{given} {self.surname()}"
             if name not in self.used:
                 self.used.add(name)
                 return name
 
 
+class DoubleNames(Names):
+    """Names of the chambers added later: a double surname (``Given Sur-Sur``), a shape the first
+    stream never makes, so the two streams never give the same name."""
+
+    def surname(self) -> str:
+        return f"{super().surname()}-{super().surname()}"
+
+
 # --- plan schedule and geometry ----------------------------------------------------------------
 def chambers_of(state: str) -> tuple[str, ...]:
-    return (FEDERAL, STATE_LOWER) if state in STATE_LOWER_SIZES else (FEDERAL,)
+    lower = state in STATE_LOWER_SIZES or state in BLOCK_VOTING or state in NUMBERED_SEATS
+    return (FEDERAL,) + ((STATE_LOWER,) if lower else ()) + ((STATE_UPPER,) if state in STATE_UPPER_SIZES else ())
 
 
 def plan_schedule(seats: dict[int, dict[str, int]]) -> list[Plan]:
@@ -350,9 +381,10 @@ def plan_schedule(seats: dict[int, dict[str, int]]) -> list[Plan]:
     for state in STATE_CODES:
         for chamber in chambers_of(state):
             starts = sorted({c + 2 for c in CENSUSES} | set(MID_DECADE.get((state, chamber), ())))
+            who = rng_for(0, "control", state, chamber) if (state, chamber) in ADDED else control
             for i, first in enumerate(starts):
                 last = starts[i + 1] - 2 if i + 1 < len(starts) else PLAN_HORIZON
-                drawn = ("party_a", "party_b", "split")[int(control.choice(3, p=(0.35, 0.35, 0.30)))]
+                drawn = ("party_a", "party_b", "split")[int(who.choice(3, p=(0.35, 0.35, 0.30)))]
                 spec = ENGINEERED.get((state, chamber, first))
                 if chamber == FEDERAL and seats[census_of(first)][state] == 1:
                     spec = Spec("at_large", "other", "single at-large seat: no districts drawn")
@@ -458,7 +490,8 @@ class History:
         self.by_unit: dict[tuple[str, str], list[Plan]] = {}
         for plan in self.plans:
             self.by_unit.setdefault((plan.state, plan.chamber), []).append(plan)
-        self.names = Names(rng_for(seed, "names"))
+        self.names = self.first_names = Names(rng_for(seed, "names"))
+        self.added_names = DoubleNames(rng_for(seed, "names", "added chambers"))
         self.chambers = {key: Chamber() for key in self.by_unit}
         self.turnout_base = {s: float(rng_for(0, "turnout", s).uniform(0.52, 0.66)) for s in STATE_CODES}
         self.fusion_name = ""
@@ -474,7 +507,9 @@ class History:
     def n_districts(self, state, chamber, cycle) -> int:
         if chamber == FEDERAL:
             return self.seats[census_of(cycle)][state]
-        return STATE_LOWER_SIZES[state]
+        if chamber == STATE_UPPER:
+            return STATE_UPPER_SIZES[state]
+        return {**STATE_LOWER_SIZES, **BLOCK_VOTING, **NUMBERED_SEATS}[state]
 
     def start_plan(self, ch: Chamber, plan: Plan, cycle: int) -> None:
         rng = rng_for(self.seed, "plan", plan.plan_id)
@@ -496,6 +531,13 @@ class History:
             for d in districts:
                 if d.code == MULTI_MEMBER[2]:
                     d.seats = 2
+        for i, d in enumerate(districts):
+            if plan.chamber == STATE_LOWER and plan.state in BLOCK_VOTING:
+                d.seats = 2
+            if plan.chamber == STATE_LOWER and plan.state in NUMBERED_SEATS:
+                d.positions = POSITIONS
+            if plan.chamber == STATE_UPPER:
+                d.klass = 1 if i % 2 == 0 else 2  # district 001 is odd-numbered
         # incumbents: protected seats keep their holder; elsewhere the state's sitting members of the
         # favoured party take the new seats they are safest in.
         pools = {"a": [], "b": []}
@@ -511,7 +553,7 @@ class History:
                     pools[party].remove(name)
         for i in sorted(range(n), key=lambda i: -abs(districts[i].offset)):
             d = districts[i]
-            if d.seats > 1 or d.code in new_inc:
+            if d.seats > 1 or d.positions or d.code in new_inc:
                 continue
             party = "a" if lean + d.offset > 0 else "b"
             if pools[party] and rng.random() < 0.85:
@@ -519,7 +561,7 @@ class History:
         ch.plan, ch.districts, ch.incumbents = plan, districts, new_inc
 
     # one cycle -----------------------------------------------------------------------------
-    def simulate(self, cycle: int, chambers=(FEDERAL, STATE_LOWER)) -> list[tuple]:
+    def simulate(self, cycle: int, chambers=(FEDERAL, STATE_LOWER, STATE_UPPER)) -> list[tuple]:
         swing = NATIONAL_SWING[cycle] + rng_for(self.seed, "swing", cycle).normal(0.0, SWING_NOISE)
         rows: list[tuple] = []
         for state in STATE_CODES:
@@ -531,6 +573,7 @@ class History:
         return rows
 
     def simulate_unit(self, state, chamber, cycle, swing) -> list[tuple]:
+        self.names = self.added_names if (state, chamber) in ADDED else self.first_names
         ch = self.chambers[(state, chamber)]
         plan = self.plan_for(state, chamber, cycle)
         if ch.plan is not plan:
@@ -545,7 +588,16 @@ class History:
         rows: list[tuple] = []
         corrected: list[tuple] = []
         next_inc: dict[str, list[tuple[str, str]]] = {}
+        up = class_up(cycle, ch.plan.first_cycle)
         for d in ch.districts:
+            if d.klass and up and d.klass != up:  # staggered: this seat is not up this cycle
+                if d.code in ch.incumbents:
+                    next_inc[d.code] = ch.incumbents[d.code]
+                continue
+            if d.positions:
+                rows.extend(self.numbered_seats(rng, ch, d, cycle, state, chamber, lean + d.offset + swing,
+                                                state_pop, turnout, next_inc))
+                continue
             years = cycle - ch.plan.first_cycle
             pop = state_pop * d.pop_share * d.seats * np.exp(d.drift * years / 10.0)
             cycle_factor = np.exp(rng.normal(0.0, 0.03))
@@ -558,7 +610,9 @@ class History:
                     self.fusion_name = self.names.new()
                 sitting = [m for m in sitting if m[0] != "a"] + [("a", self.fusion_name)]
             base = lean + d.offset + swing
-            if d.seats > 1:
+            if d.seats > 1 and state in BLOCK_VOTING:
+                lines, winners = self.block_voting(rng, d, base, votes_cast, sitting)
+            elif d.seats > 1:
                 lines, winners = self.multi_member(rng, d, base, votes_cast, sitting)
             else:
                 inc_party = sitting[0][0] if sitting else ""
@@ -575,15 +629,57 @@ class History:
                     lines = self.fuse(rng, lines)
                 if forced_close:
                     fixed, winners = self.recount(rng, lines)
-                    corrected = [(cycle, state, chamber, d.code, p, c, v, d.seats, w) for p, c, v, w in fixed]
+                    corrected = [(cycle, state, chamber, d.code, p, c, v, d.seats, w, "") for p, c, v, w in fixed]
             for party, cand, votes, writein in lines:
-                rows.append((cycle, state, chamber, d.code, party, cand, votes, d.seats, writein))
+                rows.append((cycle, state, chamber, d.code, party, cand, votes, d.seats, writein, ""))
             next_inc[d.code] = winners
         ch.incumbents = next_inc
         if corrected:
             district = CORRECTION[3]
             self.correction_rows = [r for r in rows if r[3] != district] + corrected
         return rows
+
+    def numbered_seats(self, rng, ch, d, cycle, state, chamber, base, state_pop, turnout, next_inc):
+        """Each position of the district a single-member contest of its own, with its own sitting
+        member and noise; every voter of the district votes in both."""
+        rows = []
+        for position in d.positions:
+            key = f"{d.code}/{position}"
+            years = cycle - ch.plan.first_cycle
+            pop = state_pop * d.pop_share * np.exp(d.drift * years / 10.0)
+            votes_cast = int(round(pop * ADULT_SHARE * turnout * d.turnout_factor * np.exp(rng.normal(0.0, 0.03))))
+            sitting = [m for m in ch.incumbents.get(key, []) if rng.random() >= RETIRE[chamber]]
+            inc_party = sitting[0][0] if sitting else ""
+            inc = INCUMBENCY[chamber] * (1 if inc_party == "a" else -1 if inc_party == "b" else 0)
+            expected = float(expit(base + inc))
+            share = float(expit(base + inc + rng.normal(0.0, DISTRICT_NOISE[chamber])))
+            lines, winners = self.single_member(rng, chamber, expected, share, votes_cast, sitting, False, False)
+            rows += [(cycle, state, chamber, d.code, party, cand, votes, 1, writein, position)
+                     for party, cand, votes, writein in lines]
+            next_inc[key] = winners
+        return rows
+
+    def block_voting(self, rng, d, base, votes_cast, sitting):
+        """Two seats by block voting: each voter has two votes, the top two candidates win. Each
+        party runs two candidates, except that in a safe district the weaker party sometimes runs
+        one (conceding a seat) or none."""
+        share = float(expit(base + rng.normal(0.0, DISTRICT_NOISE[STATE_LOWER])))
+        weaker = "a" if share < 0.5 else "b"
+        margin = abs(share - 0.5)
+        running = {"a": 2, "b": 2}
+        if margin > 0.12 and rng.random() < 0.35:
+            running[weaker] = 1 if rng.random() < 0.6 else 0
+        lines = []
+        for party, label, s in (("a", A_MAIN, share), ("b", B_MAIN, 1.0 - share)):
+            names = [n for p, n in sitting if p == party][:running[party]]
+            while len(names) < running[party]:
+                names.append(self.names.new())
+            spread = float(rng.uniform(0.0, 0.08))
+            for name, factor in zip(names, (1 + spread, 1 - spread)):
+                lines.append((label, name, int(round(votes_cast * s * factor)), 0))
+        ranked = sorted(lines, key=lambda line: (-line[2], line[1]))
+        winners = [("a" if label == A_MAIN else "b", name) for label, name, _, _ in ranked[:2]]
+        return lines, winners
 
     def candidate(self, sitting, party) -> str:
         for p, name in sitting:
@@ -679,14 +775,23 @@ class History:
         return fixed, [winner]
 
 
+def class_up(cycle: int, first_cycle: int) -> int:
+    """The class of a staggered chamber elected in ``cycle`` under a plan first used in
+    ``first_cycle``: 0 (every seat) in the plan's first cycle, then 1, 2, 1, ... alternately."""
+    step = (cycle - first_cycle) // 2
+    return 0 if step == 0 else 1 if step % 2 == 1 else 2
+
+
 # --- output -------------------------------------------------------------------------------------
-RESULT_HEADER = ("cycle", "state", "chamber", "district", "party", "candidate", "votes", "seats", "writein")
+RESULT_HEADER = ("cycle", "state", "chamber", "district", "party", "candidate", "votes", "seats", "writein",
+                 "position")
+FEDERAL_HEADER = RESULT_HEADER[:-1]  # the federal-only files (next cycle, correction): no numbered seats
 PLAN_HEADER = ("state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "note", "source")
 KEY_HEADER = ("state", "chamber", "plan_id", "expected", "note", "break_cycle", "measured", "watch")
 
 
 def row_key(row):
-    return (row[1], row[2], row[3], -row[6], row[4], row[5])
+    return (row[1], row[2], row[3], row[9], -row[6], row[4], row[5])
 
 
 def write_csv(path: Path, header, rows) -> None:
@@ -724,6 +829,19 @@ colour = "{PARTY_B['colour']}"    # amber
 policy = "impute"
 winner_share = 0.75
 
+[multi_member]
+# The state houses of {' and '.join(BLOCK_VOTING)} elect two members per district by block voting (and HH
+# one district); by default such contests are left out of the district-share measures and the
+# coverage says so. "pseudo_districts" brings them in, each seat a pseudo-district (a project
+# choice with no verified source; stored with every number as part of the policy).
+treatment = "leave_out"
+
+[staggered]
+# The state senates ({STATE_UPPER}) elect half their seats each cycle (two classes, every seat in
+# the first cycle of a plan). Each cycle's unit is partial and never flagged; {STATE_UPPER}_whole
+# combines the latest election of every seat (the last two cycles of the same plan).
+classes.{STATE_UPPER} = {CLASSES}
+
 [states]
 # The invented states' names, shown on the pages beside their codes.
 """ + "".join(f'{code} = "{name}"\n' for code, name, *_ in STATES)
@@ -751,11 +869,11 @@ def generate(seed: int, out: Path) -> list[Path]:
         if cycle == CORRECTION[2]:
             fixed = sorted(history.correction_rows, key=row_key)
             path = out / "corrections" / f"{cycle}_{CORRECTION[0]}_{CORRECTION[1]}.csv"
-            write_csv(path, RESULT_HEADER + ("status",), [r + ("certified",) for r in fixed])
+            write_csv(path, FEDERAL_HEADER + ("status",), [r[:-1] + ("certified",) for r in fixed])
             written.append(path)
     rows = sorted(history.simulate(NEXT_CYCLE, chambers=(FEDERAL,)), key=row_key)
     path = out / "next" / f"{NEXT_CYCLE}.csv"
-    write_csv(path, RESULT_HEADER + ("status",), [r + ("unofficial",) for r in rows])
+    write_csv(path, FEDERAL_HEADER + ("status",), [r[:-1] + ("unofficial",) for r in rows])
     written.append(path)
 
     plan_rows = sorted(((p.state, p.chamber, p.plan_id, p.first_cycle, p.last_cycle, p.spec.drawn_by,

@@ -12,8 +12,8 @@ import pandas as pd
 UNIT_COLUMNS = ["cycle", "state", "chamber", "unit_id", "districts_stored", "seats_stored", "districts_measured",
                 "seats_measured", "districts_expected", "seats_expected", "expected_from", "seat_coverage",
                 "incomplete", "note", "votes_a_cast", "votes_b_cast", "votes_a_measured", "votes_b_measured",
-                "policy", "computed_at"]
-GAP_COLUMNS = ["cycle", "state", "chamber", "district", "seats", "gap", "reason"]
+                "policy", "computed_at", "partial", "combines", "districts_treated", "seats_treated"]
+GAP_COLUMNS = ["cycle", "state", "chamber", "district", "seats", "gap", "reason", "position"]
 
 
 def replace_coverage(conn: sqlite3.Connection, units: Sequence[tuple], gaps: Sequence[tuple]) -> None:
@@ -21,6 +21,17 @@ def replace_coverage(conn: sqlite3.Connection, units: Sequence[tuple], gaps: Seq
     :data:`UNIT_COLUMNS` order; ``gaps``: tuples in :data:`GAP_COLUMNS` order."""
     conn.execute("DELETE FROM coverage")
     conn.execute("DELETE FROM coverage_gaps")
+    conn.executemany(f"INSERT INTO coverage ({', '.join(UNIT_COLUMNS)}) "
+                     f"VALUES ({', '.join('?' for _ in UNIT_COLUMNS)})", units)
+    conn.executemany(f"INSERT INTO coverage_gaps ({', '.join(GAP_COLUMNS)}) "
+                     f"VALUES ({', '.join('?' for _ in GAP_COLUMNS)})", gaps)
+
+
+def replace_series(conn: sqlite3.Connection, series: Sequence[tuple[str, str]], units: Sequence[tuple],
+                   gaps: Sequence[tuple]) -> None:
+    """Replace the rows of the (state, chamber) ``series`` only (inside the caller's transaction)."""
+    for table in ("coverage", "coverage_gaps"):
+        conn.executemany(f"DELETE FROM {table} WHERE state = ? AND chamber = ?", [tuple(k) for k in series])
     conn.executemany(f"INSERT INTO coverage ({', '.join(UNIT_COLUMNS)}) "
                      f"VALUES ({', '.join('?' for _ in UNIT_COLUMNS)})", units)
     conn.executemany(f"INSERT INTO coverage_gaps ({', '.join(GAP_COLUMNS)}) "
@@ -37,13 +48,23 @@ def read_coverage(db) -> pd.DataFrame:
 
 
 def read_gaps(db) -> pd.DataFrame:
-    """Every stored gap, sorted by unit, kind (missing first) and district."""
+    """Every stored gap, sorted by unit, kind (missing, not up, left out, then the treated
+    districts) and district."""
     conn = getattr(db, "conn", db)
     if not _has(conn, "coverage_gaps"):
         return pd.DataFrame(columns=GAP_COLUMNS)
     return pd.read_sql_query(
-        f"SELECT {', '.join(GAP_COLUMNS)} FROM coverage_gaps "
-        "ORDER BY cycle, state, chamber, gap DESC, district", conn)
+        f"SELECT {', '.join(GAP_COLUMNS)} FROM coverage_gaps ORDER BY cycle, state, chamber, "
+        "CASE gap WHEN 'missing' THEN 0 WHEN 'not up' THEN 1 WHEN 'left out' THEN 2 ELSE 3 END, district, position",
+        conn)
+
+
+def plan_counts_and_eras(db) -> pd.DataFrame:
+    """Every loaded (not inferred) plan era with its counts: state, chamber, plan_id, first_cycle,
+    last_cycle, districts, seats."""
+    conn = getattr(db, "conn", db)
+    return pd.read_sql_query(
+        "SELECT state, chamber, plan_id, first_cycle, last_cycle, districts, seats FROM plans WHERE inferred = 0", conn)
 
 
 def plan_counts(db) -> pd.DataFrame:

@@ -21,6 +21,11 @@ def stored_hashes(db: sqlite_utils.Database) -> pd.DataFrame:
         "SELECT cycle, state, chamber, measure, inputs_hash, method_version FROM measures", db.conn)
 
 
+def unit_keys(db: sqlite_utils.Database) -> list[UnitKey]:
+    """(cycle, state, chamber) of every unit with stored measures."""
+    return [tuple(r) for r in db.execute("SELECT DISTINCT cycle, state, chamber FROM measures")]
+
+
 def replace_units(conn: sqlite3.Connection, keys: Iterable[UnitKey], rows: Sequence[tuple]) -> None:
     """Delete every row of the units ``keys``, then insert ``rows`` (tuples in ROW_COLUMNS order)."""
     for key in keys:

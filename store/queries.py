@@ -71,11 +71,12 @@ def insert_unit(
 
 
 CONTEST_COLUMNS = ("id", "unit_id", "district", "seats", "special", "runoff", "status", "decides", "left_out",
-                   "placeholder")
+                   "placeholder", "position")
 
 
 def insert_contests(conn: sqlite3.Connection, rows: Sequence[tuple]) -> None:
-    """rows: (id, unit_id, district, seats, special, runoff, status, decides, left_out, placeholder)."""
+    """rows: (id, unit_id, district, seats, special, runoff, status, decides, left_out, placeholder,
+    position)."""
     conn.executemany(
         f"INSERT INTO contests ({', '.join(CONTEST_COLUMNS)}) VALUES ({', '.join('?' for _ in CONTEST_COLUMNS)})", rows
     )
@@ -97,15 +98,15 @@ def insert_votes(conn: sqlite3.Connection, rows: Sequence[tuple]) -> None:
 
 def unit_votes(conn: sqlite3.Connection | sqlite_utils.Database, unit_ids: Sequence[int]) -> pd.DataFrame:
     """Vote lines of the given units: unit_id, contest_id, district, seats, special, runoff, decides,
-    party, party_code, candidate, votes."""
+    party, party_code, candidate, votes, position."""
     conn = getattr(conn, "conn", conn)
     if not unit_ids:
         return pd.DataFrame(columns=["unit_id", "contest_id", "district", "seats", "special", "runoff", "decides",
-                                     "party", "party_code", "candidate", "votes"])
+                                     "party", "party_code", "candidate", "votes", "position"])
     marks = ",".join("?" for _ in unit_ids)
     return pd.read_sql_query(
         "SELECT c.unit_id, v.contest_id, c.district, c.seats, c.special, c.runoff, c.decides, v.party, v.party_code, "
-        f"v.candidate, v.votes FROM votes v JOIN contests c ON c.id = v.contest_id "
+        f"v.candidate, v.votes, c.position FROM votes v JOIN contests c ON c.id = v.contest_id "
         f"WHERE c.unit_id IN ({marks}) ORDER BY c.unit_id, v.contest_id, v.id",
         conn, params=list(unit_ids),
     )
@@ -117,11 +118,11 @@ def current_votes(db: sqlite_utils.Database, where: str = "", params: Sequence =
     clause = f"AND ({where})" if where else ""
     return pd.read_sql_query(
         "SELECT u.id AS unit_id, u.cycle, u.state, u.chamber, u.certification, u.load_id, "
-        "c.id AS contest_id, c.district, c.seats, c.special, c.runoff, c.decides, c.left_out, c.placeholder, c.status, "
-        "v.party, v.party_code, v.candidate, v.votes "
+        "c.id AS contest_id, c.district, c.position, c.seats, c.special, c.runoff, c.decides, c.left_out, "
+        "c.placeholder, c.status, v.party, v.party_code, v.candidate, v.votes "
         "FROM votes v JOIN contests c ON c.id = v.contest_id JOIN units u ON u.id = c.unit_id "
         f"WHERE u.superseded_by IS NULL {clause} "
-        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.special, c.runoff, v.id",
+        "ORDER BY u.cycle, u.state, u.chamber, c.district, c.position, c.special, c.runoff, v.id",
         db.conn, params=list(params),
     )
 
@@ -176,15 +177,15 @@ def set_unit_digest(conn: sqlite3.Connection, rows: Sequence[tuple[str, int]]) -
 
 def unit_lines(conn: sqlite3.Connection, unit_ids: Sequence[int]) -> pd.DataFrame:
     """Every stored field of the units' vote lines: unit_id, district, special, seats, party,
-    party_code, candidate, votes, writein, certification, runoff, decides, placeholder."""
+    party_code, candidate, votes, writein, certification, runoff, decides, placeholder, position."""
     if not unit_ids:
         return pd.DataFrame(columns=["unit_id", "district", "special", "seats", "party", "party_code",
                                      "candidate", "votes", "writein", "certification", "runoff", "decides",
-                                     "placeholder"])
+                                     "placeholder", "position"])
     marks = ",".join("?" for _ in unit_ids)
     return pd.read_sql_query(
         "SELECT c.unit_id, c.district, c.special, c.seats, v.party, v.party_code, v.candidate, v.votes, "
-        "v.writein, u.certification, c.runoff, c.decides, c.placeholder FROM votes v "
+        "v.writein, u.certification, c.runoff, c.decides, c.placeholder, c.position FROM votes v "
         "JOIN contests c ON c.id = v.contest_id "
         f"JOIN units u ON u.id = c.unit_id WHERE c.unit_id IN ({marks}) ORDER BY c.unit_id, v.id",
         conn, params=list(unit_ids),

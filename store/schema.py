@@ -5,6 +5,9 @@
 
 from __future__ import annotations
 
+from store.schema_bases import BASES_MIGRATION
+from store.schema_seats import SEATS_MIGRATION
+
 MIGRATIONS: list[tuple[int, str, str]] = [
     (
         1,
@@ -474,9 +477,11 @@ MIGRATIONS: list[tuple[int, str, str]] = [
         );
         """,
     ),
+    SEATS_MIGRATION,
+    BASES_MIGRATION,
 ]
 
 # migrations that rebuild a table another one references: run with foreign keys off (a pragma
 # that only takes effect outside a transaction), then checked with ``PRAGMA foreign_key_check``
 # before the commit, as SQLite's documentation of ALTER TABLE prescribes
-REBUILDS = {4}
+REBUILDS = {4, 7}

@@ -21,6 +21,7 @@ import pytest
 from scipy import stats
 
 from monitor.flags import flag_table
+from monitor.staggered import base_chamber, is_whole
 from tests.conftest import SAMPLE
 
 
@@ -30,9 +31,27 @@ def answer_key() -> list[dict]:
 
 
 @pytest.fixture(scope="module")
-def watch(sample_workspace):
+def watch_rows(sample_workspace):
     db = sample_workspace.open_store()
-    return {(r.state, r.chamber, r.plan_id): r.favours for r in flag_table(db, "watch").itertuples()}
+    return flag_table(db, "watch")
+
+
+@pytest.fixture(scope="module")
+def watch(watch_rows):
+    """The watch list keyed by the chamber as loaded: a staggered senate is judged as a whole
+    chamber (``state_upper_whole``) and keyed here, as in the answer key, by ``state_upper``."""
+    return {(r.state, base_chamber(r.chamber), r.plan_id): r.favours for r in watch_rows.itertuples()}
+
+
+def test_a_staggered_senate_is_on_watch_only_as_a_whole_chamber(watch_rows, sample_workspace):
+    """The per-cycle units of the staggered senates (half the seats each) are never flagged; the
+    senates' watch entries come from their whole-chamber units."""
+    senates = watch_rows[watch_rows["chamber"].map(base_chamber) == "state_upper"]
+    assert len(senates) >= 2 and senates["chamber"].map(is_whole).all()
+    db = sample_workspace.open_store()
+    halves = pd.read_sql_query("SELECT flagged, reason FROM tails WHERE chamber = 'state_upper'", db.conn)
+    assert len(halves) > 0 and (halves["flagged"] == 0).all()
+    assert halves["reason"].str.startswith("partial: one class of a staggered chamber").mean() > 0.9
 
 
 def test_the_answer_key_covers_every_kind_of_situation():

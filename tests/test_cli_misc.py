@@ -14,7 +14,8 @@ from monitor.cli import main
 from monitor.workspace import ENV_VAR, FOLDERS
 
 EXPORT_COLUMNS = ["cycle", "state", "chamber", "district", "party", "candidate", "votes", "status", "load_id",
-                  "special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner", "runoff", "decides"]
+                  "special", "seats", "contest_status", "votes_a", "votes_b", "share_a", "winner", "runoff", "decides",
+                  "position"]
 
 
 def test_init_creates_the_workspace_once(tmp_path, monkeypatch):

@@ -26,7 +26,9 @@ EXPORT_COLUMNS = ["cycle", "state", "chamber", "measure", "value", "low", "high"
 # added after the fixed columns (issue 13): why a value is undefined, then the unit's coverage and shares
 ADDED_COLUMNS = ["reason", "districts_in_measures", "districts_expected", "seats_in_measures", "seats_expected",
                  "seat_coverage", "incomplete", "expected_from", "missing_or_left_out", "vote_share_as_cast",
-                 "vote_share_after_policy", "national_vote_share_as_cast", "national_vote_share_after_policy"]
+                 "vote_share_after_policy", "national_vote_share_as_cast", "national_vote_share_after_policy",
+                 # then (issue 16) staggered chambers and the multi-member treatment
+                 "partial", "combines", "districts_treated", "seats_treated"]
 WATCH_LEADING = ["state", "chamber", "plan_id", "favours", "severity", "cycles", "measures"]
 
 

@@ -398,15 +398,29 @@ def test_on_the_sample_history_coverage_agrees_with_the_measures_and_the_nationa
     m = measures_export(db)
     share = m[m["measure"] == "vote_share"]
     np.testing.assert_allclose(share["value"], share["vote_share_after_policy"], rtol=0, atol=1e-12)
+    # every seat in the measures is one district row of the measures (a numbered seat is one)
     districts = m[m["measure"] == "districts"]
-    assert (districts["value"] == districts["districts_in_measures"]).all()
-    # the one two-member district of the sample (Hathermoor's state house, README "States and seats")
-    # is the only thing left out: every incomplete unit is HH state_lower with 58 of 60 seats measured
+    assert (districts["value"] == districts["seats_in_measures"]).all()
+    # what is left out of the sample (README "States and seats"): the two-member districts (HH's
+    # district 007, every district of EK and OD) under the default treatment; the staggered
+    # senates' per-cycle units lack the class not up, which their whole-chamber units hold
     cover = stored_coverage(db)
-    incomplete = cover.units[cover.units["incomplete"] == 1]
-    assert set(zip(incomplete["state"], incomplete["chamber"])) == {("HH", "state_lower")}
-    assert set(cover.gaps["reason"]) == {"multi-member contest (2 seats)"}
-    assert (incomplete["seats_measured"] == 58).all() and (incomplete["seats_stored"] == 60).all()
+    units = cover.units
+    incomplete = units[(units["incomplete"] == 1) & (units["partial"] == 0)]
+    assert set(zip(incomplete["state"], incomplete["chamber"])) == {
+        ("HH", "state_lower"), ("EK", "state_lower"), ("OD", "state_lower")}
+    left_out = cover.gaps[cover.gaps["gap"] == "left out"]
+    assert set(left_out["reason"]) == {"multi-member contest (2 seats)"}
+    hh = incomplete[incomplete["state"] == "HH"]
+    assert (hh["seats_measured"] == 58).all() and (hh["seats_stored"] == 60).all()
+    assert (incomplete[incomplete["state"] != "HH"]["seat_coverage"] == 0).all()
+    # HY's numbered seats: 40 districts, 80 seats, all in the measures
+    hy = units[(units["state"] == "HY") & (units["chamber"] == "state_lower")]
+    assert len(hy) == 27 and (hy["districts_stored"] == 40).all() and (hy["seats_measured"] == 80).all()
+    assert (hy["incomplete"] == 0).all()
+    halves = units[units["partial"] == 1]
+    assert set(halves["chamber"]) == {"state_upper"} and len(halves) == 7 * 27
+    assert set(cover.gaps["gap"]) == {"left out", "not up"}
     # the national shares of export measures are the national table's (as cast and after the policy)
     national = export(db, "national").set_index(["cycle", "chamber"])
     shares = national_shares(cover.units).set_index(["cycle", "chamber"]).reindex(national.index)

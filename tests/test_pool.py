@@ -34,7 +34,7 @@ from monitor.pool import (
     robust_z,
     simulate_delegations,
 )
-from monitor.pool.sampler import _inverse_cdf
+from monitor.pool.sampler import _inverse_cdf, guide_table
 from monitor.pool.seats import _weighted_midrank, _weighted_quantile
 
 Z_MAX = 4.0
@@ -442,8 +442,15 @@ def test_inverse_cdf_sampler_matches_searchsorted():
     q[-5:] = 0.0
     cdf = np.cumsum(q)
     cdf /= cdf[-1]
-    guide = np.searchsorted(cdf, np.arange(cdf.size) / cdf.size, side="right")
-    u = np.r_[g.random(200_000), 0.0, np.nextafter(1.0, 0.0), cdf[:50]].reshape(-1, 3)
+    guide = guide_table(cdf)
+    assert guide.size & (guide.size - 1) == 0 and guide.size >= 16 * cdf.size
+    np.testing.assert_array_equal(guide, np.searchsorted(cdf, np.arange(guide.size) / guide.size, side="right"))
+    # slot edges k/K and their neighbours are where a rounding slip would show
+    edges = np.arange(guide.size) / guide.size
+    u = np.r_[g.random(200_000), 0.0, np.nextafter(1.0, 0.0), cdf[:-1], np.nextafter(cdf[:-1], 0.0),
+              edges, np.nextafter(edges[1:], 0.0)]
+    u = u[u < 1.0]  # uniforms lie in [0, 1)
+    u = u[: u.size // 3 * 3].reshape(-1, 3)
     j = _inverse_cdf(cdf, guide, u)
     np.testing.assert_array_equal(j, np.searchsorted(cdf, u, side="right"))
     assert (q[j] > 0).all()

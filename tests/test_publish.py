@@ -37,6 +37,7 @@ from monitor.publish import formats as F
 from monitor.publish import pages as PG
 from monitor.publish import paths as P
 from monitor.curves import seats_votes_curves
+from monitor.publish.reuse import MANIFEST
 from monitor.publish.serve import make_server
 from monitor.publish.views import Views
 
@@ -494,7 +495,7 @@ def test_failed_render_leaves_the_previous_site_whole(fx, site, monkeypatch):
 
     monkeypatch.setattr(Views, "state", failing)
     with pytest.raises(RuntimeError, match="midway"):
-        build(fx.db, fx.config, out)
+        build(fx.db, fx.config, out, full=True)  # every page rendered (nothing changed since the last build)
     assert calls["n"] == 3
     assert snapshot(out) == before
     assert not _leftovers(out)
@@ -563,7 +564,8 @@ def test_correcting_one_state_rewrites_only_its_pages_and_the_national_ones(tmp_
             assert after[page] == before[page]
         # the methods page lists every load in its footer, so a new load changes it too
         national = {P.HOME, P.STATES, P.CYCLES, P.WATCH, P.DOWNLOADS, P.FEED, P.METHODS, P.cycle_page(2022)}
-        assert changed - lu <= national | {p for p in after if p.startswith("downloads/")}
+        # and the record of every page's inputs (monitor.publish.reuse.MANIFEST) says what changed
+        assert changed - lu <= national | {p for p in after if p.startswith("downloads/")} | {MANIFEST}
         assert P.cycle_page(2016) not in changed
         assert not {p for p in changed if p.startswith("assets/")}
         assert {P.HOME, P.cycle_page(2022), "downloads/results.csv"} <= changed

@@ -60,7 +60,7 @@ def _run_generator(out: Path, *extra: str) -> None:
 
 
 def _read(path: Path) -> pd.DataFrame:
-    return pd.read_csv(path, dtype={"district": str, "candidate": str, "party": str, "state": str},
+    return pd.read_csv(path, dtype={"district": str, "candidate": str, "party": str, "state": str, "position": str},
                        keep_default_na=False)
 
 
@@ -76,8 +76,9 @@ def results() -> pd.DataFrame:
 
 @pytest.fixture(scope="module")
 def contests(results) -> pd.DataFrame:
-    """One row per contest: votes of a and b, seats, candidates per major party."""
-    keys = ["cycle", "state", "chamber", "district"]
+    """One row per contest (a numbered seat is a contest of its own): votes of a and b, seats,
+    candidates per major party."""
+    keys = ["cycle", "state", "chamber", "district", "position"]
     frame = results.assign(va=results.votes.where(results.code == "a", 0),
                            vb=results.votes.where(results.code == "b", 0))
     out = frame.groupby(keys).agg(va=("va", "sum"), vb=("vb", "sum"), seats=("seats", "first"),
@@ -146,10 +147,45 @@ def test_at_large_code_only_in_single_seat_states(contests):
 
 def test_state_houses(contests):
     houses = contests[contests.chamber == gen.STATE_LOWER]
-    assert 6 <= houses.state.nunique() <= 10
+    assert houses.state.nunique() == 11
     seats = houses.groupby(["cycle", "state"]).seats.sum()
     assert seats.between(40, 121).all()
     assert (seats.groupby(level="state").nunique() == 1).all()
+    # two houses of two-member districts (block voting), one of two numbered seats per district
+    districts = houses.groupby(["state", "district"]).agg(seats=("seats", "max"), positions=("position", "nunique"))
+    by_state = districts.groupby(level="state").agg(seats=("seats", "min"), positions=("positions", "min"))
+    assert sorted(by_state.index[by_state.seats == 2]) == sorted(gen.BLOCK_VOTING)
+    assert sorted(by_state.index[by_state.positions == 2]) == sorted(gen.NUMBERED_SEATS)
+    assert (houses[houses.position != ""].seats == 1).all()
+    assert set(houses.position) == {"", *gen.POSITIONS}
+
+
+def test_block_voting_houses_split_seats_and_concede_some(contests):
+    """In the two-member districts the parties sometimes split the seats, and in safe districts the
+    weaker party sometimes runs one candidate (conceding a seat) or none."""
+    block = contests[(contests.chamber == gen.STATE_LOWER) & contests.state.isin(list(gen.BLOCK_VOTING))]
+    assert (block.seats == 2).all()
+    assert ((block.cands_a == 2) & (block.cands_b == 2)).mean() > 0.7
+    assert ((block.cands_a == 1) | (block.cands_b == 1)).sum() >= 50
+    assert ((block.cands_a == 0) | (block.cands_b == 0)).sum() >= 20
+
+
+def test_state_senates_are_staggered_in_two_classes(results, plans):
+    """Every seat in the first cycle of a plan, then the odd-numbered and the even-numbered
+    districts alternately: the last two cycles of a plan elect every seat once."""
+    senates = results[results.chamber == gen.STATE_UPPER]
+    assert sorted(senates.state.unique()) == sorted(gen.STATE_UPPER_SIZES)
+    elected = senates.groupby(["state", "cycle"]).district.unique()
+    upper = plans[plans.chamber == gen.STATE_UPPER]
+    for (state, cycle), codes in elected.items():
+        plan = upper[(upper.state == state) & (upper.first_cycle <= cycle) & (cycle <= upper.last_cycle)].iloc[0]
+        size = gen.STATE_UPPER_SIZES[state]
+        numbers = sorted(int(c) for c in codes)
+        if cycle == plan.first_cycle:
+            assert numbers == list(range(1, size + 1)), (state, cycle)
+        else:
+            parity = 1 if (cycle - plan.first_cycle) % 4 == 2 else 0
+            assert numbers == [n for n in range(1, size + 1) if n % 2 == parity], (state, cycle)
 
 
 def test_every_unit_has_exactly_one_plan_in_force(contests, plans):
@@ -249,6 +285,7 @@ def test_readme_names_every_plan_of_the_answer_key(key):
 # --- contests ----------------------------------------------------------------------------------
 def test_uncontested_share_near_one_in_ten(contests):
     single = contests[contests.seats == 1]
+    assert single.position.isin(["", *gen.POSITIONS]).all()
     uncontested = (single.va == 0) != (single.vb == 0)
     assert 0.05 <= uncontested.mean() <= 0.15
     assert not ((single.va == 0) & (single.vb == 0)).any()  # a major party runs everywhere
@@ -256,7 +293,7 @@ def test_uncontested_share_near_one_in_ten(contests):
 
 def test_rows_are_loadable_contests(results, contests):
     assert (results.votes >= 0).all() and (contests.votes > 0).all()
-    assert not results.duplicated(["cycle", "state", "chamber", "district", "party", "candidate"]).any()
+    assert not results.duplicated(["cycle", "state", "chamber", "district", "position", "party", "candidate"]).any()
     assert (results.candidate != "").all()
     assert set(results.writein) == {0, 1}
     assert set(results[results.writein == 1].party) == {gen.WRITE_IN}
@@ -265,14 +302,15 @@ def test_rows_are_loadable_contests(results, contests):
 def test_multi_member_district_elects_two(results, contests):
     multi = contests[contests.seats > 1]
     assert len(multi) >= 1 and (multi.chamber == gen.STATE_LOWER).all() and (multi.seats == 2).all()
-    assert ((multi.cands_a + multi.cands_b) >= 3).all()
+    hh = multi[multi.state == gen.MULTI_MEMBER[0]]
+    assert set(hh.district) == {gen.MULTI_MEMBER[2]} and ((hh.cands_a + hh.cands_b) >= 3).all()
     assert (results[results.seats > 1].groupby(["cycle", "state", "district"]).seats.nunique() == 1).all()
 
 
 def test_fusion_candidate_on_two_party_a_lines(results):
     config = tomllib.loads((SAMPLE / "levelfield.toml").read_text(encoding="utf-8"))
     labels_a = config["parties"]["a"]["labels"]
-    lines = results.groupby(["cycle", "state", "chamber", "district", "candidate"]).party.agg(frozenset)
+    lines = results.groupby(["cycle", "state", "chamber", "district", "position", "candidate"]).party.agg(frozenset)
     fused = lines[lines.map(len) > 1]
     assert len(fused) >= 1
     assert fused.index.get_level_values("candidate").nunique() == 1  # one fusion candidate

@@ -102,7 +102,7 @@ def _unit(conn, load_id, previous=None, votes=10) -> int:
         queries.ensure_keys(conn, table, column, [value])
     unit_id = queries.insert_unit(conn, key, load_id, "certified", f"hash{votes}", previous)
     contest_id = queries.next_id(conn, "contests")
-    queries.insert_contests(conn, [(contest_id, unit_id, "1", 1, 0, 0, "uncontested", 1, None, 0)])
+    queries.insert_contests(conn, [(contest_id, unit_id, "1", 1, 0, 0, "uncontested", 1, None, 0, "")])
     queries.insert_votes(conn, [(contest_id, "Harbour", "a", "Maren Olvas", votes, 0, 2)])
     return unit_id
 

@@ -1,6 +1,7 @@
 """Which contest decides a seat when a file holds more than one for it.
 
-A seat is (cycle, state, chamber, district). Its contests differ by kind: ``general`` (the
+A seat is (cycle, state, chamber, district, position): a district's numbered seats (positions)
+are seats of their own, each decided by its own contests. Its contests differ by kind: ``general`` (the
 regular election, first or only round), ``runoff`` (the regular runoff after a first round),
 ``special`` and ``special runoff``. Every contest is stored; exactly one per seat decides it
 and enters the measures, the others stay as history with the reason they were left out.
@@ -84,12 +85,17 @@ def _order(value: object, where: str, problems: list[str]) -> tuple[str, ...]:
     return tuple(out)
 
 
+def seat_of(key: tuple) -> tuple:
+    """The seat of a contest key: (cycle, state, chamber, district, position)."""
+    return (*key[:4], key[6] if len(key) > 6 else "")
+
+
 def decide(contests: Iterable[tuple], rules: DecidingRules) -> dict[tuple, str | None]:
-    """For each contest key ``(cycle, state, chamber, district, special, runoff)``: ``None`` when
-    it decides its seat, else why it does not (in words, naming what decides instead)."""
+    """For each contest key ``(cycle, state, chamber, district, special, runoff, position)``: ``None``
+    when it decides its seat, else why it does not (in words, naming what decides instead)."""
     seats: dict[tuple, dict[str, tuple]] = {}
     for key in contests:
-        seats.setdefault(tuple(key[:4]), {})[kind_of(key[4], key[5])] = key
+        seats.setdefault(seat_of(key), {})[kind_of(key[4], key[5])] = key
     out: dict[tuple, str | None] = {}
     for seat, kinds in seats.items():
         order, origin = rules.order_for(seat[1])

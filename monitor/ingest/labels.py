@@ -74,7 +74,7 @@ def recode(conn: sqlite3.Connection, labels: dict[str, str]) -> int | None:
     for unit_id, part in stored.groupby("unit_id", sort=True):
         digests.append((content_hash(part[["district", "special", "seats", "party", "party_code", "candidate",
                                            "votes", "writein", "certification", "runoff", "decides",
-                                           "placeholder"]].itertuples(index=False)),
+                                           "placeholder", "position"]].itertuples(index=False)),
                         int(unit_id)))
     queries.set_unit_digest(conn, digests)
     return len(changed)

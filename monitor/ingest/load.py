@@ -21,7 +21,7 @@ import sqlite_utils
 from monitor.config import Config, normalise_label
 from monitor.errors import DataError, Problem, UsageError
 from monitor.ingest import labels as L
-from monitor.ingest.deciding import DecidingRules, decide, kind_of
+from monitor.ingest.deciding import DecidingRules, decide, kind_of, seat_of
 from monitor.ingest.fields import shown
 from monitor.ingest.lines import combine_repeated_lines, mark_placeholders, sum_candidate_lines
 from monitor.ingest.mapping import Mapping, parse_mapped, quiet_labels
@@ -211,15 +211,15 @@ def _decide(records: list[Record], rules: DecidingRules, skipped: _BadContests) 
     loaded = {rec.contest for rec in records}
     if not skipped:
         return decide(loaded, rules)
-    seats = {key[:4] for key in loaded}
-    ghosts = {(*seat, special, runoff): row for seat in seats for special in (False, True) for runoff in (False, True)
-              if (*seat, special, runoff) not in loaded
-              and (row := skipped.row_for((*seat, special, runoff))) is not None}
+    seats = {seat_of(key) for key in loaded}
+    ghosts = {key: row for seat in seats for special in (False, True) for runoff in (False, True)
+              if (key := (*seat[:4], special, runoff, seat[4])) not in loaded
+              and (row := skipped.row_for(key)) is not None}
     out = decide(loaded | set(ghosts), rules)
     for key in loaded:
         if out[key] is None:
             continue
-        ghost = next((g for g in ghosts if g[:4] == key[:4] and out[g] is None), None)
+        ghost = next((g for g in ghosts if seat_of(g) == seat_of(key) and out[g] is None), None)
         if ghost is not None:
             out[key] = (f"the {kind_of(ghost[4], ghost[5])} contest would decide this seat but was "
                         f"skipped (row {ghosts[ghost]} has a problem): no contest decides this seat")
@@ -289,13 +289,14 @@ def _group_units(records: list[Record]) -> dict[tuple, list[Record]]:
 
 def _content_hash(records: list[Record], decisions: dict[tuple, str | None]) -> str:
     return content_hash((r.district, r.special, r.seats, r.party, r.party_code, r.candidate, r.votes,
-                         r.writein, r.status, r.runoff, decisions[r.contest] is None, bool(r.placeholder))
+                         r.writein, r.status, r.runoff, decisions[r.contest] is None, bool(r.placeholder),
+                         r.position)
                         for r in records)
 
 
-def _local(rec: Record) -> tuple[str, bool, bool]:
-    """A contest's key within its unit: (district, special, runoff)."""
-    return (rec.district, rec.special, rec.runoff)
+def _local(rec: Record) -> tuple[str, bool, bool, str]:
+    """A contest's key within its unit: (district, special, runoff, position)."""
+    return (rec.district, rec.special, rec.runoff, rec.position)
 
 
 @dataclass
@@ -304,7 +305,7 @@ class _Unit:
 
     records: list[Record]
     digest: str
-    contest_keys: dict[tuple, int]  # (district, special, runoff) -> position in ``reduced``
+    contest_keys: dict[tuple, int]  # (district, special, runoff, position) -> row of ``reduced``
     reduced: pd.DataFrame            # one row per contest, indexed by position (with decides, left_out)
 
 
@@ -383,7 +384,7 @@ def _write(conn, raw, mapping, source, stamp, units, report: LoadReport, codes_f
         why = [None if d else w for d, w in zip(decides, reduced["left_out"].tolist())]
         queries.insert_contests(conn, [
             (cid, unit_id, ck[0], seats[ck], int(ck[1]), int(ck[2]), status[i], int(decides[i]), why[i],
-             int(placeholder[i]))
+             int(placeholder[i]), ck[3])
             for (ck, cid), i in zip(ids.items(), contest_keys.values())
         ])
         queries.insert_votes(conn, [
@@ -402,7 +403,7 @@ def _describe_changes(conn, old_unit_id: int, new: pd.DataFrame, new_keys: dict[
     """Plain-words differences between a stored unit and its re-delivery."""
     old_votes = queries.unit_votes(conn, [old_unit_id])
     old_votes["key"] = list(zip(old_votes["district"], old_votes["special"].astype(bool),
-                                old_votes["runoff"].astype(bool)))
+                                old_votes["runoff"].astype(bool), old_votes["position"]))
     old_contests = old_votes.drop_duplicates("contest_id")[["contest_id", "seats", "key", "decides"]]
     old = reduce_contests(old_votes, old_contests).set_index("contest_id")
     old["decides"] = old_contests.set_index("contest_id")["decides"].reindex(old.index).astype(bool)

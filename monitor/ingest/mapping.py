@@ -66,33 +66,11 @@ def did_you_mean(word: str, choices: Iterable[str], n: int = 1) -> str:
 
 
 def load_mapping(path: Path) -> Mapping:
-    try:
-        data = path.read_bytes()
-    except OSError as exc:
-        raise ConfigError(f"{path}: cannot read the mapping file ({exc.strerror})") from None
-    try:
-        raw = tomllib.loads(data.decode("utf-8-sig"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"{path}: not a valid TOML mapping file: {exc}") from None
+    """Read and check the mapping file at ``path``: every problem at once, as one :class:`ConfigError`."""
+    data, raw = _read_toml(path)
     problems: list[str] = []
-    for key in raw:
-        if key not in TOP_KEYS:
-            problems.append(f"unknown key {key!r}{did_you_mean(key, TOP_KEYS)}")
-    for key in TABLES:
-        if not isinstance(raw.get(key, {}), dict):
-            problems.append(f"{key} must be a table ([{key}] on its own line, then key = value lines)")
-            raw[key] = {}
-    columns = raw.get("columns", {})
-    if not isinstance(columns, dict) or not all(isinstance(v, str) and v for v in columns.values()):
-        problems.append("[columns] must map our field names to their column names (text)")
-        columns = {}
-    for ours in columns:
-        if ours not in FIELDS:
-            problems.append(f"[columns] {ours!r} is not one of our fields ({', '.join(FIELDS)})"
-                            + did_you_mean(ours, FIELDS))
-    for ours in REQUIRED_FIELDS:
-        if ours not in columns:
-            problems.append(f"[columns] needs {ours!r}")
+    _check_layout(raw, problems)
+    columns = _checked_columns(raw.get("columns", {}), problems)
     chamber = raw.get("chamber")
     if chamber is None and "chamber" not in columns:
         problems.append("give a fixed chamber = \"...\" or a [columns] chamber")
@@ -113,28 +91,8 @@ def load_mapping(path: Path) -> Mapping:
     keep = _column_lists(raw.get("keep", {}), "keep", problems)
     not_candidates = _column_lists(raw.get("not_candidates", {}), "not_candidates", problems)
     translate = _translations(raw.get("translate", {}), columns, problems)
-    placeholders = raw.get("placeholders", {})
-    for key in placeholders:
-        if key not in PLACEHOLDER_KEYS:
-            problems.append(f"[placeholders] {key!r} is not a key ({', '.join(PLACEHOLDER_KEYS)})"
-                            + did_you_mean(key, PLACEHOLDER_KEYS))
-    counts = {key: _whole_numbers(placeholders.get(key, []), f"[placeholders] {key}", problems)
-              for key in PLACEHOLDER_KEYS}
-    if any(c < 0 for c in counts["lone_counts"]):
-        problems.append("[placeholders] lone_counts must not be negative (a negative count belongs in counts)")
-    parties: dict[str, str] = {}
-    for code, labels in raw.get("parties", {}).items():
-        if code not in ("a", "b", "other"):
-            problems.append(f"[parties] {code!r}: our party codes are a, b (and other)")
-            continue
-        if not isinstance(labels, list) or not all(isinstance(v, str) for v in labels):
-            problems.append(f"[parties] {code} must be a list of labels")
-            continue
-        for label in labels:
-            key = normalise_label(label)
-            if key in parties and parties[key] != code:
-                problems.append(f"[parties] label {label!r} is listed under two codes")
-            parties[key] = code
+    counts = _placeholder_counts(raw.get("placeholders", {}), problems)
+    parties = _party_codes(raw.get("parties", {}), problems)
     exclude = raw.get("exclude", {}).get("states", [])
     if not isinstance(exclude, list) or not all(isinstance(v, str) for v in exclude):
         problems.append("[exclude] states must be a list of state codes")
@@ -154,6 +112,77 @@ def load_mapping(path: Path) -> Mapping:
         parties=parties, exclude_states={exclude_value(s) for s in exclude}, at_large=at_large,
         deciding=deciding,
     )
+
+
+def _read_toml(path: Path) -> tuple[bytes, dict]:
+    """The mapping file's bytes (for its hash) and its TOML; a :class:`ConfigError` when it
+    cannot be read or is not TOML."""
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"{path}: cannot read the mapping file ({exc.strerror})") from None
+    try:
+        raw = tomllib.loads(data.decode("utf-8-sig"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"{path}: not a valid TOML mapping file: {exc}") from None
+    return data, raw
+
+
+def _check_layout(raw: dict, problems: list[str]) -> None:
+    """Unknown top-level keys, and tables given as something else (each then read as empty)."""
+    for key in raw:
+        if key not in TOP_KEYS:
+            problems.append(f"unknown key {key!r}{did_you_mean(key, TOP_KEYS)}")
+    for key in TABLES:
+        if not isinstance(raw.get(key, {}), dict):
+            problems.append(f"{key} must be a table ([{key}] on its own line, then key = value lines)")
+            raw[key] = {}
+
+
+def _checked_columns(columns: object, problems: list[str]) -> dict[str, str]:
+    """``[columns]``: our field -> their column name, every required field present."""
+    if not isinstance(columns, dict) or not all(isinstance(v, str) and v for v in columns.values()):
+        problems.append("[columns] must map our field names to their column names (text)")
+        columns = {}
+    for ours in columns:
+        if ours not in FIELDS:
+            problems.append(f"[columns] {ours!r} is not one of our fields ({', '.join(FIELDS)})"
+                            + did_you_mean(ours, FIELDS))
+    for ours in REQUIRED_FIELDS:
+        if ours not in columns:
+            problems.append(f"[columns] needs {ours!r}")
+    return columns
+
+
+def _placeholder_counts(table: dict, problems: list[str]) -> dict[str, list[int]]:
+    """``[placeholders]``: ``counts`` and ``lone_counts``, each a list of whole numbers."""
+    for key in table:
+        if key not in PLACEHOLDER_KEYS:
+            problems.append(f"[placeholders] {key!r} is not a key ({', '.join(PLACEHOLDER_KEYS)})"
+                            + did_you_mean(key, PLACEHOLDER_KEYS))
+    counts = {key: _whole_numbers(table.get(key, []), f"[placeholders] {key}", problems)
+              for key in PLACEHOLDER_KEYS}
+    if any(c < 0 for c in counts["lone_counts"]):
+        problems.append("[placeholders] lone_counts must not be negative (a negative count belongs in counts)")
+    return counts
+
+
+def _party_codes(table: dict, problems: list[str]) -> dict[str, str]:
+    """``[parties]``: our code (a, b, other) -> their labels, turned into normalised label -> code."""
+    parties: dict[str, str] = {}
+    for code, labels in table.items():
+        if code not in ("a", "b", "other"):
+            problems.append(f"[parties] {code!r}: our party codes are a, b (and other)")
+            continue
+        if not isinstance(labels, list) or not all(isinstance(v, str) for v in labels):
+            problems.append(f"[parties] {code} must be a list of labels")
+            continue
+        for label in labels:
+            key = normalise_label(label)
+            if key in parties and parties[key] != code:
+                problems.append(f"[parties] label {label!r} is listed under two codes")
+            parties[key] = code
+    return parties
 
 
 def _column_lists(table: dict, name: str, problems: list[str]) -> dict[str, set[str]]:

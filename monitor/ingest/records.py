@@ -12,7 +12,7 @@ from monitor.ingest import fields as F
 from monitor.ingest.fields import shown
 
 FIELDS = ("cycle", "state", "chamber", "district", "party", "candidate", "votes",
-          "seats", "special", "runoff", "writein", "status")
+          "seats", "special", "runoff", "writein", "status", "position")
 
 
 @dataclass(slots=True)
@@ -33,29 +33,34 @@ class Record:
     columns: dict[str, str]  # our field -> the file's column name, for messages
     runoff: bool = False     # the runoff after a first round (False: the first or only round)
     placeholder: str = ""    # the file's placeholder count ("-1") when the count is one; votes is then 0
+    position: str = ""       # the numbered seat (position) of the district this line runs for; "" = none
 
     @property
     def unit(self) -> tuple[int, str, str]:
         return (self.cycle, self.state, self.chamber)
 
     @property
-    def contest(self) -> tuple[int, str, str, str, bool, bool]:
-        return (self.cycle, self.state, self.chamber, self.district, self.special, self.runoff)
+    def contest(self) -> tuple[int, str, str, str, bool, bool, str]:
+        """(cycle, state, chamber, district, special, runoff, position)."""
+        return (self.cycle, self.state, self.chamber, self.district, self.special, self.runoff, self.position)
 
     @property
-    def seat(self) -> tuple[int, str, str, str]:
-        return (self.cycle, self.state, self.chamber, self.district)
+    def seat(self) -> tuple[int, str, str, str, str]:
+        """(cycle, state, chamber, district, position): a numbered seat is a seat of its own."""
+        return (self.cycle, self.state, self.chamber, self.district, self.position)
 
     def copy(self) -> "Record":
         return Record(**{f: getattr(self, f) for f in Record.__slots__})
 
 
 def describe_contest(cycle, state: str, chamber: str, district: str, special: bool = False,
-                     runoff: bool = False) -> str:
+                     runoff: bool = False, position: str | None = "") -> str:
     """How every contest-level message names a contest: ``district '3' (special runoff), QV
-    federal 2024`` (district, kind, state, chamber and cycle)."""
+    federal 2024`` (district, kind, state, chamber and cycle); a numbered seat is named with its
+    position: ``district '3' seat 'B', QV state_lower 2024``."""
     kind = " ".join(k for k, on in (("special", special), ("runoff", runoff)) if on)
-    return (f"district {shown(str(district))!r}" + (f" ({kind})" if kind else "")
+    seat = f" seat {shown(str(position))!r}" if position else ""
+    return (f"district {shown(str(district))!r}{seat}" + (f" ({kind})" if kind else "")
             + f", {shown(str(state))} {shown(str(chamber))} {cycle}")
 
 
@@ -85,12 +90,15 @@ def normalise_chamber(text: str) -> str:
     return text.lower()
 
 
-KEY_FIELDS = ("cycle", "state", "chamber", "district", "special", "runoff")
+#: chamber names ending with this are levelfield's whole-chamber views (:mod:`monitor.staggered`)
+RESERVED_CHAMBER_SUFFIX = "_whole"
+
+KEY_FIELDS = ("cycle", "state", "chamber", "district", "special", "runoff", "position")
 
 
 def contest_key(ctx: ParseContext, get: Callable[[str], str | None]) -> tuple:
     """What a row's cells say about its contest, parsed and normalised as :func:`parse_record`
-    does: ``(cycle, state, chamber, district, special, runoff)``, each ``None`` when its cell is unreadable
+    does: ``(cycle, state, chamber, district, special, runoff, position)``, each ``None`` when its cell is unreadable
     (so that a bad row can take every row that may belong to its contest with it)."""
 
     def cell(name: str) -> str:
@@ -107,8 +115,9 @@ def contest_key(ctx: ParseContext, get: Callable[[str], str | None]) -> tuple:
         district = "AL"
     special = F.parse_flag(cell("special"), "special")[0]
     runoff = F.parse_flag(cell("runoff"), "runoff")[0]
+    position = F.parse_text(cell("position"), "position", required=False)[0]
     return (cycle, None if state is None else normalise_state(state),
-            None if chamber is None else normalise_chamber(chamber), district, special, runoff)
+            None if chamber is None else normalise_chamber(chamber), district, special, runoff, position)
 
 
 def key_matches(pattern: tuple, key: tuple) -> bool:
@@ -118,17 +127,18 @@ def key_matches(pattern: tuple, key: tuple) -> bool:
 
 def content_hash(lines: Iterable[tuple]) -> str:
     """The content hash of a unit: lines of (district, special, seats, party, party_code,
-    candidate, votes, writein, status, runoff, decides, placeholder), in any order.
+    candidate, votes, writein, status, runoff, decides, placeholder, position), in any order.
 
-    The last three are written only where they differ from a first-round, deciding, counted
-    contest, so a unit stored before they existed keeps its hash."""
+    The last four are written only where they differ from a first-round, deciding, counted
+    contest without a numbered seat, so a unit stored before they existed keeps its hash."""
     text = sorted(
         f"{district}\x1f{int(special)}\x1f{seats}\x1f{party}\x1f{code}\x1f{candidate}"
         f"\x1f{votes}\x1f{int(writein)}\x1f{status}"
         + ("\x1frunoff" if runoff else "") + ("" if decides else "\x1fleft out")
         + ("\x1fplaceholder" if placeholder else "")
+        + (f"\x1fposition\x1f{position}" if position else "")
         for (district, special, seats, party, code, candidate, votes, writein, status, runoff, decides,
-             placeholder) in lines
+             placeholder, position) in lines
     )
     return hashlib.sha256("\n".join(text).encode()).hexdigest()
 
@@ -156,6 +166,11 @@ def parse_record(
     chamber = take("chamber", F.parse_text(cell("chamber"), "chamber", required=True))
     state = None if state is None else normalise_state(state)
     chamber = None if chamber is None else normalise_chamber(chamber)
+    if chamber is not None and chamber.endswith(RESERVED_CHAMBER_SUFFIX):
+        problems.append(Problem(ctx.file, row, F.shown(columns.get("chamber", "chamber")),
+                                f"chamber {chamber!r}: names ending in {RESERVED_CHAMBER_SUFFIX!r} are reserved for "
+                                "the whole-chamber view of a staggered chamber"))
+        chamber = None
     district = take("district", F.parse_text(cell("district"), "district", required=True))
     if district is not None and ctx.at_large is not None and district == ctx.at_large:
         district = "AL"
@@ -168,10 +183,15 @@ def parse_record(
     runoff = take("runoff", F.parse_flag(cell("runoff"), "runoff"))
     writein = take("writein", F.parse_flag(cell("writein"), "writein"))
     status = take("status", F.parse_certification(cell("status")))
+    position = take("position", F.parse_text(cell("position"), "position", required=False))
+    if position and seats is not None and seats != 1:
+        problems.append(Problem(ctx.file, row, F.shown(columns.get("seats", "seats")),
+                                f"seats {seats} with position {position!r}: a numbered seat elects one member "
+                                "(leave seats empty or 1, or leave position empty for a multi-member contest)"))
     if problems:
         return None, problems
     return (
         Record(row, cycle, state, chamber, district, party, ctx.code(party), candidate, votes,
-               seats, special, writein, status, columns, runoff, placeholder),
+               seats, special, writein, status, columns, runoff, placeholder, position),
         [],
     )

@@ -81,7 +81,7 @@ DECLARED = (
         compute=lambda u: declination_of(u.seg),
         undefined=lambda u: u.asymmetry + [(u.seg.seats_a == 0, "party a won no seat"),
                                            (u.seg.seats_a == u.n, "party b won no seat")],
-        interval=lambda seg, settings: declination_of(seg), null=declination,
+        interval=lambda seg, settings: declination_of(seg), null=declination, null_of=declination_of,
         flag=Flag("declination", null=True, short="declination"),
     ),
 )

@@ -134,7 +134,7 @@ DECLARED = (
         sign=FAVOURS_A, source="Stephanopoulos & McGhee, 82 U. Chi. L. Rev. 831 (2015); McGhee, LSQ 39 (2014)",
         summary="difference of the parties' wasted votes over all votes",
         compute=lambda u: efficiency_gap_of(u.seg), interval=lambda seg, settings: efficiency_gap_of(seg),
-        null=efficiency_gap, flag=Flag("efficiency_gap", null=True, short="efficiency gap"),
+        null=efficiency_gap, null_of=efficiency_gap_of, flag=Flag("efficiency_gap", null=True, short="efficiency gap"),
         thresholds=PROPOSED_THRESHOLDS,
     ),
     Measure(

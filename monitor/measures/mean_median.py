@@ -121,7 +121,7 @@ DECLARED = (
         p_value="two-sided normal p of z = MM / (sqrt(pi/2 - 1) s / sqrt(N))",
         summary="median minus mean of a's district shares, with its z-test p",
         compute=lambda u: (_test(u).statistic, _test(u).pvalue), undefined=_gates,
-        null=mean_median, flag=Flag("mean_median", null=True, p_value=True, short="mean-median"),
+        null=mean_median, null_of=mean_median_of, flag=Flag("mean_median", null=True, p_value=True, short="mean-median"),
     ),
     Measure(
         name="mean_median_z", order=120, label="Mean-median z", signed=True, digits=2,

@@ -135,6 +135,9 @@ class Measure:
     digits: int = 3
     interval: Callable[[Segments, Any], np.ndarray] | None = None
     null: Callable[..., np.ndarray] | None = None
+    #: ``null`` on a :class:`Segments` (``null(unit, a, b, n) == null_of(Segments(unit, a, b, n))``):
+    #: the national-pool nulls evaluate every judged measure on one shared Segments per batch
+    null_of: Callable[[Segments], np.ndarray] | None = None
     flag: Flag | None = None
     flag_of: str = ""
     headline: bool = False

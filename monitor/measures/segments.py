@@ -208,7 +208,14 @@ class Segments:
 
     @cached_property
     def sorted_share(self) -> np.ndarray:
-        """District shares sorted ascending within each unit (units stay in order)."""
+        """District shares sorted ascending within each unit (units stay in order); NaN last.
+
+        When every unit has the same number of districts (the simulated delegations of one unit
+        do) the rows of a (units, N) matrix are sorted: the same values, several times faster
+        than the general two-key sort."""
+        n = self.count
+        if self.unit.size and n.min() == n.max():
+            return np.sort(self.share.reshape(self.n_units, -1), axis=1).ravel()
         order = np.lexsort((self.share, self.unit))
         return self.share[order]
 

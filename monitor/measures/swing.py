@@ -191,7 +191,7 @@ DECLARED = (
         summary="a's seat share at 50% of the vote under uniform swing, minus one half",
         compute=lambda u: partisan_bias_of(u.seg, u.settings.swing_reference),
         interval=lambda seg, settings: partisan_bias_of(seg, settings.swing_reference),
-        null=partisan_bias, flag=Flag("partisan_bias", null=True, short="partisan bias"),
+        null=partisan_bias, null_of=partisan_bias_of, flag=Flag("partisan_bias", null=True, short="partisan bias"),
     ),
     Measure(
         name="symmetry_bias", order=160, label="Symmetry bias (band average)", signed=True, table=True,

@@ -18,6 +18,9 @@ from .seats import SeatsResult, _weighted_midrank, _weighted_quantile, expected_
 #: their flag name, with the vectorised function ``f(unit, votes_a, votes_b, n_units)`` that
 #: :func:`null_distributions` evaluates on the simulated delegations.
 NULL_MEASURES: dict[str, Callable] = {m.flag.name: m.null for m in registry.flagged() if m.flag.null}
+#: The same measures on a :class:`~monitor.measures.segments.Segments` (shared by all of them per batch).
+NULL_MEASURES_OF: dict[str, Callable] = {m.flag.name: m.null_of for m in registry.flagged()
+                                         if m.flag.null and m.null_of is not None}
 
 
 @dataclass(frozen=True)
@@ -53,26 +56,49 @@ def _default_measures() -> dict[str, Callable]:
     return dict(NULL_MEASURES)
 
 
-def _evaluate(f: Callable, d: Delegations) -> np.ndarray:
-    """``f`` on every kept draw, in chunks of about ``_CHUNK_CELLS`` district rows."""
-    out = np.empty(d.n_draws)
-    if d.n_draws == 0:
-        return out
+def _chunks(d: Delegations):
+    """(first, last) draw ranges of about ``_CHUNK_CELLS`` district rows that never mix two units."""
     size = d.n_districts[d.draw_unit]
     row_start = np.r_[0, np.cumsum(size)]
-    a, b = d.pool.votes_a, d.pool.votes_b
+    unit_end = np.cumsum(d.n_accepted)[d.draw_unit] if d.n_draws else np.zeros(0, np.int64)
     first = 0
     while first < d.n_draws:
         last = int(np.searchsorted(row_start, row_start[first] + _CHUNK_CELLS, side="right")) - 1
-        last = min(max(last, first + 1), d.n_draws)
-        r0, r1 = row_start[first], row_start[last]
-        idx = d.district[r0:r1]
+        last = min(max(last, first + 1), int(unit_end[first]))
+        yield first, last, row_start, size
+        first = last
+
+
+def _evaluate_shared(fns: Mapping[str, Callable], d: Delegations) -> dict[str, np.ndarray]:
+    """Every measure of ``fns`` (Segments forms, :data:`NULL_MEASURES_OF`) on every kept draw,
+    one Segments per chunk shared by all of them (their per-district shares, seats and sums are
+    computed once). Equal to :func:`_evaluate` of the public forms, value for value."""
+    from monitor.measures.segments import Segments
+
+    out = {name: np.empty(d.n_draws) for name in fns}
+    a, b = d.pool.votes_a, d.pool.votes_b
+    for first, last, row_start, size in _chunks(d):
+        idx = d.district[row_start[first]:row_start[last]]
+        unit = np.repeat(np.arange(last - first, dtype=np.int64), size[first:last])
+        seg = Segments(unit, a[idx], b[idx], last - first, validate=False)
+        for name, f in fns.items():
+            out[name][first:last] = f(seg)
+    return out
+
+
+def _evaluate(f: Callable, d: Delegations) -> np.ndarray:
+    """``f`` on every kept draw, in chunks of about ``_CHUNK_CELLS`` district rows that never mix
+    two units (every delegation of a chunk then has the same size, which the measures' sorting
+    exploits: :attr:`monitor.measures.segments.Segments.sorted_share`)."""
+    out = np.empty(d.n_draws)
+    a, b = d.pool.votes_a, d.pool.votes_b
+    for first, last, row_start, size in _chunks(d):
+        idx = d.district[row_start[first]:row_start[last]]
         unit = np.repeat(np.arange(last - first, dtype=np.int64), size[first:last])
         vals = np.asarray(f(unit, a[idx], b[idx], last - first), dtype=np.float64)
         if vals.shape != (last - first,):
             raise ValueError(f"measure {getattr(f, '__name__', f)!r} returned shape {vals.shape}")
         out[first:last] = vals
-        first = last
     return out
 
 
@@ -130,11 +156,15 @@ def null_distributions(
             f"observed must give exactly the measures {sorted(fns)}; got {sorted(observed)}"
         )
     out: dict[str, NullResult] = {}
+    shared = {}
+    if set(NULL_MEASURES_OF) == set(fns) and all(fns[k] is NULL_MEASURES.get(k) for k in fns):
+        # the registry's own measures: one Segments per chunk, shared
+        shared = _evaluate_shared(NULL_MEASURES_OF, d)
     for name, f in fns.items():
         obs = np.asarray(observed[name], dtype=np.float64)
         if obs.shape != (d.n_units,):
             raise ValueError(f"observed[{name!r}] must have one value per unit")
-        out[name] = _null_of(_evaluate(f, d), obs, d, alpha)
+        out[name] = _null_of(shared[name] if name in shared else _evaluate(f, d), obs, d, alpha)
     return out
 
 

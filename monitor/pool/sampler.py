@@ -157,19 +157,37 @@ def _solve_tilt(y: np.ndarray) -> float:
     return float(brentq(mean_tilted, lo, hi, xtol=1e-12, rtol=1e-12))
 
 
+#: Guide-table slots per pool district (rounded up to a power of two): with many slots per
+#: district almost every draw is resolved by one table look-up.
+GUIDE_SLOTS = 16
+_GUIDE_MAX = 1 << 24
+
+
+def guide_table(cdf: np.ndarray) -> np.ndarray:
+    """The guide table of :func:`_inverse_cdf` for ``cdf``: ``K`` slots (a power of two, about
+    ``GUIDE_SLOTS`` per entry of ``cdf``), ``guide[k] = min{i : cdf[i] > k/K}``.
+
+    Built without a search: ``cdf[i] <= k/K`` exactly when ``ceil(K cdf[i]) <= k`` (``K cdf[i]``
+    is exact, ``K`` being a power of two), so ``guide[k]`` counts the entries with
+    ``ceil(K cdf[i]) <= k``."""
+    size = min(_GUIDE_MAX, 1 << max(1, int(np.ceil(np.log2(max(cdf.size, 1) * GUIDE_SLOTS)))))
+    slot = np.minimum(np.ceil(cdf * size), size).astype(np.int64)
+    return np.cumsum(np.bincount(slot, minlength=size + 1))[:size]
+
+
 def _inverse_cdf(cdf: np.ndarray, guide: np.ndarray, u: np.ndarray) -> np.ndarray:
     """``j = min{i : cdf[i] > u}`` for each ``u`` in [0, 1): the index sampled by inverse CDF.
 
     Same result as ``np.searchsorted(cdf, u, side="right")`` (so the law is exactly the one
     ``cdf`` encodes; zero-probability entries are never returned), found faster with a guide
-    table (``guide[k] = min{i : cdf[i] > k/M}``, Devroye 1986, "Non-Uniform Random Variate
-    Generation", ch. III, indexed search; from memory): start at the guide entry just below
-    ``u`` and step forward.  ``cdf`` must end in exactly 1.0.
+    table (:func:`guide_table`; Devroye 1986, "Non-Uniform Random Variate Generation",
+    ch. III, indexed search; from memory): start at the guide entry of ``u``'s slot and step
+    forward. The table has a power-of-two size ``K``, so ``floor(u K)`` is exact and the guide
+    entry never lies past the answer. ``cdf`` must end in exactly 1.0.
     """
     shape, u = u.shape, u.ravel()
-    m = cdf.size
-    k = np.minimum((u * m).astype(np.int64), m - 1)
-    j = guide[np.maximum(k - 1, 0)]  # one slot lower: safe against rounding in u * m
+    k = (u * guide.size).astype(np.int64)
+    j = guide[k]
     todo = np.flatnonzero(cdf[j] <= u)
     while todo.size:
         j[todo] += 1
@@ -342,14 +360,17 @@ def _draw_unit(pool: NationalPool, eligible: np.ndarray, N: int, v: float, tol: 
     seat = pool.seat_a[eligible]
     cdf = np.cumsum(q)
     cdf /= cdf[-1]
-    guide = np.searchsorted(cdf, np.arange(cdf.size) / cdf.size, side="right")
+    guide = guide_table(cdf)
     rows = max(1, _CHUNK_CELLS // N)
     kept_j, kept_logw, kept_share, kept_seats = [], [], [], []
     got = done = 0
     while got < accepted and done < max_draws:
-        # size the batch from the acceptance seen so far (the first guesses 1 in 4)
-        rate = got / done if got else (0.25 if done == 0 else 0.5 / done)
-        want = int(np.ceil(1.2 * (accepted - got) / rate)) + 64
+        # size the batch from the acceptance seen so far (the first guesses 1 in 2, so that a unit
+        # whose draws mostly land in the window does not make many it will not use). The draws do
+        # not depend on the batch sizes: each is the next row of the unit's stream, and the unit
+        # stops at its accepted-th kept draw
+        rate = got / done if got else (0.5 if done == 0 else 0.5 / done)
+        want = int(np.ceil(1.1 * (accepted - got) / rate)) + 64
         r = min(rows, max_draws - done, want)
         j = _inverse_cdf(cdf, guide, rng.random((r, N)))
         sh = a[j].sum(axis=1) / n[j].sum(axis=1)

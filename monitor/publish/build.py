@@ -41,6 +41,7 @@ from monitor.publish import paths as P
 from monitor.publish.collect import collect
 from monitor.publish.feed import warnings as feed_warnings
 from monitor.publish.pages import iter_site, static_assets
+from monitor.publish.reuse import KEPT, MANIFEST, Parts, Reuse
 from monitor.publish.runtime import RUNTIME_PATH, vega_runtime
 
 try:
@@ -83,10 +84,12 @@ class BuildReport:
 
 
 def build(source, config: Config | None = None, out: str | Path | None = None, *,
-          templates: Sequence[str | Path] = (), _own: bool = False) -> BuildReport:
+          templates: Sequence[str | Path] = (), full: bool = False, _own: bool = False) -> BuildReport:
     """Build the site from ``source`` (a :class:`~monitor.workspace.Workspace` or a store
     database) into ``out`` (default: the workspace's ``public/``).
 
+    A state or cycle page, or a download, whose inputs are those of the previous build's file
+    (:mod:`monitor.publish.plan`) is kept, not rendered again; ``full`` renders every file.
     ``templates``: folders searched before the built-in templates (overrides).
     """
     db, config, out, own = _resolve(source, config, out)
@@ -96,13 +99,16 @@ def build(source, config: Config | None = None, out: str | Path | None = None, *
     with _lock(out):
         data = collect(db, config)
         previous = _previous_feed(out)
+        reuse = Reuse(out, full=full)
 
         def files():
-            yield from iter_site(data, templates, previous)
+            yield from iter_site(data, templates, reuse=reuse, previous_feed=previous)
             yield from static_assets().items()
             yield RUNTIME_PATH, vega_runtime(out / RUNTIME_PATH)
+            yield MANIFEST, reuse.manifest()  # last: every page and download has recorded its inputs
 
-        report = write_site(files(), out, unmarked_ok=own)
+        report = write_site(files(), out, unmarked_ok=own, reuse=reuse)
+        reuse.prune()
     report.site_time = data.site_time
     report.warnings = feed_warnings(data)
     return report
@@ -142,14 +148,15 @@ def check_output(out: Path, store: Path | None = None, *, unmarked_ok: bool = Fa
 
 
 def build_site(ws, *, db: sqlite_utils.Database | None = None, config: Config | None = None,
-               out: str | Path | None = None, templates: Sequence[str | Path] = ()) -> BuildReport:
+               out: str | Path | None = None, templates: Sequence[str | Path] = (),
+               full: bool = False) -> BuildReport:
     """:func:`build` for a workspace, reusing an open store and config when given (the
     recompute chain calls this after the flags)."""
     if db is None:
-        return build(ws, config, out, templates=templates)
+        return build(ws, config, out, templates=templates, full=full)
     public = ws.folder("public")
     out = Path(out) if out else public
-    return build(db, config or ws.config(), out, templates=templates,
+    return build(db, config or ws.config(), out, templates=templates, full=full,
                  _own=out.absolute() == public.absolute())
 
 
@@ -199,10 +206,14 @@ def _same(old: Path, content: bytes) -> bool:
 
 
 def write_site(files: Mapping[str, bytes] | Iterable[tuple[str, bytes]], out: Path, *,
-               unmarked_ok: bool = False) -> BuildReport:
-    """Write ``files`` (a mapping, or ``(path, bytes)`` pairs consumed one at a time) as the new
+               unmarked_ok: bool = False, reuse: Reuse | None = None) -> BuildReport:
+    """Write ``files`` (a mapping, or ``(path, content)`` pairs consumed one at a time) as the new
     content of ``out``: into a temp folder beside it, reusing unchanged files of the previous
-    build, then swap. On any error the temp folder is removed and ``out`` is left as it was."""
+    build, then swap. On any error the temp folder is removed and ``out`` is left as it was.
+
+    ``content`` is bytes, :data:`~monitor.publish.reuse.KEPT` (the previous build's file, whose
+    inputs did not change: hard-linked without being read) or :class:`~monitor.publish.reuse.Parts`
+    (written part by part; ``reuse`` records its size and hash)."""
     out = Path(out).absolute()
     check_output(out, unmarked_ok=unmarked_ok)
     out.parent.mkdir(parents=True, exist_ok=True)
@@ -220,6 +231,16 @@ def write_site(files: Mapping[str, bytes] | Iterable[tuple[str, bytes]], out: Pa
             dest = tmp.joinpath(*rel.parts)
             dest.parent.mkdir(parents=True, exist_ok=True)
             old = out.joinpath(*rel.parts)
+            if content is KEPT:
+                report.total_bytes += old.stat().st_size
+                _reuse(old, dest)
+                report.unchanged.append(path)
+                continue
+            if isinstance(content, Parts):
+                _write_parts(old, dest, content, report, path)
+                if reuse is not None:
+                    reuse.wrote(path, content.size, content.sha256)
+                continue
             report.total_bytes += len(content)
             if _same(old, content):
                 _reuse(old, dest)
@@ -239,6 +260,35 @@ def write_site(files: Mapping[str, bytes] | Iterable[tuple[str, bytes]], out: Pa
         raise
     shutil.rmtree(tmp, ignore_errors=True)  # after the swap: the previous site
     return report
+
+
+def _write_parts(old: Path, dest: Path, content: Parts, report: BuildReport, path: str) -> None:
+    """Write a file part by part; when it turns out byte-identical to the previous build's, link
+    that one instead (same inode and mtime, as for any unchanged file)."""
+    with open(dest, "wb") as fh:
+        for part in content:
+            fh.write(part)
+    report.total_bytes += content.size
+    try:
+        same = old.is_file() and old.stat().st_size == content.size and _sha256(old) == content.sha256
+    except OSError:
+        same = False
+    if same:
+        dest.unlink()
+        _reuse(old, dest)
+        report.unchanged.append(path)
+    else:
+        report.written.append(path)
+
+
+def _sha256(path: Path) -> str:
+    import hashlib
+
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
 
 
 def _reuse(old: Path, dest: Path) -> None:

@@ -77,7 +77,6 @@ class SiteData:
     thresholds: list[dict]
     loads: pd.DataFrame
     units: pd.DataFrame
-    contests: pd.DataFrame
     measures: pd.DataFrame
     pool: pd.DataFrame
     tails: pd.DataFrame
@@ -89,7 +88,6 @@ class SiteData:
     curves: pd.DataFrame
     curve_points: pd.DataFrame
     histogram: pd.DataFrame
-    results: pd.DataFrame
     site_time: dt.datetime
     national: pd.DataFrame = field(default_factory=pd.DataFrame)
     #: per unit: the stored coverage with the two vote shares (monitor.coverage); its gaps
@@ -104,6 +102,44 @@ class SiteData:
     state_slugs: dict[str, str] = field(default_factory=dict)
     chamber_slugs: dict[str, str] = field(default_factory=dict)
     _headline: list[str] | None = field(default=None, repr=False)
+    #: the store the heavy frames are read from when asked (contests and vote lines are read per
+    #: state chamber or per cycle, so a build never holds every contest and vote line at once)
+    db: object = field(default=None, repr=False)
+    _contests: pd.DataFrame | None = field(default=None, repr=False)
+    _results: pd.DataFrame | None = field(default=None, repr=False)
+
+    @property
+    def contests(self) -> pd.DataFrame:
+        """Every current contest with its reduction (read once, when first asked)."""
+        if self._contests is None:
+            self._contests = reduced_contests(self.db)
+        return self._contests
+
+    def contests_of(self, state: str, chamber: str, cycles=None) -> pd.DataFrame:
+        """The current contests of one state chamber (of ``cycles`` only, when given), read from the
+        store: a state page's results."""
+        if self._contests is not None:
+            c = self._contests
+            keep = (c["state"] == state) & (c["chamber"] == chamber)
+            return c[keep & c["cycle"].isin(cycles)] if cycles is not None else c[keep]
+        u = self.units
+        keep = (u["state"] == state) & (u["chamber"] == chamber)
+        if cycles is not None:
+            keep &= u["cycle"].isin(cycles)
+        return reduced_contests(self.db, unit_ids=[int(i) for i in u.loc[keep, "unit_id"]])
+
+    @property
+    def results(self) -> pd.DataFrame:
+        """Every current vote line with its contest's reduction (the results download; read once)."""
+        if self._results is None:
+            self._results = results_export(self.db)
+        return self._results
+
+    def results_of(self, cycle: int) -> pd.DataFrame:
+        """The current vote lines of one cycle (the results download, one cycle at a time)."""
+        if self._results is not None:
+            return self._results[self._results["cycle"] == cycle]
+        return results_export(self.db, cycle)
 
     @property
     def empty(self) -> bool:
@@ -228,7 +264,6 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
         thresholds=proposed_thresholds(),
         loads=frames["loads"],
         units=units,
-        contests=reduced_contests(db),
         measures=frames["measures"],
         pool=frames["pool_seats"],
         tails=frames["tails"],
@@ -240,7 +275,7 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
         curves=derived["swing_curves"],
         curve_points=derived["swing_points"],
         histogram=derived["national_histogram"],
-        results=results_export(db),
+        db=db,
         site_time=source_date_epoch() or latest_time(loaded["loaded_at"]) or EPOCH,
         national=derived["national_summary"],
         drawers=derived["national_drawers"],

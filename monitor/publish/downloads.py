@@ -18,16 +18,19 @@ from __future__ import annotations
 import csv
 import hashlib
 import io
+import itertools
 import json
 import re
 from collections.abc import Iterator
 
+import numpy as np
 import pandas as pd
 
 from monitor.exports import COVERAGE_FIELDS, EXPECTED_SEATS_FIELDS, GAP_FIELDS, KEYS, TAILS_FIELDS
 from monitor.national import HISTOGRAM_FIELDS, SUMMARY_FIELDS
 from monitor.publish import formats as F
 from monitor.publish.collect import SiteData
+from monitor.publish.reuse import KEPT, Parts
 
 #: Field types of the Table Schema spec (v1) that our schemas may use.
 FRICTIONLESS_TYPES = {"string", "number", "integer", "boolean", "object", "array", "date", "time", "datetime",
@@ -210,21 +213,52 @@ def _columns(frame: pd.DataFrame, fields) -> list[list]:
     return [frame[name].tolist() if name in frame else [None] * len(frame) for name, _, _ in fields]
 
 
-def to_csv(frame: pd.DataFrame, fields) -> bytes:
+def _csv_rows(frame: pd.DataFrame, fields) -> bytes:
+    """The CSV rows of ``frame`` (no header)."""
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow([f[0] for f in fields])
     cells = [_csv_column(col, kind) for col, (_, kind, _) in zip(_columns(frame, fields), fields)]
     writer.writerows(zip(*cells))
     return buf.getvalue().encode("utf-8")
 
 
-def to_json(frame: pd.DataFrame, fields) -> bytes:
+def _csv_header(fields) -> bytes:
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="\n").writerow([f[0] for f in fields])
+    return buf.getvalue().encode("utf-8")
+
+
+def to_csv(frame: pd.DataFrame, fields) -> bytes:
+    return _csv_header(fields) + _csv_rows(frame, fields)
+
+
+def _json_lines(frame: pd.DataFrame, fields) -> bytes:
+    """The JSON objects of ``frame``'s rows, one per line, joined by ``,\n`` (no brackets)."""
     names = [f[0] for f in fields]
     cols = [_json_column(col, kind) for col, (_, kind, _) in zip(_columns(frame, fields), fields)]
     dumps = json.JSONEncoder(ensure_ascii=False, allow_nan=False).encode
-    lines = [dumps(dict(zip(names, row))) for row in zip(*cols)]
-    return ("[\n" + ",\n".join(lines) + ("\n" if lines else "") + "]\n").encode("utf-8")
+    return ",\n".join(dumps(dict(zip(names, row))) for row in zip(*cols)).encode("utf-8")
+
+
+def to_json(frame: pd.DataFrame, fields) -> bytes:
+    return _json_file([_json_lines(frame, fields)])
+
+
+def _json_file(bodies) -> bytes:
+    return b"".join(_json_parts(bodies))
+
+
+def _json_parts(bodies):
+    """``[`` + the non-empty bodies joined by ``,\n`` + ``]``: what :func:`to_json` writes for the
+    rows of every body in turn."""
+    yield b"[\n"
+    first = True
+    for body in bodies:
+        if not body:
+            continue
+        yield body if first else b",\n" + body
+        first = False
+    yield b"]\n" if first else b"\n]\n"
 
 
 def _sha(content: bytes) -> str:
@@ -239,41 +273,105 @@ def downloads(data: SiteData, prefix: str = "downloads") -> tuple[dict[str, byte
     return files, listing
 
 
-def iter_downloads(data: SiteData, prefix: str, listing: list[dict]) -> Iterator[tuple[str, bytes]]:
+def _by_cycle(data: SiteData, spec: dict) -> dict[int, str] | None:
+    """cycle -> digest of a resource's rows of that cycle, when its rows are in cycle order (the
+    file is then made of per-cycle parts); None otherwise. The results' vote lines are not read:
+    their digest is that of the cycle's units as delivered (content, reduction, status, load)."""
+    name = spec["name"]
+    if name == "results":
+        from store.reductions import current_keys
+
+        keys = current_keys(data.db).merge(data.units[["unit_id", "certification"]], on="unit_id", how="left")
+        out: dict[int, list] = {}
+        for row in keys.itertuples(index=False):
+            out.setdefault(int(row.cycle), []).append("|".join(map(str, row)))
+        return {c: _sha("\n".join(sorted(v)).encode()) for c, v in out.items()}
+    frame = _frame(data, name)
+    if "cycle" not in frame.columns or frame.empty or frame["cycle"].isna().any() \
+            or not frame["cycle"].astype(int).is_monotonic_increasing:
+        return None
+    cols = [f[0] for f in spec["fields"] if f[0] in frame.columns]
+    hashed = pd.util.hash_pandas_object(frame[cols].astype(str), index=False).to_numpy()
+    cycles = frame["cycle"].astype(int).to_numpy()
+    out = {}
+    for c in np.unique(cycles):
+        rows = hashed[cycles == c]
+        out[int(c)] = _sha(rows.tobytes())
+    return out
+
+
+def _part_rows(data: SiteData, name: str, cycle: int) -> pd.DataFrame:
+    if name == "results":
+        return data.results_of(cycle)
+    frame = _frame(data, name)
+    return frame[frame["cycle"].astype(int) == cycle]
+
+
+def _file(data: SiteData, spec: dict, kind: str, reuse, path: str, parts: dict[int, str] | None):
+    """A download's content: bytes, KEPT (same inputs as the previous build's file) or Parts."""
+    fields = spec["fields"]
+    if reuse is None or parts is None:
+        frame = _frame(data, spec["name"])
+        return to_csv(frame, fields) if kind == "csv" else to_json(frame, fields)
+    head = _sha(repr(fields).encode())
+    if reuse.keep(path, _sha(f"{head}|{sorted(parts.items())}".encode())):
+        return KEPT
+    base = spec["name"].replace("-", "_")
+    encode = _csv_rows if kind == "csv" else _json_lines
+
+    def bodies():
+        for cycle, digest in sorted(parts.items()):
+            yield reuse.part(f"{base}.{kind}.{head[:16]}.{digest}",
+                             lambda c=cycle: encode(_part_rows(data, spec["name"], c), fields))
+
+    if kind == "csv":
+        return Parts(itertools.chain([_csv_header(fields)], bodies()))
+    return Parts(_json_parts(bodies()))
+
+
+def iter_downloads(data: SiteData, prefix: str, listing: list[dict], reuse=None) -> Iterator[tuple[str, bytes]]:
     """The download files one resource at a time (so a build never holds them all), then
-    ``datapackage.json``; each resource's entry for the downloads page is appended to ``listing``."""
+    ``datapackage.json``; each resource's entry for the downloads page is appended to ``listing``.
+
+    With ``reuse`` (:class:`monitor.publish.reuse.Reuse`), a resource whose rows are in cycle
+    order is made of per-cycle parts: a file whose parts did not change is kept from the previous
+    build, and only the parts of the cycles that changed are encoded again (the results' vote
+    lines are read one cycle at a time)."""
     resources = []
     for spec in RESOURCES:
-        frame = _frame(data, spec["name"])
         base = spec["name"].replace("-", "_")
-        csv_bytes = to_csv(frame, spec["fields"])
-        csv_path = f"{base}.csv"
-        yield f"{prefix}/{csv_path}", csv_bytes
+        parts = _by_cycle(data, spec) if reuse is not None else None
+        kinds = ("csv",) if spec["name"] in CSV_ONLY else ("csv", "json")
+        made = {}
+        for kind in kinds:
+            path = f"{prefix}/{base}.{kind}"
+            content = _file(data, spec, kind, reuse, path, parts)
+            yield path, content
+            made[kind] = _facts(content, reuse, path)
+        csv_bytes, csv_sha = made["csv"]
         schema = {"fields": [{"name": n, "type": t, "description": d} for n, t, d in spec["fields"]],
                   "missingValues": [""]}
-        resource = {
-            "name": spec["name"], "path": csv_path, "title": spec["title"],
+        resources.append({
+            "name": spec["name"], "path": f"{base}.csv", "title": spec["title"],
             "description": spec["description"] + " Text cells beginning with =, +, - or @ carry a leading "
                                                   "single quote against spreadsheet formula injection.",
             "profile": "tabular-data-resource", "format": "csv", "mediatype": "text/csv", "encoding": "utf-8",
-            "bytes": len(csv_bytes), "hash": f"sha256:{_sha(csv_bytes)}",
+            "bytes": csv_bytes, "hash": f"sha256:{csv_sha}",
             "dialect": {"delimiter": ",", "doubleQuote": True, "lineTerminator": "\n", "quoteChar": '"', "header": True},
             "schema": schema,
-        }
-        resources.append(resource)
+        })
         entry = {"name": spec["name"], "title": spec["title"], "description": spec["description"],
-                 "rows": len(frame), "csv": f"{prefix}/{csv_path}", "csv_bytes": len(csv_bytes),
-                 "csv_sha256": _sha(csv_bytes), "json": None, "json_bytes": 0}
-        if spec["name"] not in CSV_ONLY:
-            json_bytes = to_json(frame, spec["fields"])
-            yield f"{prefix}/{base}.json", json_bytes
+                 "rows": _rows(data, spec["name"]), "csv": f"{prefix}/{base}.csv", "csv_bytes": csv_bytes,
+                 "csv_sha256": csv_sha, "json": None, "json_bytes": 0}
+        if "json" in made:
+            json_bytes, json_sha = made["json"]
             resources.append({
                 "name": f"{spec['name']}-json", "path": f"{base}.json", "title": spec["title"] + " (JSON)",
                 "description": f"The rows of {base}.csv as a JSON array of objects (original text, no quote prefix).",
                 "profile": "data-resource", "format": "json", "mediatype": "application/json", "encoding": "utf-8",
-                "bytes": len(json_bytes), "hash": f"sha256:{_sha(json_bytes)}", "schema": schema,
+                "bytes": json_bytes, "hash": f"sha256:{json_sha}", "schema": schema,
             })
-            entry.update(json=f"{prefix}/{base}.json", json_bytes=len(json_bytes))
+            entry.update(json=f"{prefix}/{base}.json", json_bytes=json_bytes)
         listing.append(entry)
     package = {
         "profile": "data-package",
@@ -295,6 +393,27 @@ def iter_downloads(data: SiteData, prefix: str, listing: list[dict]) -> Iterator
         "resources": resources,
     }
     yield f"{prefix}/datapackage.json", (json.dumps(package, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
+
+
+
+
+def _facts(content, reuse, path: str) -> tuple[int, str]:
+    """Size and sha256 of a download just written (bytes, Parts) or kept from the previous build."""
+    if content is KEPT:
+        entry = reuse.now[path]
+        return int(entry["bytes"]), entry["sha256"]
+    if isinstance(content, Parts):
+        return content.size, content.sha256
+    return len(content), _sha(content)
+
+
+def _rows(data: SiteData, name: str) -> int:
+    """Rows of a resource (the results' vote lines are counted in the store, not read)."""
+    if name == "results":
+        from store.reductions import count_result_lines
+
+        return count_result_lines(data.db)
+    return len(_frame(data, name))
 
 
 def check_types(fields) -> list[str]:

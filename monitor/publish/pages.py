@@ -24,6 +24,8 @@ from monitor.publish import paths as P
 from monitor.publish.collect import SiteData
 from monitor.publish.downloads import iter_downloads
 from monitor.publish.feed import atom_feed
+from monitor.publish.plan import deliveries, digests, page_digests, page_inputs
+from monitor.publish.reuse import KEPT, Reuse
 from monitor.publish.views import Views
 
 SITE_DIR = Path(__file__).resolve().parents[2] / "site"
@@ -87,17 +89,52 @@ def _root(page: str) -> str:
 
 
 class Renderer:
-    def __init__(self, data: SiteData, env: jinja2.Environment, previous_feed: bytes | None = None):
+    def __init__(self, data: SiteData, env: jinja2.Environment, reuse: Reuse | None = None,
+                 previous_feed: bytes | None = None):
         self.data = data
         self.env = env
         self.views = Views(data)
+        self.reuse = reuse
         self.previous_feed = previous_feed
+        self.inputs: dict[str, str] = {}
+        self.delivered: dict[tuple, str] = {}
+        if reuse is not None and reuse.out is not None and not data.empty:
+            from store.reductions import current_keys
+
+            keys = current_keys(data.db)
+            self.inputs = page_digests(page_inputs(data), digests(data, keys))
+            self.delivered = deliveries(data, keys)
+
+    def kept(self, path: str) -> bool:
+        """Whether the previous build's ``path`` was made from the same inputs (then it is kept)."""
+        return self.reuse is not None and self.reuse.keep(path, self.inputs.get(path))
 
     def page(self, path: str, template: str, title: str, section: str, **context) -> tuple[str, bytes]:
         root = _root(path)
         html = self.env.get_template(template).render(
             page=path, root=root, title=title, section=section, parties=self.data.parties, **context)
         return path, html.encode("utf-8")
+
+    def results(self, state: str, chamber: str) -> list[Markup]:
+        """A state page's district results: the latest cycle's table (earlier cycles are in the
+        results download: a page holding every cycle of a large chamber would weigh megabytes).
+        The table depends only on its unit's delivery (:func:`monitor.publish.plan.deliveries`): it
+        is kept with the site's parts and rendered again only when the unit is re-delivered."""
+        units = self.data.units
+        cycles = sorted(units.loc[(units["state"] == state) & (units["chamber"] == chamber), "cycle"].astype(int),
+                        reverse=True)[:1]
+        names = {c: f"results.{self.delivered[(c, state, chamber)]}.{int(i == 0)}.html"
+                 for i, c in enumerate(cycles) if (c, state, chamber) in self.delivered}
+        html = {c: self.reuse.cached(n) for c, n in names.items()} if self.reuse is not None else {}
+        missing = [c for c in cycles if html.get(c) is None]
+        if missing:
+            template = self.env.get_template("_results_cycle.html")
+            for entry in self.views._results(state, chamber, missing):
+                c = entry["cycle"]
+                html[c] = template.render(c=entry, first=c == cycles[0], parties=self.data.parties).encode("utf-8")
+                if c in names and self.reuse is not None:
+                    self.reuse.store(names[c], html[c])
+        return [Markup(html[c].decode("utf-8")) for c in cycles if c in html]
 
     def render(self) -> Iterator[tuple[str, bytes]]:
         """Each file as soon as it is rendered, so that a build holds one page at a time."""
@@ -108,25 +145,34 @@ class Renderer:
         yield self.page(P.CYCLES, "cycles.html", "Cycles", "cycles", **v.cycles(_root(P.CYCLES)))
         for state, chamber in d.pairs():
             path = v.state_path(state, chamber)
+            if self.kept(path):
+                yield path, KEPT
+                continue
             ctx = v.state(state, chamber, _root(path))
+            ctx["results"] = self.results(state, chamber)
             yield self.page(path, "state.html", ctx["where"], "states", **ctx)
         for cycle in d.cycles:
             path = P.cycle_page(cycle)
+            if self.kept(path):
+                yield path, KEPT
+                continue
             yield self.page(path, "cycle.html", f"Cycle {cycle}", "cycles", **v.cycle(cycle, _root(path)))
         yield self.page(P.METHODS, "methods.html", "Methods", "methods", **v.methods())
         listing: list[dict] = []
-        yield from iter_downloads(d, P.DOWNLOAD_DIR, listing)
+        yield from iter_downloads(d, P.DOWNLOAD_DIR, listing, self.reuse)
         files = [{**f, "description": v.words.plain(f["description"])} for f in listing]
         yield self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=files,
                         datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
         yield P.FEED, atom_feed(d, v, P.FEED, self.previous_feed)
 
 
-def iter_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = (),
-              previous_feed: bytes | None = None) -> Iterator[tuple[str, bytes]]:
-    """Every generated page and download (not the static assets) as ``(path, bytes)``, lazily.
-    ``previous_feed``: the feed of the build this one replaces (None for a first build)."""
-    return Renderer(data, environment(extra_template_dirs), previous_feed).render()
+def iter_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = (), *,
+              reuse: Reuse | None = None, previous_feed: bytes | None = None) -> Iterator[tuple[str, bytes]]:
+    """Every generated page and download (not the static assets) as ``(path, content)``, lazily;
+    with ``reuse`` (the previous build's manifest), a state or cycle page or a download whose
+    inputs did not change comes as ``(path, KEPT)`` without being rendered. ``previous_feed``:
+    the feed of the build this one replaces (None for a first build)."""
+    return Renderer(data, environment(extra_template_dirs), reuse, previous_feed).render()
 
 
 def render_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> dict[str, bytes]:

@@ -78,7 +78,8 @@ class StatePage:
             "table": self._measure_table(state, chamber, units),
             "coverage": self._coverage(state, chamber), "min_coverage": F.share(d.min_coverage, 0),
             "vote": self._vote_headline(state, chamber),
-            "results": self._results(state, chamber),
+            # each cycle's district results: rendered by the renderer from _results, once per delivery
+            "results": [],
             "events": self._events(events, root),
             "corrections": self._corrections(state, chamber),
             "policy": d.policy,
@@ -203,13 +204,11 @@ class StatePage:
                  "basis": r.basis, "superseded": f"#{int(r.old_load_id)}"}
                 for r in c.sort_values(["load_id", "cycle"], ascending=False).itertuples()]
 
-    def _results(self, state: str, chamber: str) -> list[dict]:
-        """The district results of the latest cycle, in natural district order (1, 2, ..., 10).
-        Earlier cycles are in the results download: a page holding every cycle of a large
-        chamber would weigh megabytes."""
-        c = self.by("contests", ("state", "chamber"), (state, chamber))
+    def _results(self, state: str, chamber: str, cycles=None) -> list[dict]:
+        """Each cycle's district results (of ``cycles`` only, when given), newest first, each in
+        natural district order (1, 2, ..., 10)."""
+        c = self.d.contests_of(state, chamber, cycles)
         if len(c):
-            c = c[c["cycle"] == c["cycle"].max()]
             c = c.iloc[sorted(range(len(c)), key=lambda i: (district_key(c["district"].iloc[i]),
                                                               int(c["special"].iloc[i]), int(c["runoff"].iloc[i])))]
         out = []

@@ -382,7 +382,8 @@ class Views(StatePage, Standing):
                  "source": m.source, "signed": m.signed, "interval": m.interval is not None,
                  "p_value": w.plain(m.p_value) if m.p_value else m.p_value, "plain": w.plain(m.plain)}
                 for m in d.measure_docs]
-        settings = [{"name": s["name"], "value": _setting(s["value"]), "default": _setting(s["default"]),
+        settings = [{"name": s["name"], "value": _setting(s["value"], s["name"]),
+                     "default": _setting(s["default"], s["name"]),
                      "changed": s["value"] != s["default"], "help": w.plain(s["help"])} for s in d.settings]
         return {"docs": docs, "settings": settings, "policy": d.policy, "thresholds": d.thresholds,
                 "labels": {m.name: d.label(m.name) for m in d.measure_docs}, "provenance": self.provenance()}
@@ -392,11 +393,18 @@ def _num(value) -> str:
     return "" if F.missing(value) else repr(float(value))
 
 
-def _setting(value) -> str:
+def _setting(value, name: str = "") -> str:
     if isinstance(value, bool):
         return "true" if value else "false"
-    if isinstance(value, dict):  # coverage.expected, the one table option: chamber.STATE = count
-        return "; ".join(f"{chamber}.{state} = " + (
-            ", ".join(f"{k} {v}" for k, v in count.items()) if isinstance(count, dict) else f"{count} districts")
-            for chamber, states in value.items() for state, count in states.items()) or "none"
+    if isinstance(value, dict):  # the table options: chamber.STATE = count (coverage.expected), chamber = N or
+        # chamber.STATE = N (staggered.classes)
+        unit = " classes" if name == "staggered.classes" else " districts"
+
+        def entries(chamber, states):
+            if not isinstance(states, dict):
+                return [f"{chamber} = {states}{unit}"]
+            return [f"{chamber}.{state} = " + (", ".join(f"{k} {v}" for k, v in count.items())
+                                                if isinstance(count, dict) else f"{count}{unit}")
+                    for state, count in states.items()]
+        return "; ".join(e for chamber, states in value.items() for e in entries(chamber, states)) or "none"
     return str(value)

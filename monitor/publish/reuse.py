@@ -1,0 +1,127 @@
+"""What a build keeps from the previous one: the digest of every page's and download's inputs
+(recorded in the site, :data:`MANIFEST`, so it is swapped in with the pages it describes), and the
+encoded per-cycle parts of the downloads (a cache beside the site, ``.<site folder>-parts``, named
+by the digest of what they encode, so an entry is never stale; a build removes the parts it did
+not use).
+
+A page or download whose inputs digest equals the recorded one (and whose file is still there) is
+not rendered again: the build hard-links the previous file (:data:`KEPT`).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+
+#: the inputs digests of the build, inside the site folder
+MANIFEST = ".levelfield-inputs.json"
+
+
+class _Kept:
+    def __repr__(self) -> str:
+        return "KEPT"
+
+
+#: the content of a file the previous build wrote with the same inputs: hard-linked, not rendered
+KEPT = _Kept()
+
+
+class Parts:
+    """A file written from parts (bytes), one at a time; its size and sha256 are known once it has
+    been written (:func:`monitor.publish.build.write_site` consumes it)."""
+
+    def __init__(self, parts: Iterable[bytes]):
+        self._parts = parts
+        self.size = 0
+        self._sha = hashlib.sha256()
+        self.done = False
+
+    def __iter__(self) -> Iterator[bytes]:
+        for part in self._parts:
+            self.size += len(part)
+            self._sha.update(part)
+            yield part
+        self.done = True
+
+    @property
+    def sha256(self) -> str:
+        return self._sha.hexdigest()
+
+
+class Reuse:
+    """The previous build's manifest (``previous``) and this build's (``now``): path -> {"inputs":
+    digest, "bytes": size, "sha256": hash}; and the parts cache beside the output folder."""
+
+    def __init__(self, out: Path | None, *, full: bool = False):
+        self.out = out
+        self.previous: dict[str, dict] = {}
+        self.now: dict[str, dict] = {}
+        self.cache = None if out is None else out.parent / f".{out.name}-parts"
+        self.used: set[str] = set()
+        if out is not None and not full:
+            try:
+                self.previous = json.loads((out / MANIFEST).read_text(encoding="utf-8")).get("files", {})
+            except (OSError, ValueError, AttributeError):
+                self.previous = {}
+
+    def keep(self, path: str, inputs: str | None) -> bool:
+        """Record ``inputs`` for ``path``; True when the previous build wrote it from the same inputs
+        and its file is still there (then its size and hash are carried over)."""
+        if inputs is None:
+            return False
+        self.now[path] = {"inputs": inputs}
+        old = self.previous.get(path)
+        if self.out is None or not old or old.get("inputs") != inputs or not (self.out / path).is_file():
+            return False
+        self.now[path] = dict(old)
+        return True
+
+    def wrote(self, path: str, size: int, sha256: str) -> None:
+        if path in self.now:
+            self.now[path].update(bytes=size, sha256=sha256)
+
+    def cached(self, name: str) -> bytes | None:
+        """The cached part ``name``, or None (marked as used either way: a part asked for and then
+        made is kept)."""
+        if self.cache is None:
+            return None
+        self.used.add(name)
+        try:
+            return (self.cache / name).read_bytes()
+        except OSError:
+            return None
+
+    def store(self, name: str, data: bytes) -> None:
+        if self.cache is None:
+            return
+        self.used.add(name)
+        self.cache.mkdir(parents=True, exist_ok=True)
+        path = self.cache / name
+        tmp = path.with_suffix(path.suffix + f".{os.getpid()}.tmp")
+        tmp.write_bytes(data)
+        tmp.replace(path)
+
+    def part(self, name: str, make) -> bytes:
+        """The cached part ``name`` (a digest-derived file name), made by ``make()`` when absent."""
+        data = self.cached(name)
+        if data is None:
+            data = make()
+            self.store(name, data)
+        return data
+
+    def manifest(self) -> bytes:
+        return (json.dumps({"files": self.now}, indent=0, sort_keys=True) + "\n").encode("utf-8")
+
+    def prune(self) -> None:
+        """Remove the cached parts this build did not use (after a successful build)."""
+        if self.cache is None or not self.cache.is_dir():
+            return
+        for path in self.cache.iterdir():
+            if path.name not in self.used:
+                try:
+                    path.unlink()
+                except OSError:
+                    pass

@@ -1,0 +1,127 @@
+"""Work follows the change (issue 17): after a history, a new cycle and corrections arriving one
+after another, each followed by the incremental chain (only the changed units re-reduced and
+re-measured, only their groups' national pool redrawn, only the changed aggregates recomputed),
+the store equals a from-scratch recompute (``levelfield verify``), and the incremental chain did
+less work than a full one.
+
+The data is the benchmark's invented federation at a tiny size (bench/synthetic.py: 3 states,
+2 cycles and a new one); nothing here is a check value from outside: the reference is the
+project's own full recompute.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from bench import scenarios, synthetic
+from monitor import pipeline
+from monitor.ingest.load import load_file
+from monitor.publish import build
+from monitor.publish.reuse import MANIFEST
+from monitor.verify import verify_store
+from monitor.workspace import Workspace
+
+
+@pytest.fixture(scope="module")
+def history(tmp_path_factory):
+    root = tmp_path_factory.mktemp("incremental")
+    data = root / "data"
+    summary = synthetic.generate(data, states=3, cycles=2, new_cycles=1)
+    ws = Workspace(root / "ws")
+    ws.ensure()
+    (ws.root / "levelfield.toml").write_text((data / "levelfield.toml").read_text(), encoding="utf-8")
+    db, config = ws.open_store(), ws.config()
+    files = [Path(p) for p in summary["files"]]
+    for path in files[:2]:
+        load_file(db, path, config)
+    pipeline.prepare(db, config)
+    pipeline.recompute(db, config)
+    return {"root": root, "ws": ws, "db": db, "config": config, "files": files}
+
+
+def _arrive(h, path: Path) -> pipeline.RefreshReport:
+    load_file(h["db"], path, h["config"])
+    pipeline.prepare(h["db"], h["config"])
+    return pipeline.recompute(h["db"], h["config"])
+
+
+def _files(folder: Path) -> dict[str, bytes]:
+    return {p.relative_to(folder).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*"))
+            if p.is_file() and p.name != MANIFEST}
+
+
+def _republish_equals_a_full_build(h, label: str):
+    """The incremental republish (pages and downloads whose inputs changed) gives the bytes of a
+    build that renders everything; returns the incremental build's report."""
+    report = build(h["db"], h["config"], h["root"] / "public")
+    full = build(h["db"], h["config"], h["root"] / f"full-{label}", full=True)
+    assert _files(h["root"] / "public") == _files(h["root"] / f"full-{label}")
+    assert full.written and not full.unchanged
+    return report
+
+
+def test_a_new_cycle_then_corrections_equal_a_full_recompute(history):
+    h = history
+    build(h["db"], h["config"], h["root"] / "public")
+    new_cycle = _arrive(h, h["files"][2])
+    assert new_cycle.measures_computed == 9  # the new cycle's 3 states x 3 chambers, nothing else
+    assert new_cycle.groups_computed == 3    # its three (cycle, chamber) groups
+    assert not verify_store(h["db"], h["config"])
+    site = _republish_equals_a_full_build(h, "new-cycle")
+    assert "cycle/1972.html" in site.unchanged  # the first cycle's page did not change
+    # a correction of the new cycle, then one of an earlier cycle (the previous cycle's unit is
+    # what the coverage of the next cycle of the same plan is measured against)
+    for source, state, chamber in ((h["files"][2], None, "state_lower"), (h["files"][0], None, "federal")):
+        path, state, chamber = scenarios.corrected_file(source, h["root"] / f"fix-{source.stem}.csv", state=state,
+                                                        chamber=chamber)
+        report = _arrive(h, path)
+        assert report.measures_computed == 1  # only the corrected unit is measured again
+        assert report.groups_computed == 1    # only its (cycle, chamber) national pool is redrawn
+        differences = verify_store(h["db"], h["config"])
+        assert not differences, "\n".join(map(str, differences[:20]))
+        site = _republish_equals_a_full_build(h, source.stem)
+        assert site.unchanged and site.written
+
+
+def test_nothing_changed_means_nothing_recomputed(history):
+    h = history
+    again = pipeline.recompute(h["db"], h["config"])
+    assert again.measures_computed == 0 and again.groups_computed == 0
+    assert not verify_store(h["db"], h["config"])
+
+
+def test_staggered_chambers_follow_the_change_too(tmp_path):
+    """With the state senates declared staggered (issue 16), a correction of one senate unit
+    recomputes that unit and its chamber's whole-chamber units, and nothing else; the store still
+    equals a from-scratch recompute after a new cycle and the correction."""
+    data = tmp_path / "data"
+    summary = synthetic.generate(data, states=3, cycles=2, new_cycles=1)
+    ws = Workspace(tmp_path / "ws")
+    ws.ensure()
+    toml = (data / "levelfield.toml").read_text(encoding="utf-8")
+    (ws.root / "levelfield.toml").write_text(toml + "\n[staggered]\nclasses.state_upper = 2\n", encoding="utf-8")
+    db, config = ws.open_store(), ws.config()
+    h = {"db": db, "config": config, "root": tmp_path}
+    files = [Path(p) for p in summary["files"]]
+    for path in files[:2]:
+        load_file(db, path, config)
+    pipeline.prepare(db, config)
+    pipeline.recompute(db, config)
+    build(db, config, tmp_path / "public")
+    whole = db.execute("SELECT COUNT(DISTINCT cycle || state) FROM measures WHERE chamber = 'state_upper_whole'")
+    assert whole.fetchone()[0] == 6  # 3 states x 2 cycles
+    assert not verify_store(db, config)
+    new_cycle = _arrive(h, files[2])
+    # the new cycle's 9 units, and the 2 + 1 whole-chamber units of each of the 3 senates
+    assert new_cycle.measures_computed == 9 + 9
+    assert not verify_store(db, config)
+    path, state, _ = scenarios.corrected_file(files[0], tmp_path / "fix.csv", state=None, chamber="state_upper")
+    report = _arrive(h, path)
+    assert report.measures_computed == 1 + 3  # the corrected unit and its senate's 3 whole-chamber units
+    differences = verify_store(db, config)
+    assert not differences, "\n".join(map(str, differences[:20]))
+    _republish_equals_a_full_build(h, "staggered")
+    again = pipeline.recompute(db, config)
+    assert again.measures_computed == 0 and again.groups_computed == 0
