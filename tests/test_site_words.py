@@ -309,7 +309,7 @@ def test_district_results_are_in_natural_order(fx):
     c = data.contests.copy()
     lower = c["chamber"] == "state_lower"
     c.loc[lower, "district"] = c.loc[lower, "district"].map(lambda d: str(int(d)))
-    data.contests = c.sample(frac=1, random_state=7).reset_index(drop=True)
+    data._contests = c.sample(frac=1, random_state=7).reset_index(drop=True)  # what contests_of then reads
     path = Views(data).state_path("KA", "state_lower")
     page = render_site(data)[path].decode()
     table = page.split('id="results"')[1].split("</table>")[0]
