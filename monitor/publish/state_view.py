@@ -175,7 +175,7 @@ class StatePage:
             share = r["seat_coverage"]
             g = by_cycle.get(cycle, gaps.iloc[0:0])
             rows.append({
-                "cycle": cycle, "summary": coverage_summary(r), "incomplete": int(r["incomplete"]) == 1,
+                "cycle": cycle, "summary": _whole_in_words(coverage_summary(r)), "incomplete": int(r["incomplete"]) == 1,
                 "share": F.share(share, 0),
                 "never_flagged": not F.missing(share) and float(share) < self.d.min_coverage,
                 "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats),
@@ -254,3 +254,14 @@ def applies(threshold: dict, chamber: str) -> bool:
     if "state" in text:
         return chamber != "federal"
     return True
+
+
+_WHOLE = re.compile(r"the whole chamber \(\w+_whole (\d{4}): ([\d+]+)\)")
+
+
+def _whole_in_words(text: str) -> str:
+    """A staggered chamber's coverage source without the whole-chamber unit's code:
+    ``the whole chamber (state_upper_whole 2024: 2022+2024)`` -> ``the whole chamber (its latest
+    election of every seat, 2022 and 2024)``."""
+    return _WHOLE.sub(lambda m: "the whole chamber (its latest election of every seat, "
+                                + " and ".join(m.group(2).split("+")) + ")", text)
