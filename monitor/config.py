@@ -20,9 +20,9 @@ from dataclasses import dataclass, field, make_dataclass
 from pathlib import Path
 from typing import Any, Callable
 
+from monitor.config_checks import (_base_url, _colour, _expected_counts, _labels, _staggered_classes, _state_names,
+                                    _typed)
 from monitor.errors import ConfigError
-
-_COLOUR = re.compile(r"^#[0-9a-fA-F]{6}$")
 
 
 @dataclass(frozen=True)
@@ -41,86 +41,8 @@ class Option:
 
     @property
     def name(self) -> str:
-        return f"{self.section}.{self.key}"
-
-
-def _typed(kind, *, low=None, high=None, choices=None, above=None, below=None):
-    def check(value):
-        if kind is float and isinstance(value, int) and not isinstance(value, bool):
-            value = float(value)
-        if not isinstance(value, kind) or (kind is int and isinstance(value, bool)):
-            return f"must be {kind.__name__}, got {type(value).__name__} {value!r}"
-        if choices is not None and value not in choices:
-            return f"must be one of {', '.join(map(repr, choices))}, got {value!r}"
-        if low is not None and value < low:
-            return f"must be at least {low}, got {value!r}"
-        if high is not None and value > high:
-            return f"must be at most {high}, got {value!r}"
-        if above is not None and value <= above:
-            return f"must be above {above}, got {value!r}"
-        if below is not None and value >= below:
-            return f"must be below {below}, got {value!r}"
-        return None
-
-    return check
-
-
-def _labels(value):
-    if not isinstance(value, list) or not value or not all(isinstance(v, str) and v for v in value):
-        return "must be a non-empty list of non-empty strings"
-    return None
-
-
-def _base_url(value):
-    if not isinstance(value, str):
-        return f"must be a string, got {type(value).__name__} {value!r}"
-    if value and not re.match(r"^https?://[^\s/?#]+(/[^\s?#]*)?$", value):
-        return f'must be empty or an http(s) address like "https://example.org/watch/", got {value!r}'
-    return None
-
-
-def _count(value) -> bool:
-    return isinstance(value, int) and not isinstance(value, bool) and value >= 1
-
-
-def _expected_counts(value):
-    """``{chamber: {STATE: N | {districts = N, seats = M}}}``."""
-    if not isinstance(value, dict):
-        return f"must be a table like expected.federal.QV = 12, got {value!r}"
-    for chamber, states in value.items():
-        if not isinstance(states, dict):
-            return f"has {chamber} = {states!r}: must be a table of state codes, like expected.{chamber}.QV = 12"
-        for state, count in states.items():
-            where = f"has {chamber}.{state} = {count!r}"
-            if isinstance(count, dict):
-                unknown = sorted(set(count) - {"districts", "seats"})
-                if unknown:
-                    return f"{where}: unknown key(s) {', '.join(unknown)} (districts and seats only)"
-                if "districts" not in count:
-                    return f"{where}: give districts (and, optionally, seats)"
-                if not all(_count(v) for v in count.values()):
-                    return f"{where}: districts and seats must be whole numbers of at least 1"
-            elif not _count(count):
-                return f"{where}: must be a whole number of districts (at least 1) or {{ districts = N, seats = M }}"
-    return None
-
-
-def _staggered_classes(value):
-    """``{chamber: N | {STATE: N, "*": N}}``: the classes a chamber is elected in (1 to 10)."""
-    if not isinstance(value, dict):
-        return f"must be a table like classes.state_upper = 2, got {value!r}"
-    for chamber, classes in value.items():
-        for where, n in (classes.items() if isinstance(classes, dict) else [("", classes)]):
-            if not (_count(n) and n <= 10):  # monitor.staggered.MAX_CLASSES
-                return (f"has {chamber}{'.' + where if where else ''} = {n!r}: must be a whole number of classes, "
-                        f"1 (not staggered) to 10, or a table of states like classes.{chamber} = {{ QV = 2 }}")
-    return None
-
-
-def _colour(value):
-    if not isinstance(value, str) or not _COLOUR.match(value):
-        return f'must be a colour like "#1b7f79", got {value!r}'
-    return None
+        """``section.key``; a whole-section table (``key`` empty, such as ``[states]``) is its section."""
+        return f"{self.section}.{self.key}" if self.key else self.section
 
 
 OPTIONS: list[Option] = [
@@ -289,10 +211,17 @@ OPTIONS: list[Option] = [
     ),
     Option(
         "site", "base_url", "",
-        "absolute address the published site is served from, e.g. \"https://example.org/watch/\" (optional); "
-        "when set, the Atom feed's rel=\"self\" link is absolute, as RFC 4287 recommends; when empty it is "
-        "relative, so the site works from any folder or address",
+        "absolute address the published site is served from, e.g. \"https://example.org/watch/\"; the Atom "
+        "feed's links are then absolute, so feed readers can follow them; when empty they are relative to "
+        "the feed and publish warns (the pages' own links are always relative)",
         _base_url,
+    ),
+    Option(
+        "states", "", {},
+        "state names shown on the pages beside their codes: CODE = \"name\" (codes as in the results, upper "
+        "case; a state without a name is shown by its code)",
+        _state_names,
+        example=('QV = "Quillan Vale"',),
     ),
 ]
 
@@ -399,6 +328,10 @@ class Config:
             tuple(self[f"parties.{code}.labels"]),
             self[f"parties.{code}.colour"],
         )
+
+    def state_names(self) -> dict[str, str]:
+        """State code (upper case, as stored) -> name, from the ``[states]`` table."""
+        return {code.upper(): name.strip() for code, name in self["states"].items()}
 
     def label_codes(self) -> dict[str, str]:
         """Map each configured label (case-folded, trimmed) to its party code."""

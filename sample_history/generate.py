@@ -841,7 +841,10 @@ treatment = "leave_out"
 # the first cycle of a plan). Each cycle's unit is partial and never flagged; {STATE_UPPER}_whole
 # combines the latest election of every seat (the last two cycles of the same plan).
 classes.{STATE_UPPER} = {CLASSES}
-"""
+
+[states]
+# The invented states' names, shown on the pages beside their codes.
+""" + "".join(f'{code} = "{name}"\n' for code, name, *_ in STATES)
 
 
 def answer_key_rows(plans: list[Plan]) -> list[tuple]:

@@ -210,7 +210,7 @@ def _plans_watch_events(conn, stamp: str) -> None:
     for state in STATES:
         for (first, last), by in zip(((2012, 2020), (2022, None)), drawn[state]):
             plans.append((state, "federal", _plan_id(state, "federal", first), first, last, by,
-                          f"invented plan of {state}", "invented fixture", 0))
+                          f"invented plan of {STATE_NAMES.get(state, 'an invented state')}", "invented fixture", 0))
     plans.append(("KA", "state_lower", "KA-state_lower-2012", 2012, 2021, "other",
                   "inferred: a new plan assumed from each cycle ending in 2", None, 1))
     plans.append(("KA", "state_lower", "KA-state_lower-2022", 2022, 2022, "other",
@@ -225,7 +225,9 @@ def _plans_watch_events(conn, stamp: str) -> None:
         [("KA", "federal", "KA-federal-2012", "party_a", 0, "a", 1.2, 1.2, 3, "2018 2020",
           "efficiency_gap mean_median seats", 2018, stamp),
          (XSS, "federal", f"{XSS}-federal-2022", "party_b", 0, "b", 1.2, -1.2, 3, "2020 2022",
-          "efficiency_gap mean_median seats", 2020, stamp)])
+          "efficiency_gap mean_median seats", 2020, stamp),
+         ("MO", "federal", "MO-federal-2022", "split", 0, "a", 0.4, 0.4, 2, "2022", "efficiency_gap seats", 2022,
+          stamp)])  # KA's 2012 plan is a past plan (2022 replaced it); XSS's and MO's are in force
     conn.execute("DELETE FROM flag_events")
     events = []
     for cycle, state, direction in ((2018, "KA", "a"), (2020, "KA", "a"), (2020, XSS, "b"), (2022, XSS, "b")):

@@ -250,7 +250,11 @@ def test_inferred_eras_and_unofficial_results_are_marked(fx, site):
     out, _ = site
     v = Views(collect(fx.db, fx.config))
     lower = (out / v.state_path("KA", "state_lower")).read_text(encoding="utf-8")
-    assert "badge-inferred" in lower and "(inferred)" in lower  # table badge and chart era label
+    assert "badge-inferred" in lower  # the table's badge
+    eras = [e for where, spec in chart_specs(out) if where.startswith(v.state_path("KA", "state_lower"))
+            for e in spec.get("datasets", {}).get("eras", [])]
+    assert eras and {e["era_label"] for e in eras} == {"not recorded (era inferred)"}  # the charts' era labels
+    assert "drawn by not recorded (era inferred)" in lower or "<td>not recorded (era inferred)" in lower  # the plans table
     federal = (out / v.state_path("KA", "federal")).read_text(encoding="utf-8")
     assert "badge-inferred" not in federal.split("<main")[1].split("</main>")[0]
     unofficial = (out / v.state_path(*sf.UNOFFICIAL[1:])).read_text(encoding="utf-8")
@@ -358,9 +362,13 @@ def test_csv_cells_are_neutralised_but_numbers_stay_numbers(site):
     measures = list(csv.DictReader(io.StringIO((out / "downloads/measures.csv").read_text(encoding="utf-8"))))
     negative = [r["value"] for r in measures if r["value"].startswith("-")]
     assert negative and all(float(v) < 0 for v in negative)
-    # the JSON keeps the original text
-    records = json.loads((out / "downloads/results.json").read_text(encoding="utf-8"))
-    assert sf.INJECTION_CANDIDATE in {r["candidate"] for r in records}
+    # the large tables come once, as CSV (weight); the small ones also as JSON, the same rows in original text
+    assert not (out / "downloads/results.json").exists() and not (out / "downloads/measures.json").exists()
+    for name in ("watch", "flags", "plans"):
+        records = json.loads((out / f"downloads/{name}.json").read_text(encoding="utf-8"))
+        rows = list(csv.DictReader(io.StringIO((out / f"downloads/{name}.csv").read_text(encoding="utf-8"))))
+        assert records and len(records) == len(rows), name
+        assert [str(r["state"]) for r in records] == [r["state"] for r in rows], name
 
 
 @pytest.mark.parametrize("text, expected", [
@@ -382,15 +390,14 @@ def test_csv_writer_keeps_numbers_and_neutralises_text():
 
 
 # --- feed ---------------------------------------------------------------------------------------
-def test_atom_feed_follows_rfc_4287(fx, site):
-    out, _ = site
-    root = ET.fromstring((out / P.FEED).read_bytes())
+def _check_rfc_4287(root, out: Path) -> list:
+    """The required feed and entry elements of RFC 4287 (sections 4.1.1, 4.1.2), RFC 3339 UTC
+    timestamps, unique ``urn:uuid:`` ids; every relative link resolves in ``out``."""
     assert root.tag == f"{ATOM}feed"
     for tag in ("id", "title", "updated"):
         assert root.find(f"{ATOM}{tag}") is not None, tag
     assert root.find(f"{ATOM}author/{ATOM}name").text
     entries = root.findall(f"{ATOM}entry")
-    assert len(entries) == fx.db.execute("SELECT COUNT(*) FROM flag_events").fetchone()[0]
     ids = [e.find(f"{ATOM}id").text for e in entries]
     assert len(set(ids)) == len(ids) and all(i.startswith("urn:uuid:") for i in ids)
     stamp = re.compile(r"^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}Z$")  # RFC 3339, UTC
@@ -400,6 +407,27 @@ def test_atom_feed_follows_rfc_4287(fx, site):
         link = e.find(f"{ATOM}link")
         if link is not None:
             assert (out / link.get("href")).is_file()
+    return entries
+
+
+def _seen_nothing(feed: bytes) -> bytes:
+    """A previous feed that had seen no flag event (every stored event is then news)."""
+    return re.sub(rb"<lf:events-through>\d+</lf:events-through>", b"<lf:events-through>0</lf:events-through>", feed)
+
+
+def test_atom_feed_follows_rfc_4287(fx, site):
+    from monitor.publish.feed import atom_feed
+
+    out, _ = site
+    first = (out / P.FEED).read_bytes()
+    entries = _check_rfc_4287(ET.fromstring(first), out)
+    n_watch = fx.db.execute("SELECT COUNT(*) FROM watch").fetchone()[0]
+    assert [e.find(f"{ATOM}title").text for e in entries] == [f"Site published, {n_watch} plans on watch"]
+    # a later build: one entry per flag event it had not seen, the first build's entry kept
+    data = collect(fx.db, fx.config)
+    later = ET.fromstring(atom_feed(data, Views(data), P.FEED, _seen_nothing(first)))
+    entries = _check_rfc_4287(later, out)
+    assert len(entries) == fx.db.execute("SELECT COUNT(*) FROM flag_events").fetchone()[0] + 1
     assert any(sf.XSS in e.find(f"{ATOM}title").text for e in entries)  # text content, escaped by the XML writer
 
 
@@ -633,6 +661,10 @@ def test_sample_history_site(sample_workspace, tmp_path):
     out = tmp_path / "public"
     report = build(ws, out=out)
     assert report.pages > 50 and not report.removed
+    # weight budget (README "Weight"): no HTML page over 300 KB; no JSON twin of the large tables
+    heavy = {p.relative_to(out).as_posix(): p.stat().st_size for p in out.rglob("*.html") if p.stat().st_size > 300_000}
+    assert heavy == {}
+    assert not (out / "downloads/results.json").exists() and (out / "downloads/results.csv").is_file()
     db = store.connect(ws.store_path)
     try:
         data = collect(db, load_config(ws.config_path))
@@ -750,12 +782,14 @@ def test_era_labels_sit_in_a_band_above_the_data(site):
     for where, spec in chart_specs(out):
         if "eras" not in spec.get("datasets", {}):
             continue
-        texts = [layer for layer in _layers_on(spec, "eras") if _mark(layer)["type"] == "text"]
-        assert len(texts) == 1, where
-        label = texts[0]
-        y = label["encoding"]["y"]
-        assert set(y) == {"value"} and y["value"] < 0, (where, y)
-        assert "datum.x2" in label["mark"]["limit"]["expr"] and "datum.x" in label["mark"]["limit"]["expr"], where
+        groups = [layer["layer"] for layer in spec["layer"] if "layer" in layer]
+        texts = [t for g in groups for t in g if t.get("data", {}).get("name") == "eras" and _mark(t)["type"] == "text"]
+        assert sorted(t["encoding"]["text"]["field"] for t in texts) == ["era_label", "era_no"], where
+        for label in texts:
+            y = label["encoding"]["y"]
+            assert set(y) == {"value"} and y["value"] < 0, (where, y)
+            # never cut: the whole label, else the era's number, else nothing (no "limit" that truncates)
+            assert "limit" not in _mark(label) and "datum.chars" in _mark(label)["opacity"]["expr"], where
         rects = [layer for layer in _layers_on(spec, "eras") if _mark(layer)["type"] == "rect"]
         assert rects and all(r["encoding"]["y"]["value"] <= y["value"] for r in rects), where  # the band is shaded
         checked += 1
@@ -1018,13 +1052,15 @@ def test_what_changed_after_a_partial_cycle(tmp_path):
         out = tmp_path / "public"
         build(fx.db, fx.config, out)
         home = (out / P.HOME).read_text(encoding="utf-8")
-        assert re.search(r"<h2>State legislature, lower chamber, <a href=\"cycle/2022.html\">2022</a></h2>", home)
-        assert re.search(r"<h2>Federal lower chamber, <a href=\"cycle/2024.html\">2024</a></h2>", home)
+        # each chamber's latest cycle leads the home page, with its flagged units
+        lower = re.search(r'<h2>State legislature, lower chamber, <a href="cycle/2022.html">2022</a>: 1 of 1 states '
+                          r'flagged[^<]*</h2>(.*?)</section>', home, re.S)
+        assert lower and re.search(r'<h2>Federal lower chamber, <a href="cycle/2024.html">2024</a>: \d+ of 4 states', home)
         assert 'id="chart-hist-state_lower"' in home and 'id="chart-hist-federal"' in home
-        table = home.split('<section id="changes">')[1].split("</table>")[0]
-        rows = [r for r in table.split("</tr>") if "<td>state lower</td>" in r]
-        assert len(rows) == 1 and "raised" in rows[0] and "(2020)" in rows[0] and "(2022)" in rows[0]
-        assert "(2024)" not in rows[0]
+        rows = re.findall(r'<tr data-state="([^"]*)">(.*?)</tr>', lower[1], re.S)
+        assert [code for code, _ in rows] == ["KA"]
+        # compared with its own previous cycle (2020), not with the federal 2024
+        assert "not flagged in 2020" in rows[0][1] and "efficiency gap" in rows[0][1] and "2024" not in rows[0][1]
     finally:
         fx.close()
 
@@ -1063,15 +1099,20 @@ def test_feed_and_state_page_show_corrections(tmp_path):
 
     fx = sf.build(tmp_path / "ws")
     try:
+        first = collect(fx.db, fx.config)
+        before = atom_feed(first, Views(first))  # the first build's feed, before the correction
+        n_before = fx.db.execute("SELECT COUNT(*) FROM flag_events").fetchone()[0]
         sf.correct_state(fx, "LU", 2022)
         load_id, report = fx.db.execute("SELECT id, report FROM loads WHERE units_corrected > 0").fetchone()
         listed = [u for u in json.loads(report)["units"] if u["action"] == "corrected"]
         assert [(u["cycle"], u["state"], u["chamber"]) for u in listed] == [(2022, "LU", "federal")]
         changes = listed[0]["changes"]
         assert any(ch.startswith("votes of party a") for ch in changes)
+        plain = [Views(first).words.change(ch) for ch in changes]  # what people read: party names, no codes
+        assert any(p.startswith(f"{sf.PARTY_A[0]} votes: ") for p in plain)
 
         def entries(data):
-            root = ET.fromstring(atom_feed(data, Views(data)))
+            root = ET.fromstring(atom_feed(data, Views(data), previous=before))
             return [e for e in root.findall(f"{ATOM}entry") if e.find(f"{ATOM}title").text.startswith("Correction")]
 
         data = collect(fx.db, fx.config)
@@ -1079,16 +1120,18 @@ def test_feed_and_state_page_show_corrections(tmp_path):
         assert len(found) == 1
         title, summary = found[0].find(f"{ATOM}title").text, found[0].find(f"{ATOM}summary").text
         assert f"load #{load_id}" in title and "Lunmere (LU)" in title and "2022" in title
-        assert all(ch in summary for ch in changes) and "from the load report" in summary
+        assert all(p in summary for p in plain) and "from the load report" in summary
         assert found[0].find(f"{ATOM}link").get("href") == Views(data).state_path("LU", "federal")
-        n_events = fx.db.execute("SELECT COUNT(*) FROM flag_events").fetchone()[0]
-        assert len(ET.fromstring(atom_feed(data, Views(data))).findall(f"{ATOM}entry")) == n_events + 1
+        # the later build: the first build's entry, one per flag event since, one for the correction
+        n_new = fx.db.execute("SELECT COUNT(*) FROM flag_events").fetchone()[0] - n_before
+        assert n_new == 1
+        assert len(ET.fromstring(atom_feed(data, Views(data), previous=before)).findall(f"{ATOM}entry")) == 1 + n_new + 1
         # the state page lists it under the flag history
         out = tmp_path / "public"
         build(fx.db, fx.config, out)
         page = html.unescape((out / Views(data).state_path("LU", "federal")).read_text(encoding="utf-8"))
         corrections = page.split('id="corrections"')[1].split("</section>")[0]
-        assert f"#{load_id}" in corrections and all(ch in corrections for ch in changes)
+        assert f"#{load_id}" in corrections and all(p in corrections for p in plain)
         # without the stored report: compared, with the same result
         with store.transaction(fx.db) as conn:
             conn.execute("UPDATE loads SET report = NULL WHERE id = ?", [load_id])
@@ -1096,7 +1139,7 @@ def test_feed_and_state_page_show_corrections(tmp_path):
         assert data.corrections["basis"].tolist() == ["compared"]
         assert list(data.corrections["changes"].iloc[0]) == changes
         summary = entries(data)[0].find(f"{ATOM}summary").text
-        assert all(ch in summary for ch in changes) and "comparing the superseded and the current results" in summary
+        assert all(p in summary for p in plain) and "comparing the superseded and the current results" in summary
         with store.transaction(fx.db) as conn:  # an unreadable report: compared, and the feed says why
             conn.execute("UPDATE loads SET report = '{not json' WHERE id = ?", [load_id])
         data = collect(fx.db, fx.config)
@@ -1128,22 +1171,26 @@ def test_feed_self_link_is_absolute_only_with_a_base_url(fx, tmp_path):
 def test_watch_list_rounds_once_and_marks_unofficial_cycles(fx):
     data = collect(fx.db, fx.config)
     watch = data.watch.copy()
-    watch.loc[0, ["severity", "seats_at_stake"]] = [1.77, -1.765]  # stored by the flags: abs rounded to 2, signed to 3
+    i = watch.index[watch["favours"] == "a"][0]  # a plan the measures say favours party a, given seats for b
+    watch.loc[i, ["severity", "seats_at_stake"]] = [1.77, -1.765]  # stored by the flags: abs rounded to 2, signed to 3
     data.watch = watch
     units = data.units.copy()
-    state, chamber, cycle = watch.loc[0, "state"], watch.loc[0, "chamber"], int(watch.loc[0, "cycles"].split()[-1])
+    state, chamber, cycle = watch.loc[i, "state"], watch.loc[i, "chamber"], int(watch.loc[i, "cycles"].split()[-1])
     units.loc[(units["state"] == state) & (units["chamber"] == chamber) & (units["cycle"] == cycle),
               "certification"] = "unofficial"
     data.units = units
     v = Views(data)
-    row = v._watch_rows(data.watch, "")[0]
-    assert (row["severity"], row["seats_at_stake"]) == ("1.77", "\u22121.77")
-    assert [c["unofficial"] for c in row["cycles"]] == [str(c) == str(cycle) for c in watch.loc[0, "cycles"].split()]
+    row = v._watch_rows(data.watch.loc[[i]], "")[0]
+    # one number, one rounding, its party by the sign (negative: party b), and the disagreement said
+    assert (row["stake"].text, row["stake"].code) == (f"favours {sf.PARTY_B[0]} by 1.8 seats", "b")
+    assert row["favours_code"] == "a" and row["disagree"]
+    assert [c["unofficial"] for c in row["cycles"]] == [str(c) == str(cycle) for c in watch.loc[i, "cycles"].split()]
     env = PG.environment()
     page = env.get_template("watch.html").render(page=P.WATCH, root="", title="Watch list", section="watch",
                                                  parties=data.parties, **v.watch(""))
-    first = page.split("<tbody>")[1].split("</tr>")[0]
+    first = next(r for r in page.split("</tr>") if watch.loc[i, "plan_id"] in r)
     assert f"{cycle} <span class=\"badge badge-unofficial\"" in first
+    assert "the seats point the other way from the measures" in first
     assert "most in one cycle" in page and "all flagged cycles" in page
     methods = env.get_template("methods.html").render(page=P.METHODS, root="", title="Methods", section="methods",
                                                       parties=data.parties, **v.methods())

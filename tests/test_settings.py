@@ -17,7 +17,8 @@ from monitor.measures.ttest import VARIANTS
 
 
 def test_every_section_but_the_parties_has_a_typed_form_with_exactly_its_options():
-    sections = {opt.section for opt in C.OPTIONS if not opt.section.startswith("parties.")}
+    # the parties and the whole-section tables (such as [states]: code = name) have no typed form
+    sections = {opt.section for opt in C.OPTIONS if not opt.section.startswith("parties.") and opt.key}
     assert set(C.SECTION_TYPES) == sections
     for name, cls in C.SECTION_TYPES.items():
         fields = {f.name: f.default if f.default is not dataclasses.MISSING else f.default_factory()
@@ -67,3 +68,17 @@ def test_the_default_file_lists_every_option():
         # a table option (no value by default) shows its keys as commented examples
         shown = f"\n# {opt.example[0]}" if opt.example else f"\n{opt.key} = "
         assert shown in text, opt.name
+
+
+def test_state_names_table(tmp_path: Path):
+    path = tmp_path / "levelfield.toml"
+    path.write_text('[states]\nqv = "Quillan Vale"\nRT = " Rostmark "\n', encoding="utf-8")
+    assert C.load_config(path).state_names() == {"QV": "Quillan Vale", "RT": "Rostmark"}
+    assert C.load_config(None).state_names() == {}
+    for text, message in [('[states]\nQV = ""\n', "name must be a non-empty string"),
+                          ('[states]\nQV = "A"\nqv = "B"\n', "the same state code"),
+                          ('[states]\nQV = 3\n', "name must be a non-empty string"),
+                          ('states = "QV"\n', "must be a table of state code")]:
+        path.write_text(text, encoding="utf-8")
+        with pytest.raises(C.ConfigError, match=message):
+            C.load_config(path)

@@ -163,14 +163,16 @@ def test_watch_list_sorts_without_a_server(site, browser):
     try:
         visit.page.goto((site["out"] / P.WATCH).as_uri())  # straight from disk
         visit.page.wait_for_load_state("load")
-        rows = lambda: visit.page.locator("table.watch tbody tr td:first-child").all_inner_texts()
-        header = visit.page.locator("table.watch thead th").nth(0).locator("button")
+        table = visit.page.locator("#in-force table.watch")
+        rows = lambda: table.locator("tbody tr td:first-child").all_inner_texts()
+        assert len(rows()) >= 2
+        header = table.locator("thead th").nth(0).locator("button")
         header.click()
         first = rows()
         assert first == sorted(first, key=str.lower)
         header.click()
         assert rows() == sorted(first, key=str.lower, reverse=True)
-        assert visit.page.locator("table.watch thead th").nth(0).get_attribute("aria-sort") == "descending"
+        assert table.locator("thead th").nth(0).get_attribute("aria-sort") == "descending"
         assert all(u.startswith("file://") or u.startswith("data:") for u in visit.requests), visit.requests
         assert not visit.errors
     finally:
@@ -188,5 +190,110 @@ def test_charts_render_from_disk(site, browser):
         assert views > 0 and drawn == views
         assert all(u.startswith("file://") or u.startswith("data:") for u in visit.requests), visit.requests
         assert not visit.errors
+    finally:
+        visit.close()
+
+
+# --- readable at 1280 and 375 px, accessible (issue 15) -----------------------------------------------
+READ_PAGES = [("home", P.HOME), ("watch", P.WATCH), ("states", P.STATES), ("cycle", P.cycle_page(2022)),
+              ("state", "state:KA:federal"), ("state-lower", "state:KA:state_lower")]
+
+#: Page width, and every table header whose text does not fit its cell (cut), in the page.
+LAYOUT = """() => {
+  const doc = document.documentElement;
+  const cut = [...document.querySelectorAll('th')].filter(th => th.offsetParent !== null
+      && (th.scrollWidth > th.clientWidth + 1 || th.scrollHeight > th.clientHeight + 1))
+    .map(th => th.innerText.trim());
+  const wide = [...document.querySelectorAll('table')].filter(t => t.offsetParent !== null
+      && t.getBoundingClientRect().right > doc.clientWidth + 1 && !t.closest('.table-wrap'))
+    .map(t => t.className || t.id || 'table');
+  return {scroll: doc.scrollWidth, client: doc.clientWidth, body: document.body.scrollWidth, cut, wide};
+}"""
+
+
+def _page_path(site, page: str) -> str:
+    if page.startswith("state:"):
+        _, state, chamber = page.split(":")
+        return site["views"].state_path(state, chamber)
+    return page
+
+
+@pytest.mark.parametrize("width", [375, 1280])
+@pytest.mark.parametrize("name, page", READ_PAGES)
+def test_no_horizontal_page_scroll_and_no_cut_headers(site, browser, name, page, width):
+    """The page itself never scrolls sideways (a wide table scrolls inside its own box), and no
+    table header is cut (its text fits its cell)."""
+    visit = Visit(browser)
+    try:
+        visit.page.set_viewport_size({"width": width, "height": 900})
+        visit.open(site["base"] + _page_path(site, page))
+        layout = visit.page.evaluate(LAYOUT)
+        assert layout["scroll"] <= layout["client"] and layout["body"] <= layout["client"], (name, width, layout)
+        assert layout["cut"] == [], (name, width, layout["cut"])
+        assert layout["wide"] == [], (name, width, layout["wide"])
+        visit.shot(f"read-{name}-{width}")
+    finally:
+        visit.close()
+
+
+def test_the_layout_check_sees_a_page_that_scrolls(site, browser):
+    """The check above can fail: a table forced wider than the window outside any scroll box."""
+    visit = Visit(browser)
+    try:
+        visit.page.set_viewport_size({"width": 375, "height": 900})
+        visit.open(site["base"] + P.WATCH)
+        visit.page.evaluate("""() => { const t = document.querySelector('table.watch');
+            document.querySelector('main').appendChild(t); t.style.minWidth = '900px'; }""")
+        layout = visit.page.evaluate(LAYOUT)
+        assert layout["scroll"] > layout["client"] and layout["wide"]
+        visit.page.evaluate("() => { const th = document.querySelector('th'); th.style.display = 'block';"
+                            " th.style.width = '12px'; th.style.overflow = 'hidden'; th.style.whiteSpace = 'nowrap'; }")
+        assert visit.page.evaluate(LAYOUT)["cut"]
+    finally:
+        visit.close()
+
+
+def test_home_lists_exactly_the_units_flagged_in_the_latest_cycle(site, browser):
+    views = site["views"]
+    d = views.d
+    visit = Visit(browser).open(site["base"] + P.HOME)
+    try:
+        for i, (chamber, cycle) in enumerate(d.chamber_latest().items(), start=1):
+            shown = visit.page.locator(f"#tails-{i} tr[data-state]").evaluate_all(
+                "rows => rows.map(r => r.dataset.state)")
+            t = d.tails[(d.tails["cycle"] == cycle) & (d.tails["chamber"] == chamber) & (d.tails["flagged"] == 1)]
+            assert sorted(shown) == sorted(set(t["state"])), (chamber, cycle)
+    finally:
+        visit.close()
+
+
+def _axe():
+    """axe-playwright-python's runner (skips only the accessibility tests when it is missing)."""
+    return pytest.importorskip("axe_playwright_python.sync_playwright").Axe()
+
+
+@pytest.mark.parametrize("name, page", [("home", P.HOME), ("watch", P.WATCH), ("cycle", P.cycle_page(2022)),
+                                        ("state", "state:KA:federal")])
+def test_no_serious_or_critical_accessibility_violation(site, browser, name, page):
+    """axe-core (bundled with axe-playwright-python, run inside the page, offline): no violation
+    of impact serious or critical (Deque's axe-core rules, WCAG 2 A/AA and best practices)."""
+    visit = Visit(browser).open(site["base"] + _page_path(site, page))
+    try:
+        results = _axe().run(visit.page)
+        found = [(v["id"], v["impact"], len(v["nodes"]), v["nodes"][0]["target"])
+                 for v in results.response["violations"] if v["impact"] in ("serious", "critical")]
+        assert found == [], (name, found)
+        assert results.response["testEngine"]["name"] == "axe-core"
+    finally:
+        visit.close()
+
+
+def test_the_accessibility_check_finds_a_violation(site, browser):
+    """The check above can fail: a button without a name (axe rule button-name, critical)."""
+    visit = Visit(browser).open(site["base"] + P.WATCH)
+    try:
+        visit.page.evaluate("() => document.querySelector('main').appendChild(document.createElement('button'))")
+        results = _axe().run(visit.page)
+        assert "button-name" in {v["id"] for v in results.response["violations"] if v["impact"] == "critical"}
     finally:
         visit.close()

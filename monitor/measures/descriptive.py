@@ -80,7 +80,7 @@ DECLARED = (
         formula="sum_i s_i, s_i = 1 / 0 / 1/2 for a win / loss / tie", sign="count", source="definition",
         summary="seats won by party a; judged against the seats expected from the national pool",
         compute=lambda u: seats_a_of(u.seg), undefined=lambda u: u.base, null=seats_a, null_of=seats_a_of,
-        flag=Flag("seats", null=True, short="seats vs national pool", label="Seats (a) against the national pool",
+        flag=Flag("seats", null=True, short="seats against the national pool", label="Seats (a) against the national pool",
                   also_undefined_where="efficiency_gap_seats", describe=lambda v: f"seats won by a {seat_count(v)}",
                   digits=2),
     ),

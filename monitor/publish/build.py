@@ -37,7 +37,9 @@ import sqlite_utils
 import store
 from monitor.config import Config
 from monitor.errors import UsageError
+from monitor.publish import paths as P
 from monitor.publish.collect import collect
+from monitor.publish.feed import warnings as feed_warnings
 from monitor.publish.pages import iter_site, static_assets
 from monitor.publish.reuse import KEPT, MANIFEST, Parts, Reuse
 from monitor.publish.runtime import RUNTIME_PATH, vega_runtime
@@ -59,6 +61,7 @@ class BuildReport:
     total_bytes: int = 0
     site_time: dt.datetime | None = None
     swap: str = ""
+    warnings: list[str] = field(default_factory=list)
 
     @property
     def files(self) -> int:
@@ -76,6 +79,7 @@ class BuildReport:
         shown = [p for p in self.written if p != RUNTIME_PATH]
         if 0 < len(shown) <= 20:
             out.extend(f"  wrote {p}" for p in shown)
+        out.extend(f"  warning: {w}" for w in self.warnings)
         return out
 
 
@@ -94,10 +98,11 @@ def build(source, config: Config | None = None, out: str | Path | None = None, *
     check_output(out, store.path_of(db), unmarked_ok=own)
     with _lock(out):
         data = collect(db, config)
+        previous = _previous_feed(out)
         reuse = Reuse(out, full=full)
 
         def files():
-            yield from iter_site(data, templates, reuse=reuse)
+            yield from iter_site(data, templates, reuse=reuse, previous_feed=previous)
             yield from static_assets().items()
             yield RUNTIME_PATH, vega_runtime(out / RUNTIME_PATH)
             yield MANIFEST, reuse.manifest()  # last: every page and download has recorded its inputs
@@ -105,7 +110,19 @@ def build(source, config: Config | None = None, out: str | Path | None = None, *
         report = write_site(files(), out, unmarked_ok=own, reuse=reuse)
         reuse.prune()
     report.site_time = data.site_time
+    report.warnings = feed_warnings(data)
     return report
+
+
+def _previous_feed(out: Path) -> bytes | None:
+    """The feed of the site this build replaces (a levelfield build), None when there is none."""
+    feed = out / P.FEED
+    if not (out / MARKER).is_file() or not feed.is_file() or feed.is_symlink():
+        return None
+    try:
+        return feed.read_bytes()
+    except OSError:
+        return None
 
 
 #: Written at the root of every build; its presence marks a folder as a levelfield site.

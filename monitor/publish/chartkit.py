@@ -23,6 +23,8 @@ ERA_FILLS = ("#f3f0e8", "#e6e2d6")
 BAND = "#cdd3d8"
 FONT = "system-ui, -apple-system, 'Segoe UI', Roboto, 'Helvetica Neue', Arial, sans-serif"
 NOT_FLAGGED = "not flagged"
+#: Units below ``flags.min_districts``: never flagged, shown apart and in grey.
+TOO_FEW = "too few districts to flag"
 SCHEMA_URL = alt.SCHEMA_URL
 
 CONFIG = {
@@ -68,18 +70,18 @@ class Style:
         return {"a": self.a.name, "b": self.b.name}.get(code, NOT_FLAGGED)
 
     def flag_domain(self) -> list[str]:
-        return [f"favours {self.a.name}", f"favours {self.b.name}", NOT_FLAGGED]
+        return [f"favours {self.a.name}", f"favours {self.b.name}", NOT_FLAGGED, TOO_FEW]
 
     def flag_colour(self) -> dict:
-        return {"domain": self.flag_domain(), "range": [self.a.colour, self.b.colour, MUTED]}
+        return {"domain": self.flag_domain(), "range": [self.a.colour, self.b.colour, MUTED, FAINT]}
 
     def flag_shape(self) -> dict:
-        return {"domain": self.flag_domain(), "range": ["triangle-up", "triangle-down", "circle"]}
+        return {"domain": self.flag_domain(), "range": ["triangle-up", "triangle-down", "circle", "circle"]}
 
-    def flag_label(self, flagged, direction) -> str:
+    def flag_label(self, flagged, direction, too_few: bool = False) -> str:
         if flagged and direction in ("a", "b"):
             return f"favours {self.party(direction)}"
-        return NOT_FLAGGED
+        return TOO_FEW if too_few else NOT_FLAGGED
 
 
 # --- spec helpers -------------------------------------------------------------------------------
@@ -168,31 +170,43 @@ def _cycle_axis(lo: float, hi: float) -> dict:
 ERA_BAND = 16
 
 
+#: Width of one character of an era label (10 px system-ui), a little over the widest average, so a
+#: label shown is never cut.
+ERA_CHAR = 6.2
+
+
 def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[dict]]:
     """Era rectangles (first - 1 to last + 1, clipped to the shown cycles), alternately shaded
     (two layers with a constant colour each, so the colour scale stays free for the data), and
     the era labels: ``[rect_even, rect_odd]`` go under the data, ``[labels]`` after it.
 
     The rectangles reach ``ERA_BAND`` pixels above the plot; the labels sit in that band, outside
-    the data area, each cut (with an ellipsis) to its era's drawn width and hidden when the era is
-    too narrow for even a few letters (its tooltip, the description and the table keep the name)."""
+    the data area. A label is never cut: an era too narrow for its whole label shows its number
+    instead (``era_no``, 1 for the first era of the state; the page's key and the chart's
+    description give each number's plan), and nothing when even that does not fit."""
     if eras.empty:
         return [], []
     e = eras.copy()
+    e["era_no"] = [str(i) for i in range(1, len(e) + 1)]
     e["x"] = np.maximum(e["first_cycle"].astype(float) - 1, lo)
     e["x2"] = np.minimum(e["last_cycle"].astype(float).fillna(hi) + 1, hi)
     e = e[e["x2"] > e["x"]].sort_values("x").reset_index(drop=True)
     e["parity"] = [i % 2 for i in range(len(e))]
+    e["chars"] = e["era_label"].astype(str).str.len()
     x = _q("x", title="cycle")
-    tip = [_tip("era_label", "nominal", "plan drawn by")]
+    tip = [_tip("era_no", "nominal", "plan era"), _tip("era_label", "nominal", "plan drawn by")]
     rects = [{"data": {"name": "eras"}, "transform": [{"filter": {"field": "parity", "equal": k}}],
               "mark": {"type": "rect", "color": ERA_FILLS[k]},
               "encoding": {"x": x, "x2": {"field": "x2"}, "y": {"value": -ERA_BAND}, "y2": {"value": "height"},
                            "tooltip": tip}}
              for k in (0, 1) if (e["parity"] == k).any()]
-    room = "scale('x', datum.x2) - scale('x', datum.x) - 6"
+    room = "(scale('x', datum.x2) - scale('x', datum.x) - 6)"
+    fits = f"{room} >= datum.chars * {ERA_CHAR}"
+    text = {"type": "text", "align": "left", "baseline": "middle", "dx": 3, "fontSize": 10, "color": INK}
     labels = {"data": {"name": "eras"},
-              "mark": {"type": "text", "align": "left", "baseline": "middle", "dx": 3, "fontSize": 10, "color": MUTED,
-                       "limit": {"expr": f"max(1, {room})"}, "opacity": {"expr": f"{room} < 18 ? 0 : 1"}},
+              "mark": {**text, "opacity": {"expr": f"{fits} ? 1 : 0"}},
               "encoding": {"x": x, "y": {"value": -ERA_BAND / 2}, "text": _n("era_label"), "tooltip": tip}}
-    return records(e, ["x", "x2", "parity", "era_label"]), rects + [labels]
+    numbers = {"data": {"name": "eras"},
+               "mark": {**text, "opacity": {"expr": f"!({fits}) && {room} >= {2 * ERA_CHAR} ? 1 : 0"}},
+               "encoding": {"x": x, "y": {"value": -ERA_BAND / 2}, "text": _n("era_no"), "tooltip": tip}}
+    return records(e, ["x", "x2", "parity", "era_label", "era_no", "chars"]), rects + [{"layer": [labels, numbers]}]

@@ -20,8 +20,8 @@ import numpy as np
 import pandas as pd
 
 from monitor.publish import formats as F
-from monitor.publish.chartkit import (BAND, FAINT, GRID, INK, MUTED, NOT_FLAGGED, Chart, Style, _eras, _n, _q,
-                                      _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure, records)
+from monitor.publish.chartkit import (BAND, FAINT, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style, _eras, _n,
+                                      _q, _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure, records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -68,17 +68,23 @@ def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamb
     return Chart(chart_id, f"District shares, {chamber_label}, {cycle}", desc, spec, ["share bin", "kind", "districts"], rows)
 
 
-def _with_flags(frame: pd.DataFrame, style: Style) -> pd.DataFrame:
-    return frame.assign(flag=[style.flag_label(fl, d) for fl, d in zip(frame["flagged"], frame["direction"])])
+def _with_flags(frame: pd.DataFrame, style: Style, min_districts: int | None = None) -> pd.DataFrame:
+    """``flag``: the flag label of each row; below ``min_districts`` districts (never flagged), "too few"."""
+    if min_districts is not None and "districts" in frame:
+        few = (pd.to_numeric(frame["districts"], errors="coerce") < min_districts).fillna(False).to_numpy()
+    else:
+        few = np.zeros(len(frame), bool)
+    return frame.assign(flag=[style.flag_label(fl, d, s) for fl, d, s in zip(frame["flagged"], frame["direction"], few)])
 
 
 def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style: Style, cycle: int,
-                 chamber_label: str) -> Chart:
-    """One measure across states in a cycle: a strip of values, flagged states marked and named.
+                 chamber_label: str, min_districts: int | None = None) -> Chart:
+    """One measure across states in a cycle: a strip of values, flagged states marked and named;
+    states with too few districts to be flagged on a row of their own, in grey.
 
-    ``frame``: state_label, value, flagged, direction.
+    ``frame``: state_label, value, flagged, direction (and districts).
     """
-    f = _with_flags(frame, style).dropna(subset=["value"])
+    f = _with_flags(frame, style, min_districts).dropna(subset=["value"])
     flagged_labels = style.flag_domain()[:2]
     points = {"data": {"name": "states"}, "mark": {"type": "point", "filled": True, "size": 70, "opacity": 0.85},
               "encoding": {
@@ -92,13 +98,17 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
              "mark": {"type": "text", "dy": -11, "fontSize": 10},
              "encoding": {"x": _q("value", title=xtitle), "y": _n("flag", title=None, sort=style.flag_domain()),
                           "text": _n("state_label")}}
-    flagged = f[f["flag"] != NOT_FLAGGED]
+    flagged = f[f["flag"].isin(flagged_labels)]
+    few = f[f["flag"] == TOO_FEW]
     layers = [_rule("x", 0.0, xtitle), points] + ([names] if len(flagged) else [])
-    spec = _spec(layers, {"states": records(f, ["state_label", "value", "flag"])}, 90)
+    spec = _spec(layers, {"states": records(f, ["state_label", "value", "flag"])}, 110 if len(few) else 90)
     desc = (f"{label} of {len(f)} states in {cycle} ({chamber_label}): median {fmt_measure(measure, f['value'].median())}, "
             f"from {fmt_measure(measure, f['value'].min())} to {fmt_measure(measure, f['value'].max())}. ")
     desc += (f"Flagged at the tails: {', '.join(f'{r.state_label} ({r.flag})' for r in flagged.itertuples())}."
              if len(flagged) else "No state is flagged on this measure.")
+    if len(few):
+        desc += (f" On a row of their own, in grey: {len(few)} states with fewer than {min_districts} districts, "
+                 "too few to flag.")
     rows = [[r.state_label, fmt_measure(measure, r.value), r.flag] for r in f.sort_values("value", ascending=False).itertuples()]
     return Chart(chart_id, f"{label} across states, {cycle}", desc, spec, ["state", label, "flag"], rows)
 
@@ -157,7 +167,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     desc += ("Flagged at the national tails in " + ", ".join(f"{int(r.cycle)} ({r.flag})" for r in flagged.itertuples()) + "."
              if len(flagged) else "Not flagged in any cycle.")
     if not eras.empty:
-        desc += " Plan eras: " + "; ".join(f"{int(r.first_cycle)} on, {r.era_label}" for r in eras.itertuples()) + "."
+        desc += " Plan eras (numbered in the band above the chart where a name does not fit): " + era_key(eras) + "."
     if lines:
         desc += " Dotted lines: thresholds proposed in the literature (proposals, not law)."
     rows = [[str(int(r.cycle)), fmt_measure(measure, r.value), fmt_measure(measure, r.low), fmt_measure(measure, r.high),
@@ -165,6 +175,12 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
              r.flag, r.certification] for r in f.itertuples()]
     return Chart(chart_id, label, desc, _spec(layers, datasets, 190),
                  ["cycle", label, "95% low", "95% high", "national-pool null (outer tails)", "flag", "results"], rows)
+
+
+def era_key(eras: pd.DataFrame) -> str:
+    """``1: 1972-1980, drawn by Upland Party; 2: ...``: the numbers the era bands show."""
+    return "; ".join(f"{i}: {int(r.first_cycle)}{F.DASH}{'' if F.missing(r.last_cycle) else int(r.last_cycle)}, "
+                     f"drawn by {r.era_label}" for i, r in enumerate(eras.itertuples(), 1))
 
 
 def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, style: Style, where: str) -> Chart:
@@ -286,37 +302,68 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
             "Marks: the stepped line is the curve and the dotted diagonal is seats equal to votes; the observed result "
             "is the large open circle, the flipped vote the small filled diamond and the even vote (50%) the open square, "
             "each labelled beside it.")
-    rows = [[F.share(r.vote), F.share(r.seat_share)] for r in curve.itertuples()]
-    rows += [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
-             for r in points.itertuples()]
+    rows = _curve_rows(curve) + [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
+                                 for r in points.itertuples()]
     return Chart(chart_id, "Seats-votes curve of the current plan", desc, _spec(layers, datasets, 260),
                  ["statewide vote share", "seat share"], rows)
 
 
-def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style: Style, cycle: int,
-            chamber_label: str) -> Chart:
-    """All states ranked by a measure in one cycle; flagged states coloured by the party favoured.
+def _curve_rows(curve: pd.DataFrame) -> list[list[str]]:
+    """The curve read every 5 points of vote share from 30% to 70% (the step function, as drawn),
+    not at each of its vertices: two per district would make the table, and the page, grow with
+    the chamber."""
+    vote, seat = curve["vote"].to_numpy(float), curve["seat_share"].to_numpy(float)
+    order = np.argsort(vote, kind="stable")
+    vote, seat = vote[order], seat[order]
+    rows = []
+    for v in np.round(np.arange(0.30, 0.7001, 0.05), 2):
+        i = int(np.searchsorted(vote, v, side="right")) - 1
+        rows.append([F.share(v), F.share(seat[i]) if i >= 0 else F.share(0.0)])
+    return rows
 
-    ``frame``: state_label, value, flagged, direction.
+
+def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style: Style, cycle: int,
+            chamber_label: str, min_districts: int | None = None) -> Chart:
+    """All states ranked by a measure in one cycle; flagged states coloured by the party favoured.
+    States with fewer than ``min_districts`` districts (never flagged) are ranked apart, below a
+    heading row, in grey: a small delegation swings to the extremes without being unusual.
+
+    ``frame``: state_label, value, flagged, direction (and districts).
     """
-    f = _with_flags(frame, style).dropna(subset=["value"]).sort_values(["value", "state_label"], ascending=[False, True])
-    order = list(dict.fromkeys(f["state_label"]))
+    f = _with_flags(frame, style, min_districts).dropna(subset=["value"])
+    f = f.assign(few=f["flag"] == TOO_FEW).sort_values(["few", "value", "state_label"], ascending=[True, False, True])
+    ranked, few = f[~f["few"]], f[f["few"]]
+    heading = f"fewer than {min_districts} districts: too few to flag"
+    order = list(dict.fromkeys(ranked["state_label"])) + ([heading] if len(few) else []) + list(dict.fromkeys(few["state_label"]))
+    y_axis = {"labelLimit": 400, "labelColor": {"condition": {"test": f"datum.value == {_js(heading)}", "value": MUTED},
+                                                 "value": INK},
+              "labelFontStyle": {"condition": {"test": f"datum.value == {_js(heading)}", "value": "italic"},
+                                 "value": "normal"}}
     bars = {"data": {"name": "states"}, "mark": {"type": "bar", "height": {"band": 0.7}},
             "encoding": {"x": _q("value", title=_signed_title(label, style)),
-                         "y": _n("state_label", title=None, sort=order),
+                         "y": _n("state_label", title=None, sort=order, scale={"domain": order}, axis=y_axis),
                          "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
                          "tooltip": [_tip("state_label", "nominal", "state"), _tip("value", fmt="+.3f"), _tip("flag", "nominal")]}}
     spec = _spec([bars, _rule("x", 0.0, bars["encoding"]["x"]["title"], INK)],
-                 {"states": records(f, ["state_label", "value", "flag"])}, max(60, 16 * len(f)))
-    flagged = f[f["flag"] != NOT_FLAGGED]
-    desc = f"{len(f)} states ranked by {label} in {cycle} ({chamber_label}). "
-    if len(f):
-        desc += (f"Highest: {f.iloc[0]['state_label']} {fmt_measure(measure, f.iloc[0]['value'])}; lowest: "
-                 f"{f.iloc[-1]['state_label']} {fmt_measure(measure, f.iloc[-1]['value'])}. ")
+                 {"states": records(f, ["state_label", "value", "flag"])}, max(60, 16 * len(order)))
+    flagged = ranked[ranked["flag"] != NOT_FLAGGED]
+    desc = f"{len(ranked)} states ranked by {label} in {cycle} ({chamber_label}). "
+    if len(ranked):
+        desc += (f"Highest: {ranked.iloc[0]['state_label']} {fmt_measure(measure, ranked.iloc[0]['value'])}; lowest: "
+                 f"{ranked.iloc[-1]['state_label']} {fmt_measure(measure, ranked.iloc[-1]['value'])}. ")
     desc += (f"Flagged: {', '.join(f'{r.state_label} ({r.flag})' for r in flagged.itertuples())}." if len(flagged)
              else "None flagged.")
-    rows = [[str(i), r.state_label, fmt_measure(measure, r.value), r.flag] for i, r in enumerate(f.itertuples(), 1)]
+    if len(few):
+        desc += (f" Below them, apart and in grey: {len(few)} states with fewer than {min_districts} districts, "
+                 "never flagged (a small delegation lands at the extremes easily).")
+    rows = [[str(i), r.state_label, fmt_measure(measure, r.value), r.flag] for i, r in enumerate(ranked.itertuples(), 1)]
+    rows += [["", r.state_label, fmt_measure(measure, r.value), r.flag] for r in few.itertuples()]
     return Chart(chart_id, f"{label}, {chamber_label}, {cycle}", desc, spec, ["rank", "state", label, "flag"], rows)
+
+
+def _js(text: str) -> str:
+    """A string literal for a Vega expression."""
+    return "'" + text.replace("\\", "\\\\").replace("'", "\\'") + "'"
 
 
 def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -332,7 +379,7 @@ def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, cha
     # the bar and the tick take their colours from the same constants.
     marks = ["95% interval (national pool)", "expected (national pool)", f"won by {style.a.name}"]
     f = f.assign(kind_won=marks[2])
-    y = _n("state_label", title=None, sort=order)
+    y = _n("state_label", title=None, sort=order, axis={"labelLimit": 400})
     x_title = f"{style.a.name} seats"
     colour = {"domain": marks, "range": [FAINT, INK, style.a.colour]}
     shape = {"domain": marks, "range": ["M-1,-0.3H1V0.3H-1Z", "M-0.22,-1H0.22V1H-0.22Z", "circle"]}
@@ -375,7 +422,7 @@ def excess_by_drawer(chart_id: str, frame: pd.DataFrame, style: Style, cycle: in
     f = frame.assign(side=np.where(frame["excess_seats"] >= 0, sides[0], sides[1]))
     bars = {"data": {"name": "drawers"}, "mark": {"type": "bar"},
             "encoding": {"x": _q("excess_seats", title=["excess seats", f"positive: more than expected for {style.a.name}"]),
-                         "y": _n("drawer", title=None, sort=list(f["drawer"])),
+                         "y": _n("drawer", title=None, sort=list(f["drawer"]), axis={"labelLimit": 400}),
                          "color": _n("side", title=None, scale={"domain": sides, "range": [style.a.colour, style.b.colour]}),
                          "tooltip": [_tip("drawer", "nominal", "drawn by"), _tip("excess_seats", fmt="+.2f"),
                                      _tip("units", title="states")]}}

@@ -32,8 +32,11 @@ from store import aggregates, history, tables
 from store import reductions as stored_reductions
 
 #: Chamber codes of the sample contract, in display order, with their labels.
-CHAMBER_LABELS = {"federal": "Federal lower chamber", "state_lower": "State legislature, lower chamber"}
-CHAMBER_SHORT = {"federal": "federal", "state_lower": "state lower"}
+CHAMBER_LABELS = {"federal": "Federal lower chamber", "state_lower": "State legislature, lower chamber",
+                  "state_upper": "State legislature, upper chamber"}
+CHAMBER_SHORT = {"federal": "federal", "state_lower": "state lower", "state_upper": "state upper"}
+#: a staggered chamber's whole-chamber unit (:mod:`monitor.staggered`): the latest election of every seat
+WHOLE = "_whole"
 
 #: Measures charted over time and across states, in this order (when the store has them).
 HEADLINE_MEASURES = tuple(m.name for m in registry.measures() if m.headline)
@@ -179,11 +182,18 @@ class SiteData:
         return self.state_names.get(state) or state
 
     def chamber_label(self, chamber: str) -> str:
-        return CHAMBER_LABELS.get(chamber, chamber)
+        """The chamber in words: a known one's name, a staggered chamber's whole-chamber unit as
+        such, any other code with spaces for underscores."""
+        if chamber.endswith(WHOLE) and chamber != WHOLE:
+            return f"{self.chamber_label(chamber[:-len(WHOLE)])}, whole chamber"
+        label = CHAMBER_LABELS.get(chamber) or chamber.replace("_", " ")
+        return label[:1].upper() + label[1:]
 
     def chamber_short(self, chamber: str) -> str:
         """The chamber in a table cell."""
-        return CHAMBER_SHORT.get(chamber, chamber)
+        if chamber.endswith(WHOLE) and chamber != WHOLE:
+            return f"{self.chamber_short(chamber[:-len(WHOLE)])} (whole)"
+        return CHAMBER_SHORT.get(chamber) or chamber.replace("_", " ")
 
     def headline(self) -> list[str]:
         if self._headline is None:
@@ -271,7 +281,7 @@ def collect(db: sqlite_utils.Database, config: Config) -> SiteData:
         watch=frames["watch"],
         plans=plans,
         unit_plans=derived["unit_plans"],
-        state_names=history.state_names(db),
+        state_names={**history.state_names(db), **config.state_names()},
         curves=derived["swing_curves"],
         curve_points=derived["swing_points"],
         histogram=derived["national_histogram"],
@@ -301,7 +311,7 @@ def _table(db: sqlite_utils.Database, name: str) -> pd.DataFrame:
 
 def _settings(config: Config) -> list[dict]:
     """The options in force that shape the numbers (not the party names, load or schedule)."""
-    skip = ("parties.", "load.", "schedule.", "site.")
+    skip = ("parties.", "load.", "schedule.", "site.", "states")
     return [{"name": opt.name, "value": config[opt.name], "default": opt.default, "help": opt.help}
             for opt in OPTIONS if not opt.name.startswith(skip)]
 

@@ -1,5 +1,10 @@
-"""Downloads: results, measures and flags as CSV and JSON, described by a Frictionless Data
-Package descriptor (``datapackage.json``, Data Package spec v1, https://specs.frictionlessdata.io/).
+"""Downloads: results, measures and flags as CSV, described by a Frictionless Data Package
+descriptor (``datapackage.json``, Data Package spec v1, https://specs.frictionlessdata.io/).
+
+Weight: every table is published once as CSV. The small tables (the watch list, the flag
+history, plans, loads, the national aggregates) also come as JSON; the large per-unit and
+per-vote-line tables do not (a JSON twin of the results alone weighed three times its CSV, and
+the CSV is what users open).
 
 CSV cells of text fields that begin with ``=``, ``+``, ``-``, ``@`` (or a tab or carriage return)
 get a leading single quote, so that a spreadsheet does not run them as formulas (OWASP, "CSV
@@ -34,6 +39,9 @@ FRICTIONLESS_TYPES = {"string", "number", "integer", "boolean", "object", "array
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 
+
+#: Tables published without a JSON twin (large: one row per unit, measure or vote line).
+CSV_ONLY = {"results", "measures", "coverage", "coverage-gaps", "expected-seats", "flagged-units"}
 
 RESOURCES: list[dict] = [
     {"name": "results", "title": "District results",
@@ -155,8 +163,8 @@ def _frame(data: SiteData, name: str) -> pd.DataFrame:
         return data.histogram
     if name == "plans":
         return data.plans
-    if name == "loads":
-        return data.loads
+    if name == "loads":  # a refused load stored nothing: it stays in the store and in status, not here
+        return data.loads[data.loads["outcome"] == "loaded"]
     raise KeyError(name)
 
 
@@ -333,14 +341,14 @@ def iter_downloads(data: SiteData, prefix: str, listing: list[dict], reuse=None)
     for spec in RESOURCES:
         base = spec["name"].replace("-", "_")
         parts = _by_cycle(data, spec) if reuse is not None else None
+        kinds = ("csv",) if spec["name"] in CSV_ONLY else ("csv", "json")
         made = {}
-        for kind in ("csv", "json"):
+        for kind in kinds:
             path = f"{prefix}/{base}.{kind}"
             content = _file(data, spec, kind, reuse, path, parts)
             yield path, content
             made[kind] = _facts(content, reuse, path)
         csv_bytes, csv_sha = made["csv"]
-        json_bytes, json_sha = made["json"]
         schema = {"fields": [{"name": n, "type": t, "description": d} for n, t, d in spec["fields"]],
                   "missingValues": [""]}
         resources.append({
@@ -352,15 +360,19 @@ def iter_downloads(data: SiteData, prefix: str, listing: list[dict], reuse=None)
             "dialect": {"delimiter": ",", "doubleQuote": True, "lineTerminator": "\n", "quoteChar": '"', "header": True},
             "schema": schema,
         })
-        resources.append({
-            "name": f"{spec['name']}-json", "path": f"{base}.json", "title": spec["title"] + " (JSON)",
-            "description": f"The rows of {base}.csv as a JSON array of objects (original text, no quote prefix).",
-            "profile": "data-resource", "format": "json", "mediatype": "application/json", "encoding": "utf-8",
-            "bytes": json_bytes, "hash": f"sha256:{json_sha}", "schema": schema,
-        })
-        listing.append({"name": spec["name"], "title": spec["title"], "description": spec["description"],
-                        "rows": _rows(data, spec["name"]), "csv": f"{prefix}/{base}.csv", "json": f"{prefix}/{base}.json",
-                        "csv_bytes": csv_bytes, "json_bytes": json_bytes, "csv_sha256": csv_sha})
+        entry = {"name": spec["name"], "title": spec["title"], "description": spec["description"],
+                 "rows": _rows(data, spec["name"]), "csv": f"{prefix}/{base}.csv", "csv_bytes": csv_bytes,
+                 "csv_sha256": csv_sha, "json": None, "json_bytes": 0}
+        if "json" in made:
+            json_bytes, json_sha = made["json"]
+            resources.append({
+                "name": f"{spec['name']}-json", "path": f"{base}.json", "title": spec["title"] + " (JSON)",
+                "description": f"The rows of {base}.csv as a JSON array of objects (original text, no quote prefix).",
+                "profile": "data-resource", "format": "json", "mediatype": "application/json", "encoding": "utf-8",
+                "bytes": json_bytes, "hash": f"sha256:{json_sha}", "schema": schema,
+            })
+            entry.update(json=f"{prefix}/{base}.json", json_bytes=json_bytes)
+        listing.append(entry)
     package = {
         "profile": "data-package",
         "name": "levelfield-published-data",

@@ -2,15 +2,17 @@
 
 Templates are found along an ordered search path: an optional override folder first, then the
 built-in ``site/templates``; a template can extend a built-in one as ``default:base.html``.
-Autoescape is on for every template. The one filter that returns markup, ``json_script``,
-escapes ``<``, ``>`` and ``&`` inside the JSON it writes, so no data value can close the
-``<script>`` element it sits in.
+Autoescape is on for every template. The filters that return markup escape what they are given:
+``json_script`` escapes ``<``, ``>`` and ``&`` inside the JSON it writes, so no data value can
+close the ``<script>`` element it sits in; ``idents`` escapes the text, then sets its identifiers
+(download columns, measure names) in ``<code>``.
 """
 
 from __future__ import annotations
 
 import json
 import posixpath
+import re
 from collections.abc import Iterator, Sequence
 from pathlib import Path
 
@@ -42,6 +44,17 @@ def json_script(value) -> Markup:
     return Markup(text)
 
 
+#: A snake_case word in running text: an identifier (a download column or a measure's name).
+_IDENT = re.compile(r"\b[a-z][a-z0-9]*(?:_[a-z0-9]+)+\b")
+
+
+def idents(text) -> Markup:
+    """Text with its identifiers set as code: ``uses seats_a`` -> ``uses <code>seats_a</code>``
+    (the text is escaped first)."""
+    escaped = str(Markup.escape("" if text is None else text))
+    return Markup(_IDENT.sub(lambda m: f"<code>{m.group(0)}</code>", escaped))
+
+
 def environment(extra_dirs: Sequence[str | Path] = ()) -> jinja2.Environment:
     """The Jinja environment: override folders, then the built-in templates; autoescape always."""
     builtin = jinja2.FileSystemLoader(str(TEMPLATE_DIR))
@@ -60,6 +73,7 @@ def register_filters(env: jinja2.Environment) -> None:
     """Every filter the templates use, in one place."""
     env.filters.update({
         "json_script": json_script,
+        "idents": idents,
         "share": F.share,
         "signed": F.signed,
         "number": F.number,
@@ -75,11 +89,13 @@ def _root(page: str) -> str:
 
 
 class Renderer:
-    def __init__(self, data: SiteData, env: jinja2.Environment, reuse: Reuse | None = None):
+    def __init__(self, data: SiteData, env: jinja2.Environment, reuse: Reuse | None = None,
+                 previous_feed: bytes | None = None):
         self.data = data
         self.env = env
         self.views = Views(data)
         self.reuse = reuse
+        self.previous_feed = previous_feed
         self.inputs: dict[str, str] = {}
         self.delivered: dict[tuple, str] = {}
         if reuse is not None and reuse.out is not None and not data.empty:
@@ -100,12 +116,13 @@ class Renderer:
         return path, html.encode("utf-8")
 
     def results(self, state: str, chamber: str) -> list[Markup]:
-        """A state page's district results, one rendered table per cycle, newest first. A cycle's
-        table depends only on its unit's delivery (:func:`monitor.publish.plan.deliveries`): it is
-        kept with the site's parts and rendered again only when the unit is re-delivered."""
+        """A state page's district results: the latest cycle's table (earlier cycles are in the
+        results download: a page holding every cycle of a large chamber would weigh megabytes).
+        The table depends only on its unit's delivery (:func:`monitor.publish.plan.deliveries`): it
+        is kept with the site's parts and rendered again only when the unit is re-delivered."""
         units = self.data.units
         cycles = sorted(units.loc[(units["state"] == state) & (units["chamber"] == chamber), "cycle"].astype(int),
-                        reverse=True)
+                        reverse=True)[:1]
         names = {c: f"results.{self.delivered[(c, state, chamber)]}.{int(i == 0)}.html"
                  for i, c in enumerate(cycles) if (c, state, chamber) in self.delivered}
         html = {c: self.reuse.cached(n) for c, n in names.items()} if self.reuse is not None else {}
@@ -143,17 +160,19 @@ class Renderer:
         yield self.page(P.METHODS, "methods.html", "Methods", "methods", **v.methods())
         listing: list[dict] = []
         yield from iter_downloads(d, P.DOWNLOAD_DIR, listing, self.reuse)
-        yield self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=listing,
+        files = [{**f, "description": v.words.plain(f["description"])} for f in listing]
+        yield self.page(P.DOWNLOADS, "downloads.html", "Downloads", "downloads", files=files,
                         datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
-        yield P.FEED, atom_feed(d, v, P.FEED)
+        yield P.FEED, atom_feed(d, v, P.FEED, self.previous_feed)
 
 
 def iter_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = (), *,
-              reuse: Reuse | None = None) -> Iterator[tuple[str, bytes]]:
+              reuse: Reuse | None = None, previous_feed: bytes | None = None) -> Iterator[tuple[str, bytes]]:
     """Every generated page and download (not the static assets) as ``(path, content)``, lazily;
     with ``reuse`` (the previous build's manifest), a state or cycle page or a download whose
-    inputs did not change comes as ``(path, KEPT)`` without being rendered."""
-    return Renderer(data, environment(extra_template_dirs), reuse).render()
+    inputs did not change comes as ``(path, KEPT)`` without being rendered. ``previous_feed``:
+    the feed of the build this one replaces (None for a first build)."""
+    return Renderer(data, environment(extra_template_dirs), reuse, previous_feed).render()
 
 
 def render_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> dict[str, bytes]:

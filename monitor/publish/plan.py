@@ -7,7 +7,8 @@ Every page is listed here with the inputs it reads, named by key:
 * ``("pair", state, chamber)``: what belongs to a state chamber across cycles (plan eras, watch
   entries, flag history, corrections, seats-votes curve);
 * ``("cycle", cycle)``: what belongs to a cycle nationwide (national summary, histogram, excess seats
-  by who drew the plan, the cycle's flag history);
+  by who drew the plan, the cycle's flag history); a cycle page also reads the earlier units of each
+  of its state chambers (since when a unit is flagged, what changed since its previous cycle);
 * ``SITE``: what every page shows (parties, settings, the measures' documentation, the set of
   states, chambers and cycles, the code and templates that render them);
 * ``EVERYTHING``: the pages that summarise the whole store (home, watch list, states, cycles,
@@ -59,7 +60,9 @@ def page_inputs(data) -> dict[str, tuple]:
         out[P.state_page(data.state_slugs[s], data.chamber_slugs[ch])] = (SITE, ("pair", s, ch), *sorted(by_pair[(s, ch)]))
     for i, c in enumerate(cycles):
         before = [("cycle", p) for p in cycles[:i]][-1:]  # the national table compares with the cycle before
-        out[P.cycle_page(c)] = (SITE, ("cycle", c), *before, *sorted(by_cycle[c]))
+        # each flagged unit's "since when" and "what changed" read the earlier cycles of its state chamber
+        earlier = sorted({k for _, _, s, ch in by_cycle[c] for k in by_pair[(s, ch)] if k[1] < c})
+        out[P.cycle_page(c)] = (SITE, ("cycle", c), *before, *sorted(by_cycle[c]), *earlier)
     return out
 
 

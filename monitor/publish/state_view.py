@@ -3,6 +3,8 @@ votes, seats-votes curve, results, corrections and flag history (a part of :clas
 
 from __future__ import annotations
 
+import re
+
 import pandas as pd
 
 from monitor.coverage import summary as coverage_summary
@@ -31,7 +33,7 @@ class StatePage:
         where = f"{self.state_label(state)}, {d.chamber_label(chamber)}"
         units = self.by("units", ("state", "chamber"), (state, chamber))
         plans = self.by("plans", ("state", "chamber"), (state, chamber)).copy()
-        plans["era_label"] = [self.drawer(r.drawn_by) + (" (inferred)" if r.inferred else "") for r in plans.itertuples()]
+        plans["era_label"] = [self.drawer(r.drawn_by, r.inferred) for r in plans.itertuples()]
         current = self.by("unit_plans", ("state", "chamber"), (state, chamber)).tail(1)
         slug = "m"
         charts = []
@@ -56,14 +58,21 @@ class StatePage:
             swing = C.swing_curve("swing", curve, points, self.style, f"{where} ({cycle} results)")
         events = self.by("events", ("state", "chamber"), (state, chamber))
         watch = self.by("watch", ("state", "chamber"), (state, chamber))
+        in_force, past = self.watch_split(watch)
+        past = past.iloc[sorted(range(len(past)), key=lambda i: -int((str(past["cycles"].iloc[i]).split() or ["0"])[0]))]  # newest first
+        last = int(units["cycle"].max()) if len(units) else None
         return {
+            "latest": last, "standing": self.standing(last, state, chamber) if last is not None else None,
+            "watch_past": self._watch_rows(past, root),
+            "era_key": C.era_key(plans.assign(era_label=plans["era_label"])) if len(plans) else "",
             "state": self.state_label(state), "code": state, "chamber": d.chamber_label(chamber), "where": where,
+            "chamber_code": chamber,
             "current_plan": self._plan_row(current.iloc[0]) if len(current) else None,
             "eras": [{"plan_id": r.plan_id, "first": int(r.first_cycle),
                       "last": "" if F.missing(r.last_cycle) else str(int(r.last_cycle)),
-                      "drawn_by": self.drawer(r.drawn_by), "inferred": bool(r.inferred), "note": F.text(r.note),
+                      "drawn_by": self.drawer(r.drawn_by, r.inferred), "inferred": bool(r.inferred), "note": F.text(r.note),
                       "source": F.text(r.source)} for r in plans.itertuples()],
-            "watch": self._watch_rows(watch, root), "charts": charts, "seats_chart": seats_chart,
+            "watch": self._watch_rows(in_force, root), "charts": charts, "seats_chart": seats_chart,
             "undefined": self._undefined_reasons(state, chamber) if not charts else [],
             "swing": swing, "swing_cycle": int(points["cycle"].iloc[0]) if not points.empty else None,
             "table": self._measure_table(state, chamber, units),
@@ -82,11 +91,12 @@ class StatePage:
         """Why the headline measures have no value for this state (as the engine stored it)."""
         m = self.by("measures", ("state", "chamber"), (state, chamber))
         m = m[m["measure"].isin(self.d.headline()) & m["value"].isna()]
-        return sorted({F.text(r) for r in m["reason"] if F.text(r)})
+        return sorted({self.words.plain(F.text(r)) for r in m["reason"] if F.text(r)})
 
     def _plan_row(self, r) -> dict:
         return {"plan_id": r["plan_id"] if isinstance(r["plan_id"], str) else None,
-                "drawn_by": self.drawer(r["drawn_by"]), "inferred": bool(r["inferred"]), "cycle": int(r["cycle"])}
+                "drawn_by": self.drawer(r["drawn_by"], r["inferred"]), "inferred": bool(r["inferred"]),
+                "cycle": int(r["cycle"])}
 
     def _seats_over_time(self, state: str, chamber: str, units: pd.DataFrame) -> pd.DataFrame:
         """Party a's vote share and seat share per cycle as the measures define them: the districts
@@ -125,12 +135,12 @@ class StatePage:
             if name not in present:
                 continue
             if F.missing(value):
-                text = f"{F.DASH} ({reason})" if isinstance(reason, str) else F.DASH
+                text = f"{F.DASH} ({self.words.plain(reason)})" if isinstance(reason, str) else F.DASH
             else:
                 text = self.measure_value(name, value) + ("" if F.missing(p) else f" (p {F.pvalue(p)})")
             cells[(int(cycle), name)] = text
         pool = self.by("pool", ("state", "chamber"), (state, chamber))
-        excess = {int(c): F.signed(x, 2) for c, x in zip(pool["cycle"], pool["excess_seats"])}
+        excess = {int(c): self.words.stake(x).text for c, x in zip(pool["cycle"], pool["excess_seats"])}
         flagged = self.by("tails", ("state", "chamber"), (state, chamber))
         flags: dict[int, list[str]] = {}
         for cycle, name, flag, direction in zip(flagged["cycle"], flagged["measure"], flagged["flagged"], flagged["direction"]):
@@ -147,7 +157,10 @@ class StatePage:
             rows.append({"cycle": cycle, "unofficial": cert == "unofficial", "incomplete": incomplete, "cells": row})
         labels = {"vote_share": f"{d.label('vote_share')}, two-party, after the uncontested policy",
                   "seat_share": f"{d.label('seat_share')}, districts in the measures"}
-        return {"columns": [labels.get(n) or d.label(n) for n in present] + ["Excess seats (national pool)", "Flags"],
+        signed = {m.name for m in registry.measures() if m.signed}
+        columns = [(labels.get(n) or d.label(n)) + (f" (+ favours {d.parties['a'].name})" if n in signed else "")
+                   for n in present]
+        return {"columns": columns + ["Seats at stake (national pool)", "Flags"],
                 "rows": rows}
 
     def _coverage(self, state: str, chamber: str) -> list[dict]:
@@ -162,10 +175,11 @@ class StatePage:
             share = r["seat_coverage"]
             g = by_cycle.get(cycle, gaps.iloc[0:0])
             rows.append({
-                "cycle": cycle, "summary": coverage_summary(r), "incomplete": int(r["incomplete"]) == 1,
+                "cycle": cycle, "summary": _whole_in_words(coverage_summary(r)), "incomplete": int(r["incomplete"]) == 1,
                 "share": F.share(share, 0),
                 "never_flagged": not F.missing(share) and float(share) < self.d.min_coverage,
-                "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats), "reason": reason}
+                "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats),
+                          "reason": self.words.plain(F.text(reason))}
                          for dist, seats, gap, reason in zip(g["district"], g["seats"], g["gap"], g["reason"])],
             })
         return rows
@@ -185,15 +199,20 @@ class StatePage:
         c = self.d.corrections
         c = c[(c["state"] == state) & (c["chamber"] == chamber)]
         return [{"cycle": int(r.cycle), "load": f"#{int(r.load_id)}", "file_name": r.file_name,
-                 "at": F.stamp(parse_time(r.loaded_at)), "changes": list(r.changes) or ["no difference found"],
+                 "at": F.stamp(parse_time(r.loaded_at)),
+                 "changes": [self.words.change(c) for c in r.changes] or ["no difference found"],
                  "basis": r.basis, "superseded": f"#{int(r.old_load_id)}"}
                 for r in c.sort_values(["load_id", "cycle"], ascending=False).itertuples()]
 
     def _results(self, state: str, chamber: str, cycles=None) -> list[dict]:
-        """Each cycle's district results (of ``cycles`` only, when given), newest first."""
+        """Each cycle's district results (of ``cycles`` only, when given), newest first, each in
+        natural district order (1, 2, ..., 10)."""
         c = self.d.contests_of(state, chamber, cycles)
+        if len(c):
+            c = c.iloc[sorted(range(len(c)), key=lambda i: (district_key(c["district"].iloc[i]),
+                                                              int(c["special"].iloc[i]), int(c["runoff"].iloc[i])))]
         out = []
-        for cycle, part in sorted(c.groupby("cycle"), key=lambda kv: -kv[0]):
+        for cycle, part in sorted(c.groupby("cycle", sort=False), key=lambda kv: -kv[0]):
             cols = {k: part[k].tolist() for k in ("district", "special", "runoff", "seats", "votes_a", "votes_b",
                                                   "votes_other", "share_a", "share_used", "imputed", "winner", "status")}
             rows = [{
@@ -213,6 +232,18 @@ class StatePage:
 
 
 
+def district_key(code) -> tuple:
+    """Natural order of district codes: numbers by value (``2`` before ``10``, ``007`` as 7),
+    then codes with letters by their text (``AL``, ``12A``).
+
+    >>> sorted(["10", "2", "AL", "1", "12A", "007"], key=district_key)
+    ['1', '2', '007', '10', '12A', 'AL']
+    """
+    text = str(code)
+    parts = re.split(r"(\d+)", text)
+    return (0 if text.isdigit() else 1, [(0, int(p), "") if p.isdigit() else (1, 0, p.casefold()) for p in parts if p])
+
+
 def applies(threshold: dict, chamber: str) -> bool:
     """Whether a proposed threshold is meant for this chamber: proposals for congressional plans
     go with the federal chamber, proposals for state-house plans with the state chambers; a
@@ -223,3 +254,14 @@ def applies(threshold: dict, chamber: str) -> bool:
     if "state" in text:
         return chamber != "federal"
     return True
+
+
+_WHOLE = re.compile(r"the whole chamber \(\w+_whole (\d{4}): ([\d+]+)\)")
+
+
+def _whole_in_words(text: str) -> str:
+    """A staggered chamber's coverage source without the whole-chamber unit's code:
+    ``the whole chamber (state_upper_whole 2024: 2022+2024)`` -> ``the whole chamber (its latest
+    election of every seat, 2022 and 2024)``."""
+    return _WHOLE.sub(lambda m: "the whole chamber (its latest election of every seat, "
+                                + " and ".join(m.group(2).split("+")) + ")", text)

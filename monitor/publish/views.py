@@ -15,17 +15,17 @@ from monitor.publish import charts as C
 from monitor.publish import formats as F
 from monitor.publish import paths as P
 from monitor.publish.collect import SiteData, flag_changes, parse_time
+from monitor.publish.standing import Standing, flagged_sentence
 from monitor.publish.state_view import StatePage
+from monitor.publish.words import NOT_RECORDED, Words
 
 #: Measures in the store whose flag lives in ``tails`` under another name.
 TAIL_OF = {m.name: m.tail for m in registry.measures() if m.tail and m.tail != m.name}
 #: Tail names whose null band is in the measure's own units (so it can be drawn behind it).
 NULL_BANDS = {m.flag.name for m in registry.measures() if m.null_band}
 
-DRAWERS = {"party_a": "party a", "party_b": "party b", "split": "split control", "commission": "a commission",
-           "court": "a court", "other": "other"}
 #: The excess-by-drawer groups of :mod:`monitor.national` that are not a ``drawn_by`` code.
-DRAWER_GROUPS = {"inferred": "inferred era (who drew it not recorded)", "no_plan": "no plan era"}
+DRAWER_GROUPS = {"inferred": NOT_RECORDED, "no_plan": "no plan era"}
 
 #: Short names of the measures the flags judge, for dense tables.
 SHORT = {m.flag.name: m.flag.short for m in registry.flagged()}
@@ -34,11 +34,12 @@ SHARE_MEASURES = {m.name for m in registry.measures() if m.kind == "share"}
 COUNT_MEASURES = {m.name for m in registry.measures() if m.kind == "count"}
 
 
-class Views(StatePage):
+class Views(StatePage, Standing):
     """Page contexts for one :class:`SiteData`."""
 
     def __init__(self, data: SiteData):
         self.d = data
+        self.words = Words(data.parties)
         self.style = C.Style(data.parties["a"], data.parties["b"])
         self._splits: dict = {}
         self._mf = self._headline_frame()
@@ -69,21 +70,18 @@ class Views(StatePage):
             out[col] = pd.to_numeric(out[col], errors="coerce").astype(float)
         out.loc[no_band, ["null_low", "null_high"]] = np.nan
         out["flagged"] = out["flagged"].fillna(0).astype(int)
-        out["state_label"] = out["state"].map(d.state_name)
+        out["state_label"] = out["state"].map(self.state_label)
+        districts = d.measures[d.measures["measure"] == "districts"][[*UNIT_KEYS, "value"]]
+        out = out.merge(districts.rename(columns={"value": "districts"}), on=UNIT_KEYS, how="left")
+        out["districts"] = pd.to_numeric(out["districts"], errors="coerce").astype(float)
         return out.sort_values([*UNIT_KEYS, "measure"]).reset_index(drop=True)
 
     # --- names and links ------------------------------------------------------------------
     def party(self, code) -> str:
         return self.style.party(code) if code in ("a", "b") else (F.text(code) or F.DASH)
 
-    def drawer(self, drawn_by) -> str:
-        if drawn_by is None or (isinstance(drawn_by, float) and np.isnan(drawn_by)):
-            return "not recorded"
-        if drawn_by == "party_a":
-            return self.d.parties["a"].name
-        if drawn_by == "party_b":
-            return self.d.parties["b"].name
-        return DRAWERS.get(drawn_by, str(drawn_by))
+    def drawer(self, drawn_by, inferred=False) -> str:
+        return self.words.drawer(drawn_by, inferred)
 
     def state_path(self, state: str, chamber: str) -> str:
         return P.state_page(self.d.state_slugs[state], self.d.chamber_slugs[chamber])
@@ -105,8 +103,8 @@ class Views(StatePage):
         loads = self.d.loads[self.d.loads["outcome"] == "loaded"]
         if load_ids is not None:
             loads = loads[loads["id"].isin({int(i) for i in load_ids})]
-        rows = [{"id": int(r.id), "file_name": r.file_name, "loaded_at": r.loaded_at, "sha256": r.sha256,
-                 "short": r.sha256[:12]} for r in loads.itertuples()]
+        rows = [{"id": int(r.id), "file_name": r.file_name, "source": F.text(r.source), "loaded_at": r.loaded_at,
+                 "sha256": r.sha256, "short": r.sha256[:12]} for r in loads.itertuples()]
         times = [t for t in (parse_time(r["loaded_at"]) for r in rows) if t is not None]
         return {"loads": rows, "count": len(rows), "latest": rows[-1] if rows else None,
                 "first_day": F.day(min(times, default=None)), "last_day": F.day(max(times, default=None)),
@@ -119,20 +117,23 @@ class Views(StatePage):
         return self.by("_mf", ("cycle", "chamber", "measure"), (cycle, chamber, measure))
 
     def _watch_rows(self, watch: pd.DataFrame, root: str) -> list[dict]:
+        """Watch-list rows in words: the party the measures agree on, and the seats at stake by the
+        one sign rule (a row whose seats point the other way says so)."""
         rows = []
         unofficial, incomplete = self._unofficial_units, self._incomplete_units
+        w = self.words
         for r in watch.itertuples():
-            severity, stake = _severity_and_stake(r.severity, r.seats_at_stake)
             cycles = str(r.cycles or "").split()
+            stake = w.stake(r.seats_at_stake)
             rows.append({
                 "state": self.state_label(r.state), "state_code": r.state, "chamber": self.d.chamber_short(r.chamber),
                 "href": root + self.state_path(r.state, r.chamber) if (r.state, r.chamber) in self._pairs else None,
-                "plan_id": r.plan_id, "drawn_by": self.drawer(r.drawn_by), "inferred": bool(r.inferred),
-                "favours": self.party(r.favours), "favours_code": r.favours,
-                "severity": severity, "severity_sort": _num(r.severity),
-                "seats_at_stake": stake, "stake_sort": _num(r.seats_at_stake),
+                "plan_id": r.plan_id, "drawn_by": self.drawer(r.drawn_by, r.inferred), "inferred": bool(r.inferred),
+                "favours": w.party(r.favours), "favours_code": r.favours,
+                "stake": stake, "stake_sort": _num(abs(float(r.seats_at_stake)) if not F.missing(r.seats_at_stake) else None),
+                "disagree": stake.code not in (None, r.favours),
                 "concurring": F.count(r.concurring), "concurring_sort": _num(r.concurring),
-                "measures": [SHORT.get(m, m.replace("_", " ")) for m in F.text(r.measures).split()],
+                "measures": [w.measure(m) for m in F.text(r.measures).split()],
                 "cycles": [{"cycle": c, "unofficial": (int(c), r.state, r.chamber) in unofficial,
                             "incomplete": (int(c), r.state, r.chamber) in incomplete} for c in cycles],
                 "cycles_count": len(cycles),
@@ -173,7 +174,7 @@ class Views(StatePage):
                 "state": self.state_label(e.state), "chamber": self.d.chamber_short(e.chamber),
                 "href": root + self.state_path(e.state, e.chamber) if (e.state, e.chamber) in self._pairs else None,
                 "plan_id": F.text(e.plan_id), "measure": self.d.label(e.measure) if F.text(e.measure) else "",
-                "favours": self.party(e.direction), "why": F.text(e.why),
+                "favours": self.party(e.direction), "why": self.words.why(e.why),
                 "load": "" if F.missing(e.load_id) else f"#{int(e.load_id)}",
             })
         return rows
@@ -185,13 +186,19 @@ class Views(StatePage):
 
     # --- pages --------------------------------------------------------------------------------
     def home(self, root: str) -> dict:
+        """The latest cycle first: per chamber, the units flagged in it (direction, seats at stake,
+        why, since when, what changed) and those no longer flagged; then the plans on watch that
+        are in force; then the national picture."""
         d = self.d
-        ctx = {"empty": d.empty, "latest": d.latest_cycle, "latest_by_chamber": [], "sections": [],
-               "provenance": self.provenance(), "watch": self._watch_rows(d.watch.head(10), root),
-               "watch_total": len(d.watch), "unofficial": [], "changes": [], "events": []}
+        in_force, past = self.watch_split()
+        ctx = {"empty": d.empty, "latest": d.latest_cycle, "latest_by_chamber": [], "sections": [], "tails": [],
+               "title_cycles": "",
+               "provenance": self.provenance(), "watch": self._watch_rows(in_force, root),
+               "watch_past": len(past), "watch_total": len(d.watch), "unofficial": []}
         if d.empty:
             return ctx
         latest = d.chamber_latest()
+        ctx["title_cycles"] = " and ".join(str(c) for c in sorted(set(latest.values())))
         units = d.units[d.units["cycle"] == d.units["chamber"].map(latest)]
         for chamber in d.chambers:
             part = units[units["chamber"] == chamber]
@@ -202,30 +209,36 @@ class Views(StatePage):
                                           "all": len(listed) == len(part), "units": listed})
         for chamber in d.chambers:
             cycle = latest[chamber]
-            cycles = d.chamber_cycles(chamber)
             label = d.chamber_label(chamber)
-            slug = d.chamber_slugs[chamber]
             ctx["latest_by_chamber"].append({"chamber": label, "cycle": cycle, "href": root + P.cycle_page(cycle)})
+            ctx["tails"].append(self._tails_section(cycle, chamber, root))
+            slug = d.chamber_slugs[chamber]
             section = {"chamber": label, "cycle": cycle, "href": root + P.cycle_page(cycle),
-                       "summary": self._national_rows(chamber, cycles[-2:]),
+                       "summary": self._national_rows(chamber, d.chamber_cycles(chamber)[-2:]),
                        "histogram": self._histogram(f"hist-{slug}", cycle, chamber), "charts": []}
             for measure in d.headline():
                 frame = self._measure_frame(measure, cycle=cycle, chamber=chamber)
                 if frame["value"].notna().sum() == 0:
                     continue
                 section["charts"].append(C.distribution(f"dist-{slug}-{measure}", frame, measure, d.label(measure),
-                                                        self.style, cycle, label))
+                                                        self.style, cycle, label, self._min_districts))
             ctx["sections"].append(section)
-        ctx["changes"] = [{"state": self.state_label(r.state), "chamber": d.chamber_short(r.chamber),
-                           "href": root + self.state_path(r.state, r.chamber) if (r.state, r.chamber) in self._pairs else None,
-                           "measure": d.label(r.measure), "change": r.change,
-                           "cycle_before": "" if F.missing(r.cycle_before) else str(int(r.cycle_before)),
-                           "cycle_now": str(int(r.cycle_now)),
-                           "before": self.party(r.before), "now": self.party(r.now)} for r in flag_changes(d).itertuples()]
-        e = d.events
-        at_latest = e["cycle"].astype(float) == e["chamber"].map(latest).astype(float)
-        ctx["events"] = self._events(e[at_latest | e["cycle"].isna()].tail(15), root)
         return ctx
+
+    def _tails_section(self, cycle: int, chamber: str, root: str) -> dict:
+        """One chamber's flagged units of one cycle, and those flagged only in their previous cycle."""
+        d = self.d
+        rows = self.flagged_in(cycle, chamber, root)
+        units = self.by("units", ("cycle",), cycle)
+        n = int((units["chamber"] == chamber).sum())
+        return {"chamber": d.chamber_label(chamber), "cycle": cycle, "href": root + P.cycle_page(cycle),
+                "rows": rows, "states": n, "summary": flagged_sentence(rows, self.words),
+                "cleared": self.cleared_in(cycle, chamber, root)}
+
+    @property
+    def _min_districts(self) -> int:
+        """``flags.min_districts``: units with fewer districts are never flagged."""
+        return int(next((s["value"] for s in self.d.settings if s["name"] == "flags.min_districts"), 6))
 
     def _histogram(self, chart_id: str, cycle: int, chamber: str):
         """The national histogram of one cycle and chamber (None without districts in the measures),
@@ -264,29 +277,46 @@ class Views(StatePage):
                 "partial": (f"over the {F.count(r['measured_units'])} of {F.count(r['states'])} states with stored "
                             "measures") if partial else "",
                 "flagged_units": F.count(r["flagged_units"]),
-                "excess": F.signed(r["excess_seats"], 2) if int(r["pool_units"]) else F.DASH,
+                "excess": self.words.stake(r["excess_seats"]) if int(r["pool_units"]) else None,
             })
         return rows
 
     def watch(self, root: str) -> dict:
-        return {"rows": self._watch_rows(self.d.watch, root), "provenance": self.provenance(), "empty": self.d.empty}
+        in_force, past = self.watch_split()
+        return {"rows": self._watch_rows(in_force, root), "past": self._watch_rows(past, root),
+                "provenance": self.provenance(), "empty": self.d.empty}
 
     def states(self, root: str) -> dict:
+        """Every state and chamber: its plan in force, whether it is flagged in its latest cycle,
+        whether the plan in force is on watch, and (apart) past plans that were."""
         d = self.d
         rows = []
-        on_watch = set(zip(d.watch["state"], d.watch["chamber"]))
+        in_force, past = self.watch_split()
+        force = {(r.state, r.chamber): r for r in in_force.itertuples()}
+        earlier: dict[tuple, list[str]] = {}
+        for r in past.itertuples():
+            earlier.setdefault((r.state, r.chamber), []).append(
+                f"{r.plan_id} ({self.words.party(r.favours)}, cycles {', '.join(str(r.cycles).split())})")
         for state, chamber in d.pairs():
             u = self.by("units", ("state", "chamber"), (state, chamber))
             plan = self.by("unit_plans", ("state", "chamber"), (state, chamber)).tail(1)
             p = plan.iloc[0] if len(plan) else None
+            last = int(u["cycle"].max())
+            standing = self.standing(last, state, chamber)
+            watch = force.get((state, chamber))
             rows.append({"state": self.state_label(state), "chamber": d.chamber_short(chamber),
                          "href": root + self.state_path(state, chamber),
-                         "cycles": f"{int(u['cycle'].min())}{F.DASH}{int(u['cycle'].max())} ({len(u)})",
+                         "cycles": f"{int(u['cycle'].min())}{F.DASH}{last} ({len(u)})",
                          "plan": (p["plan_id"] if p is not None and isinstance(p["plan_id"], str) else F.DASH),
-                         "drawn_by": self.drawer(p["drawn_by"]) if p is not None else F.DASH,
+                         "drawn_by": self.drawer(p["drawn_by"], p["inferred"]) if p is not None else F.DASH,
                          "inferred": bool(p is not None and p["inferred"]),
-                         "watch": (state, chamber) in on_watch})
-        return {"rows": rows, "provenance": self.provenance(), "empty": d.empty}
+                         "latest": last, "standing": standing,
+                         "watch": self.words.stake(watch.seats_at_stake) if watch is not None else None,
+                         "watch_favours": self.words.party(watch.favours) if watch is not None else "",
+                         "past": earlier.get((state, chamber), [])})
+        rows.sort(key=lambda r: (r["state"].casefold(), r["chamber"]))  # by name, as a reader looks one up
+        return {"rows": rows, "provenance": self.provenance(), "empty": d.empty,
+                "in_force": len(in_force), "past_plans": len(past)}
 
     def cycles(self, root: str) -> dict:
         d = self.d
@@ -314,11 +344,12 @@ class Views(StatePage):
                 frame = self._measure_frame(measure, cycle=cycle, chamber=chamber)
                 if frame["value"].notna().sum() == 0:
                     continue
-                charts.append(C.ranking(f"rank-{slug}-{measure}", frame, measure, d.label(measure), self.style, cycle, label))
+                charts.append(C.ranking(f"rank-{slug}-{measure}", frame, measure, d.label(measure), self.style, cycle,
+                                        label, self._min_districts))
             pool = self.by("pool", ("cycle", "chamber"), (cycle, chamber)).copy()
             pool_chart = drawer_chart = None
             if pool["expected_seats"].notna().any():
-                pool["state_label"] = pool["state"].map(d.state_name)
+                pool["state_label"] = pool["state"].map(self.state_label)
                 for col in ("seats_a", "expected_seats", "low", "high", "excess_seats"):
                     pool[col] = pd.to_numeric(pool[col], errors="coerce").astype(float)
                 pool_chart = C.pool_seats(f"pool-{slug}", pool, self.style, cycle, label)
@@ -330,7 +361,8 @@ class Views(StatePage):
             states = [{"state": self.state_label(s), "href": root + self.state_path(s, chamber),
                        "incomplete": (int(cycle), s, chamber) in self._incomplete_units}
                       for s in sorted(units.loc[units["chamber"] == chamber, "state"])]
-            sections.append({"chamber": label, "charts": charts, "pool": pool_chart, "drawer": drawer_chart,
+            sections.append({"chamber": label, "tails": self._tails_section(cycle, chamber, root),
+                             "charts": charts, "pool": pool_chart, "drawer": drawer_chart,
                              "states": states, "summary": self._national_rows(chamber, earlier[-1:] + [cycle]),
                              "histogram": self._histogram(f"hist-{slug}", cycle, chamber)})
         events = self.by("events", ("cycle",), cycle)
@@ -345,27 +377,16 @@ class Views(StatePage):
 
     def methods(self) -> dict:
         d = self.d
-        docs = [{"name": m.name, "label": m.label, "formula": m.formula, "sign": m.sign, "source": m.source,
-                 "signed": m.signed, "interval": m.interval is not None, "p_value": m.p_value, "plain": m.plain}
+        w = self.words
+        docs = [{"name": m.name, "label": d.label(m.name), "formula": m.formula, "sign": w.plain(m.sign),
+                 "source": m.source, "signed": m.signed, "interval": m.interval is not None,
+                 "p_value": w.plain(m.p_value) if m.p_value else m.p_value, "plain": w.plain(m.plain)}
                 for m in d.measure_docs]
         settings = [{"name": s["name"], "value": _setting(s["value"], s["name"]),
                      "default": _setting(s["default"], s["name"]),
-                     "changed": s["value"] != s["default"], "help": s["help"]} for s in d.settings]
+                     "changed": s["value"] != s["default"], "help": w.plain(s["help"])} for s in d.settings]
         return {"docs": docs, "settings": settings, "policy": d.policy, "thresholds": d.thresholds,
-                "provenance": self.provenance()}
-
-
-def _severity_and_stake(severity, stake) -> tuple[str, str]:
-    """The watch list's severity and signed seats at stake, shown with one rounding: the stored
-    severity (seats at stake, absolute, two decimals) with the sign of the seats at stake, so that
-    "1.77" never stands beside "(−1.76)"."""
-    if F.missing(severity):
-        return F.DASH, F.signed(stake, 2)
-    shown = f"{abs(float(severity)):.2f}"
-    if F.missing(stake):
-        return shown, F.DASH
-    sign = F.MINUS if float(stake) < 0 else "+"
-    return shown, sign + shown
+                "labels": {m.name: d.label(m.name) for m in d.measure_docs}, "provenance": self.provenance()}
 
 
 def _num(value) -> str:
