@@ -9,6 +9,7 @@ plumbing checked against a hand computation, not a measure check)."""
 from __future__ import annotations
 
 import csv
+import re
 from collections import defaultdict
 from pathlib import Path
 
@@ -140,3 +141,18 @@ def test_the_archive_goes_through_compute(archive):
     assert lf.rows("SELECT COUNT(DISTINCT cycle || state) FROM measures") == [(12,)]
     assert lf.rows("SELECT value FROM measures WHERE cycle = 2018 AND state = 'KR' AND measure = 'districts'") \
         in ([(4.0,)], [(4,)])
+
+
+def test_a_placeholder_count_is_visible_on_its_state_page(archive):
+    """Issue 13, item 3: a contest whose count was a placeholder (unopposed, not on the ballot)
+    says so in the state page's district results (TM federal 2020, district 1: a lone 0)."""
+    lf, _ = archive
+    lf("compute")
+    lf("flags")
+    lf("publish")
+    public = lf.root / "public"
+    pages = [public / "state" / "tm" / "federal.html"]
+    text = " ".join(re.sub(r"<[^>]+>", " ", p.read_text(encoding="utf-8")) for p in pages)
+    assert "placeholder count: unopposed, not on the ballot" in text
+    # the other districts of that cycle are not marked
+    assert text.count("placeholder count") == 1

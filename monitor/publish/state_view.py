@@ -209,20 +209,27 @@ class StatePage:
         natural district order (1, 2, ..., 10)."""
         c = self.d.contests_of(state, chamber, cycles)
         if len(c):
+            pos = c["position"].fillna("").astype(str) if "position" in c else pd.Series("", index=c.index)
             c = c.iloc[sorted(range(len(c)), key=lambda i: (district_key(c["district"].iloc[i]),
+                                                              district_key(pos.iloc[i]),
                                                               int(c["special"].iloc[i]), int(c["runoff"].iloc[i])))]
         out = []
         for cycle, part in sorted(c.groupby("cycle", sort=False), key=lambda kv: -kv[0]):
-            cols = {k: part[k].tolist() for k in ("district", "special", "runoff", "seats", "votes_a", "votes_b",
-                                                  "votes_other", "share_a", "share_used", "imputed", "winner", "status")}
+            part = part.assign(position=part["position"].fillna("").astype(str) if "position" in part else "",
+                               placeholder=part["placeholder"].fillna(0).astype(int) if "placeholder" in part else 0,
+                               left_out=part["left_out"] if "left_out" in part else None)
+            cols = {k: part[k].tolist() for k in ("district", "position", "special", "runoff", "seats", "votes_a",
+                                                  "votes_b", "votes_other", "share_a", "share_used", "imputed", "winner",
+                                                  "status", "placeholder", "decides", "left_out")}
             rows = [{
-                "district": dist + {(1, 0): " (special)", (0, 1): " (runoff)", (1, 1): " (special runoff)"}.get(
-                    (int(spec), int(run)), ""), "seats": int(seats),
+                "district": dist + (f", seat {pos}" if pos else "") + {
+                    (1, 0): " (special)", (0, 1): " (runoff)", (1, 1): " (special runoff)"}.get((int(spec), int(run)), ""),
+                "seats": int(seats),
                 "votes_a": F.count(va), "votes_b": F.count(vb), "votes_other": F.count(vo), "share": F.share(sa),
                 "share_used": F.share(su) + (" (imputed)" if imp else ""),
                 "winner": self.party(win) if win in ("a", "b") else win, "winner_code": win,
-                "status": status.replace("_", " "),
-            } for dist, spec, run, seats, va, vb, vo, sa, su, imp, win, status in zip(*cols.values())]
+                "status": contest_status(status, int(ph), int(dec), self.words.plain(F.text(out))),
+            } for dist, pos, spec, run, seats, va, vb, vo, sa, su, imp, win, status, ph, dec, out in zip(*cols.values())]
             deciding = part[part["decides"].astype(int) == 1]  # one contest per seat
             out.append({"cycle": int(cycle), "unofficial": part["certification"].iloc[0] == "unofficial", "rows": rows,
                         "seats_a": F.number(deciding["seats_a"].sum(), 1),
@@ -230,6 +237,24 @@ class StatePage:
                         "load": int(part["load_id"].iloc[0])})
         return out
 
+
+
+def contest_status(status: str, placeholder: int, decides: int, left_out: str) -> str:
+    """A contest's status in words, saying when its count was a placeholder (unopposed, not on the
+    ballot: entered as an uncontested win) and, for a contest that does not decide its seat,
+    why it is kept as history only.
+
+    >>> contest_status("uncontested", 1, 1, "")
+    'uncontested (placeholder count: unopposed, not on the ballot)'
+    >>> contest_status("contested", 0, 0, "replaced by a special election")
+    'contested; not counted: replaced by a special election'
+    """
+    text = status.replace("_", " ")
+    if placeholder:
+        text += " (placeholder count: unopposed, not on the ballot)"
+    if not decides:
+        text += "; not counted" + (f": {left_out}" if left_out else " (another contest decides the seat)")
+    return text
 
 
 def district_key(code) -> tuple:
