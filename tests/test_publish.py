@@ -701,6 +701,19 @@ def test_sample_history_site(sample_workspace, tmp_path):
         watch = (out / P.WATCH).read_text(encoding="utf-8")
         for plan in data.watch["plan_id"]:
             assert plan in watch
+        # a staggered senate is judged as a whole chamber (README "Staggered chambers"): its plan in
+        # force is listed with the plans in force (not as a past plan), linked to the senate's page,
+        # and its latest cycle's flag is on the home page under the upper chamber
+        in_force, past = v.watch_split()
+        whole = in_force[in_force["chamber"].str.endswith("_whole")]
+        assert len(whole) >= 2, in_force[["state", "chamber", "plan_id"]]
+        assert not past["plan_id"].isin(whole["plan_id"]).any()
+        force_part = watch.split("Past plans on watch")[0]
+        for r in whole.itertuples():
+            assert r.plan_id in force_part
+            assert f'href="{v.state_path(r.state, r.chamber.removesuffix("_whole"))}"' in force_part
+        upper = [s["state_code"] for s in v.flagged_in(data.chamber_latest()["state_upper"], "state_upper", "")]
+        assert set(whole["state"]) <= set(upper), upper
     finally:
         db.conn.close()
     assert check_links(out) > 1000

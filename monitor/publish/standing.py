@@ -25,6 +25,7 @@ import pandas as pd
 from monitor.inputs import UNIT_KEYS
 from monitor.publish import formats as F
 from monitor.publish.words import join_words
+from monitor.staggered import base_chamber, whole_code
 
 
 class Standing:
@@ -53,6 +54,9 @@ class Standing:
             self._unit_plan_cache = {(int(c), s, ch): (pid if isinstance(pid, str) else None, by, int(inf or 0))
                                      for c, s, ch, pid, by, inf in zip(p["cycle"], p["state"], p["chamber"],
                                                                        p["plan_id"], p["drawn_by"], p["inferred"])}
+            # a whole-chamber unit of a staggered chamber is under its chamber's plan
+            self._unit_plan_cache.update({(c, s, whole_code(ch)): v for (c, s, ch), v in
+                                          list(self._unit_plan_cache.items())})
         return self._unit_plan_cache
 
     def _pool_row(self, cycle: int, state: str, chamber: str):
@@ -60,7 +64,8 @@ class Standing:
         return rows.iloc[0] if len(rows) else None
 
     def unit_cycles(self, state: str, chamber: str) -> list[int]:
-        return sorted(int(c) for c in self.by("units", ("state", "chamber"), (state, chamber))["cycle"])
+        """The cycles with results of a state's chamber (a whole-chamber unit: of its chamber)."""
+        return sorted(int(c) for c in self.by("units", ("state", "chamber"), (state, base_chamber(chamber)))["cycle"])
 
     # --- one unit ------------------------------------------------------------------------------
     def direction(self, flags: dict[str, list[str]]) -> str | None:
@@ -171,10 +176,12 @@ class Standing:
         units = self.by("units", ("cycle",), cycle)
         rows = []
         for state in sorted(units.loc[units["chamber"] == chamber, "state"]):
-            s = self.standing(cycle, state, chamber)
-            if s is not None:
-                s["href"] = root + self.state_path(state, chamber)
-                rows.append(s)
+            # a staggered chamber's per-cycle units are never flagged: its whole-chamber unit is
+            for judged in (chamber, whole_code(chamber)):
+                s = self.standing(cycle, state, judged)
+                if s is not None:
+                    s["href"] = root + self.state_path(state, chamber)
+                    rows.append(s)
         return sorted(rows, key=lambda s: (-(abs(s["stake"].value) if s["stake"].value is not None else -1),
                                            s["state"]))
 

@@ -13,6 +13,7 @@ from monitor.measures import registry
 from monitor.publish import charts as C
 from monitor.publish import formats as F
 from monitor.publish.collect import parse_time
+from monitor.staggered import whole_code
 
 #: Column labels of the seats-and-votes chart's table: which share each line is (the same shares
 #: as the measures table and the seats-votes curve).
@@ -57,12 +58,16 @@ class StatePage:
             cycle = int(points["cycle"].iloc[0])
             swing = C.swing_curve("swing", curve, points, self.style, f"{where} ({cycle} results)")
         events = self.by("events", ("state", "chamber"), (state, chamber))
-        watch = self.by("watch", ("state", "chamber"), (state, chamber))
+        # a staggered chamber is judged as a whole chamber: its watch rows and standing are shown here
+        watch = pd.concat([self.by("watch", ("state", "chamber"), (state, chamber)),
+                           self.by("watch", ("state", "chamber"), (state, whole_code(chamber)))])
         in_force, past = self.watch_split(watch)
         past = past.iloc[sorted(range(len(past)), key=lambda i: -int((str(past["cycles"].iloc[i]).split() or ["0"])[0]))]  # newest first
         last = int(units["cycle"].max()) if len(units) else None
         return {
-            "latest": last, "standing": self.standing(last, state, chamber) if last is not None else None,
+            "latest": last,
+            "standing": (self.standing(last, state, chamber) or self.standing(last, state, whole_code(chamber)))
+            if last is not None else None,
             "watch_past": self._watch_rows(past, root),
             "era_key": C.era_key(plans.assign(era_label=plans["era_label"])) if len(plans) else "",
             "state": self.state_label(state), "code": state, "chamber": d.chamber_label(chamber), "where": where,

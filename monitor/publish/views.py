@@ -18,6 +18,7 @@ from monitor.publish.collect import SiteData, flag_changes, parse_time
 from monitor.publish.standing import Standing, flagged_sentence
 from monitor.publish.state_view import StatePage
 from monitor.publish.words import NOT_RECORDED, Words
+from monitor.staggered import base_chamber
 
 #: Measures in the store whose flag lives in ``tails`` under another name.
 TAIL_OF = {m.name: m.tail for m in registry.measures() if m.tail and m.tail != m.name}
@@ -127,7 +128,8 @@ class Views(StatePage, Standing):
             stake = w.stake(r.seats_at_stake)
             rows.append({
                 "state": self.state_label(r.state), "state_code": r.state, "chamber": self.d.chamber_short(r.chamber),
-                "href": root + self.state_path(r.state, r.chamber) if (r.state, r.chamber) in self._pairs else None,
+                "href": (root + self.state_path(r.state, base_chamber(r.chamber))
+                         if (r.state, base_chamber(r.chamber)) in self._pairs else None),
                 "plan_id": r.plan_id, "drawn_by": self.drawer(r.drawn_by, r.inferred), "inferred": bool(r.inferred),
                 "favours": w.party(r.favours), "favours_code": r.favours,
                 "stake": stake, "stake_sort": _num(abs(float(r.seats_at_stake)) if not F.missing(r.seats_at_stake) else None),
