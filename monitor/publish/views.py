@@ -18,7 +18,7 @@ from monitor.publish.collect import SiteData, flag_changes, parse_time
 from monitor.publish.standing import Standing, flagged_sentence
 from monitor.publish.state_view import StatePage
 from monitor.publish.words import NOT_RECORDED, Words
-from monitor.staggered import base_chamber
+from monitor.staggered import base_chamber, whole_code
 
 #: Measures in the store whose flag lives in ``tails`` under another name.
 TAIL_OF = {m.name: m.tail for m in registry.measures() if m.tail and m.tail != m.name}
@@ -218,12 +218,13 @@ class Views(StatePage, Standing):
             section = {"chamber": label, "cycle": cycle, "href": root + P.cycle_page(cycle),
                        "summary": self._national_rows(chamber, d.chamber_cycles(chamber)[-2:]),
                        "histogram": self._histogram(f"hist-{slug}", cycle, chamber), "charts": []}
+            judged, judged_label = self._judged(cycle, chamber)
             for measure in d.headline():
-                frame = self._measure_frame(measure, cycle=cycle, chamber=chamber)
+                frame = self._measure_frame(measure, cycle=cycle, chamber=judged)
                 if frame["value"].notna().sum() == 0:
                     continue
                 section["charts"].append(C.distribution(f"dist-{slug}-{measure}", frame, measure, d.label(measure),
-                                                        self.style, cycle, label, self._min_districts))
+                                                        self.style, cycle, judged_label, self._min_districts))
             ctx["sections"].append(section)
         return ctx
 
@@ -236,6 +237,15 @@ class Views(StatePage, Standing):
         return {"chamber": d.chamber_label(chamber), "cycle": cycle, "href": root + P.cycle_page(cycle),
                 "rows": rows, "states": n, "summary": flagged_sentence(rows, self.words),
                 "cleared": self.cleared_in(cycle, chamber, root)}
+
+    def _judged(self, cycle: int, chamber: str) -> tuple[str, str]:
+        """The chamber code whose units a cycle's charts of judged measures show, and its label: a
+        staggered chamber's whole-chamber units (its per-cycle units hold one class of the seats
+        and are never flagged), else the chamber's own."""
+        whole = whole_code(chamber)
+        if len(self.by("pool", ("cycle", "chamber"), (cycle, whole))):
+            return whole, f"{self.d.chamber_label(chamber)}, whole chambers (latest election of every seat)"
+        return chamber, self.d.chamber_label(chamber)
 
     @property
     def _min_districts(self) -> int:
@@ -342,19 +352,20 @@ class Views(StatePage, Standing):
             label = d.chamber_label(chamber)
             slug = d.chamber_slugs[chamber]
             charts = []
+            judged, judged_label = self._judged(cycle, chamber)
             for measure in d.headline():
-                frame = self._measure_frame(measure, cycle=cycle, chamber=chamber)
+                frame = self._measure_frame(measure, cycle=cycle, chamber=judged)
                 if frame["value"].notna().sum() == 0:
                     continue
                 charts.append(C.ranking(f"rank-{slug}-{measure}", frame, measure, d.label(measure), self.style, cycle,
-                                        label, self._min_districts))
-            pool = self.by("pool", ("cycle", "chamber"), (cycle, chamber)).copy()
+                                        judged_label, self._min_districts))
+            pool = self.by("pool", ("cycle", "chamber"), (cycle, judged)).copy()
             pool_chart = drawer_chart = None
             if pool["expected_seats"].notna().any():
                 pool["state_label"] = pool["state"].map(self.state_label)
                 for col in ("seats_a", "expected_seats", "low", "high", "excess_seats"):
                     pool[col] = pd.to_numeric(pool[col], errors="coerce").astype(float)
-                pool_chart = C.pool_seats(f"pool-{slug}", pool, self.style, cycle, label)
+                pool_chart = C.pool_seats(f"pool-{slug}", pool, self.style, cycle, judged_label)
             by = self.by("drawers", ("cycle", "chamber"), (cycle, chamber))
             if not by.empty:
                 by = by.assign(drawer=[self.drawer_group(k) for k in by["drawer"]])
