@@ -94,14 +94,19 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
                   "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
                   "tooltip": [_tip("state_label", "nominal", "state"), _tip("value", fmt="+.3f"), _tip("flag", "nominal")]}}
     xtitle = points["encoding"]["x"]["title"]
-    names = {"data": {"name": "states"}, "transform": [{"filter": {"field": "flag", "oneOf": flagged_labels}}],
-             "mark": {"type": "text", "dy": -11, "fontSize": 10},
-             "encoding": {"x": _q("value", title=xtitle), "y": _n("flag", title=None, sort=style.flag_domain()),
-                          "text": _n("state_label")}}
+    f = f.assign(label_level=label_levels(f, flagged_labels))
+    levels = int(f["label_level"].max()) + 1 if len(f) else 1
+    names = [{"data": {"name": "states"},
+              "transform": [{"filter": {"field": "flag", "oneOf": flagged_labels}},
+                            {"filter": {"field": "label_level", "equal": level}}],
+              "mark": {"type": "text", "dy": -11 * (level + 1), "fontSize": 10},
+              "encoding": {"x": _q("value", title=xtitle), "y": _n("flag", title=None, sort=style.flag_domain()),
+                           "text": _n("state_label")}} for level in range(levels)]
     flagged = f[f["flag"].isin(flagged_labels)]
     few = f[f["flag"] == TOO_FEW]
-    layers = [_rule("x", 0.0, xtitle), points] + ([names] if len(flagged) else [])
-    spec = _spec(layers, {"states": records(f, ["state_label", "value", "flag"])}, 110 if len(few) else 90)
+    layers = [_rule("x", 0.0, xtitle), points] + (names if len(flagged) else [])
+    spec = _spec(layers, {"states": records(f, ["state_label", "value", "flag", "label_level"])},
+                 (110 if len(few) else 90) + 11 * (levels - 1))
     desc = (f"{label} of {len(f)} states in {cycle} ({chamber_label}): median {fmt_measure(measure, f['value'].median())}, "
             f"from {fmt_measure(measure, f['value'].min())} to {fmt_measure(measure, f['value'].max())}. ")
     desc += (f"Flagged at the tails: {', '.join(f'{r.state_label} ({r.flag})' for r in flagged.itertuples())}."
@@ -111,6 +116,38 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
                  "too few to flag.")
     rows = [[r.state_label, fmt_measure(measure, r.value), r.flag] for r in f.sort_values("value", ascending=False).itertuples()]
     return Chart(chart_id, f"{label} across states, {cycle}", desc, spec, ["state", label, "flag"], rows)
+
+
+def label_levels(frame: pd.DataFrame, labelled, width_px: float = 300.0, char_px: float = 5.6) -> np.ndarray:
+    """A text row (0 = just above the point, 1 = one line higher, ...) for each labelled state of
+    a strip chart, so that names of states close together do not run into each other: within a
+    row of points, each label takes the lowest level where it clears the labels already placed,
+    judged on a plot ``width_px`` wide with ``char_px`` per character (the narrowest layout, three
+    charts abreast at 1280 px or one on a phone). Unlabelled states get 0.
+
+    >>> f = pd.DataFrame({"state_label": ["Aa (A)", "Bb (B)", "Cc (C)"], "value": [0.0, 0.01, 1.0],
+    ...                   "flag": ["x", "x", "x"]})
+    >>> label_levels(f, ["x"]).tolist()
+    [0, 1, 0]
+    """
+    out = np.zeros(len(frame), dtype=np.int64)
+    values = frame["value"].to_numpy(float)
+    if not len(frame) or not np.isfinite(values).any():
+        return out
+    span = float(np.nanmax(values) - np.nanmin(values)) or 1.0
+    px = (values - np.nanmin(values)) / span * width_px
+    half = frame["state_label"].astype(str).str.len().to_numpy() * char_px / 2 + 3
+    for flag in labelled:
+        placed: list[list[tuple[float, float]]] = []
+        for i in np.flatnonzero((frame["flag"] == flag).to_numpy() & np.isfinite(values))[np.argsort(
+                px[(frame["flag"] == flag).to_numpy() & np.isfinite(values)], kind="mergesort")]:
+            lo, hi = px[i] - half[i], px[i] + half[i]
+            level = next((k for k, row in enumerate(placed) if all(hi < a or lo > b for a, b in row)), len(placed))
+            if level == len(placed):
+                placed.append([])
+            placed[level].append((lo, hi))
+            out[i] = level
+    return out
 
 
 def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, label: str, style: Style,
