@@ -22,7 +22,7 @@ import sqlite_utils
 
 from monitor.config import Config
 from monitor.coverage import coverage_lines
-from monitor.coverage_step import refresh_coverage, write_coverage
+from monitor.coverage_step import chamber_batches, refresh_coverage, write_coverage
 from monitor.inputs import UNIT_KEYS, measure_inputs, measured_contests, reduced_contests, stored_unit_id
 from monitor.measures import MEASURE_VERSIONS, compute_measures
 from monitor.progress import tell
@@ -187,14 +187,7 @@ def _whole_chambers(db, config: Config, units: pd.DataFrame, chamber_bases: dict
     todo = [k for k, b in staggered.items() if known.get(k) != b or k not in series_held]
     replaced = {k for k in held_whole if f"{k[1]}|{base_chamber(k[2])}" in set(todo)}
     kept = {k for k in held_whole if f"{k[1]}|{base_chamber(k[2])}" in staggered} - replaced
-    series = pd.Series([f"{s}|{c}" for s, c in zip(units["state"], units["chamber"])], index=units.index)
-    batches, batch = [], []
-    for n, key in enumerate(todo):
-        batch += units.loc[series == key, "unit_id"].tolist()
-        if len(batch) >= BATCH_UNITS or n == len(todo) - 1:
-            batches.append(batch)
-            batch = []
-    return WholeWork(batches, replaced, kept, {k: staggered[k] for k in todo},
+    return WholeWork(chamber_batches(units, todo, BATCH_UNITS), replaced, kept, {k: staggered[k] for k in todo},
                      sorted(k for k in known if k not in staggered))
 
 

@@ -106,15 +106,10 @@ def refresh_coverage(db, config, units: pd.DataFrame, stale: pd.DataFrame, full:
             known.pop(f"{s}|{c}", None)
     todo = [key for key, basis in bases.items() if known.get(key) != basis]
     parts, gap_parts = [], []
-    series = pd.Series([f"{s}|{c}" for s, c in zip(units["state"], units["chamber"])], index=units.index)
-    batch: list[int] = []
-    for n, key in enumerate(todo):  # whole state chambers, about BATCH_UNITS units at a time
-        batch += units.loc[series == key, "unit_id"].tolist()
-        if len(batch) >= BATCH_UNITS or n == len(todo) - 1:
-            cov = compute_coverage(db, config, *measured_contests(db, config, unit_ids=batch))
-            parts.append(cov.units)
-            gap_parts.append(cov.gaps)
-            batch = []
+    for batch in chamber_batches(units, todo, BATCH_UNITS):
+        cov = compute_coverage(db, config, *measured_contests(db, config, unit_ids=batch))
+        parts.append(cov.units)
+        gap_parts.append(cov.gaps)
     new_units = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=unit_columns())
     new_gaps = pd.concat(gap_parts, ignore_index=True) if gap_parts else pd.DataFrame(columns=tables.GAP_COLUMNS)
 
@@ -135,6 +130,21 @@ def refresh_coverage(db, config, units: pd.DataFrame, stale: pd.DataFrame, full:
     gone = sorted({k for k in known if k not in bases})
     return CoverageUpdate(new_units, new_gaps, series=with_whole([*todo, *gone]),
                           bases={k: bases[k] for k in todo}, whole=whole, every=full, all_bases=bases)
+
+
+def chamber_batches(units: pd.DataFrame, keys: list[str], size: int) -> list[list[int]]:
+    """The unit ids of the state chambers ``keys`` (``state|chamber``), whole chambers at a time,
+    about ``size`` units per batch (a chamber's coverage and whole-chamber units read its cycles
+    together)."""
+    ids = {key: part["unit_id"].tolist() for key, part in
+           units.groupby(units["state"] + "|" + units["chamber"], sort=False)}
+    batches, batch = [], []
+    for key in keys:
+        batch += ids.get(key, [])
+        if len(batch) >= size:
+            batches.append(batch)
+            batch = []
+    return batches + ([batch] if batch else [])
 
 
 def unit_columns() -> list[str]:
