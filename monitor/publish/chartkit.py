@@ -186,20 +186,20 @@ def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[di
     description give each number's plan), and nothing when even that does not fit."""
     if eras.empty:
         return [], []
-    e = eras.copy()
-    e["era_no"] = [str(i) for i in range(1, len(e) + 1)]
-    e["x"] = np.maximum(e["first_cycle"].astype(float) - 1, lo)
-    e["x2"] = np.minimum(e["last_cycle"].astype(float).fillna(hi) + 1, hi)
-    e = e[e["x2"] > e["x"]].sort_values("x").reset_index(drop=True)
-    e["parity"] = [i % 2 for i in range(len(e))]
-    e["chars"] = e["era_label"].astype(str).str.len()
+    # a handful of rows per chart, on every state page: plain lists, not frames
+    firsts, lasts, names = (eras[c].tolist() for c in ("first_cycle", "last_cycle", "era_label"))
+    e = [{"x": max(float(first) - 1, lo), "x2": min((hi if F.missing(last) else float(last)) + 1, hi),
+          "era_label": label, "era_no": str(i)} for i, (first, last, label) in enumerate(zip(firsts, lasts, names), 1)]
+    e = sorted((r for r in e if r["x2"] > r["x"]), key=lambda r: r["x"])
+    for i, r in enumerate(e):
+        r.update(parity=i % 2, chars=len(str(r["era_label"])))
     x = _q("x", title="cycle")
     tip = [_tip("era_no", "nominal", "plan era"), _tip("era_label", "nominal", "plan drawn by")]
     rects = [{"data": {"name": "eras"}, "transform": [{"filter": {"field": "parity", "equal": k}}],
               "mark": {"type": "rect", "color": ERA_FILLS[k]},
               "encoding": {"x": x, "x2": {"field": "x2"}, "y": {"value": -ERA_BAND}, "y2": {"value": "height"},
                            "tooltip": tip}}
-             for k in (0, 1) if (e["parity"] == k).any()]
+             for k in (0, 1) if any(r["parity"] == k for r in e)]
     room = "(scale('x', datum.x2) - scale('x', datum.x) - 6)"
     fits = f"{room} >= datum.chars * {ERA_CHAR}"
     text = {"type": "text", "align": "left", "baseline": "middle", "dx": 3, "fontSize": 10, "color": INK}
@@ -209,4 +209,5 @@ def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[di
     numbers = {"data": {"name": "eras"},
                "mark": {**text, "opacity": {"expr": f"!({fits}) && {room} >= {2 * ERA_CHAR} ? 1 : 0"}},
                "encoding": {"x": x, "y": {"value": -ERA_BAND / 2}, "text": _n("era_no"), "tooltip": tip}}
-    return records(e, ["x", "x2", "parity", "era_label", "era_no", "chars"]), rects + [{"layer": [labels, numbers]}]
+    columns = ["x", "x2", "parity", "era_label", "era_no", "chars"]
+    return [{c: _clean(r[c]) for c in columns} for r in e], rects + [{"layer": [labels, numbers]}]

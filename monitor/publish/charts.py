@@ -189,35 +189,39 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
                           if f["low"].notna().any() else [])
                        + [_tip("flag", "nominal"), _tip("certification", "nominal", "results")]}})
     layers += era_layers[-1:]
-    datasets = {"values": records(f, ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"])}
+    columns = ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"]
+    datasets = {"values": records(f, columns)}
     if era_rows:
         datasets["eras"] = era_rows
-    defined = f.dropna(subset=["value"])
-    flagged = f[f["flag"] != NOT_FLAGGED]
-    desc = f"{label} of {where}: {len(defined)} of {len(f)} cycles defined"
-    if len(defined):
-        last = defined.iloc[-1]
-        desc += f"; latest {int(last['cycle'])}: {fmt_measure(measure, last['value'])}"
-        if not F.missing(last["low"]):
-            desc += f" (95% interval {fmt_measure(measure, last['low'])} to {fmt_measure(measure, last['high'])})"
+    # one chart per measure on every state page: rows as plain tuples, not frames
+    table = list(zip(*(f[c].tolist() for c in columns)))
+    defined = [r for r in table if not F.missing(r[1])]
+    flagged = [r for r in table if r[6] != NOT_FLAGGED]
+    desc = f"{label} of {where}: {len(defined)} of {len(table)} cycles defined"
+    if defined:
+        cycle, value, low, high = defined[-1][:4]
+        desc += f"; latest {int(cycle)}: {fmt_measure(measure, value)}"
+        if not F.missing(low):
+            desc += f" (95% interval {fmt_measure(measure, low)} to {fmt_measure(measure, high)})"
     desc += f". Positive values favour {style.a.name}, negative values {style.b.name}. "
-    desc += ("Flagged at the national tails in " + ", ".join(f"{int(r.cycle)} ({r.flag})" for r in flagged.itertuples()) + "."
-             if len(flagged) else "Not flagged in any cycle.")
+    desc += ("Flagged at the national tails in " + ", ".join(f"{int(r[0])} ({r[6]})" for r in flagged) + "."
+             if flagged else "Not flagged in any cycle.")
     if not eras.empty:
         desc += " Plan eras (numbered in the band above the chart where a name does not fit): " + era_key(eras) + "."
     if lines:
         desc += " Dotted lines: thresholds proposed in the literature (proposals, not law)."
-    rows = [[str(int(r.cycle)), fmt_measure(measure, r.value), fmt_measure(measure, r.low), fmt_measure(measure, r.high),
-             (f"{fmt_measure(measure, r.null_low)} to {fmt_measure(measure, r.null_high)}" if not F.missing(r.null_low) else F.DASH),
-             r.flag, r.certification] for r in f.itertuples()]
+    rows = [[str(int(cycle)), fmt_measure(measure, value), fmt_measure(measure, low), fmt_measure(measure, high),
+             (f"{fmt_measure(measure, null_low)} to {fmt_measure(measure, null_high)}" if not F.missing(null_low) else F.DASH),
+             flag, cert] for cycle, value, low, high, null_low, null_high, flag, cert in table]
     return Chart(chart_id, label, desc, _spec(layers, datasets, 190),
                  ["cycle", label, "95% low", "95% high", "national-pool null (outer tails)", "flag", "results"], rows)
 
 
 def era_key(eras: pd.DataFrame) -> str:
     """``1: 1972-1980, drawn by Upland Party; 2: ...``: the numbers the era bands show."""
-    return "; ".join(f"{i}: {int(r.first_cycle)}{F.DASH}{'' if F.missing(r.last_cycle) else int(r.last_cycle)}, "
-                     f"drawn by {r.era_label}" for i, r in enumerate(eras.itertuples(), 1))
+    return "; ".join(f"{i}: {int(first)}{F.DASH}{'' if F.missing(last) else int(last)}, drawn by {label}"
+                     for i, (first, last, label) in enumerate(zip(*(eras[c].tolist() for c in
+                                                                    ("first_cycle", "last_cycle", "era_label"))), 1))
 
 
 def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, style: Style, where: str) -> Chart:

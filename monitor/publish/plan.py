@@ -58,11 +58,19 @@ def page_inputs(data) -> dict[str, tuple]:
     cycles = data.cycles
     for s, ch in data.pairs():
         out[P.state_page(data.state_slugs[s], data.chamber_slugs[ch])] = (SITE, ("pair", s, ch), *sorted(by_pair[(s, ch)]))
+    chamber_cycles: dict[str, list[int]] = {}
+    for c in cycles:
+        for ch in sorted({ch for *_, ch in by_cycle[c]}):
+            chamber_cycles.setdefault(ch, []).append(c)
     for i, c in enumerate(cycles):
-        before = [("cycle", p) for p in cycles[:i]][-1:]  # the national table compares with the cycle before
+        # the national table compares with each chamber's cycle before (and the cycle before overall)
+        before = {("cycle", p) for p in cycles[:i][-1:]}
+        before |= {("cycle", cs[cs.index(c) - 1]) for cs in chamber_cycles.values() if c in cs and cs.index(c) > 0}
+        # the links to the previous and next cycle pages: the key itself holds them
+        links = (("links", cycles[i - 1] if i else None, cycles[i + 1] if i + 1 < len(cycles) else None),)
         # each flagged unit's "since when" and "what changed" read the earlier cycles of its state chamber
         earlier = sorted({k for _, _, s, ch in by_cycle[c] for k in by_pair[(s, ch)] if k[1] < c})
-        out[P.cycle_page(c)] = (SITE, ("cycle", c), *before, *sorted(by_cycle[c]), *earlier)
+        out[P.cycle_page(c)] = (SITE, ("cycle", c), *sorted(before), *links, *sorted(by_cycle[c]), *earlier)
     return out
 
 
@@ -136,12 +144,13 @@ def digests(data, keys: pd.DataFrame) -> dict[tuple, str]:
 
 def site_digest(data) -> str:
     """What every page shows: parties, policy, settings, the measures' documentation and
-    thresholds, names and slugs of states and chambers, the cycles of each chamber, the measures
-    present, and the code and templates that render the pages."""
+    thresholds, names and slugs of states and chambers, the chambers, the measures present, and
+    the code and templates that render the pages. Not the cycles: a new cycle must not change
+    every page (a cycle page's links to its neighbours are among its own inputs, :func:`page_inputs`)."""
     parts = [repr(sorted((k, vars(v)) for k, v in data.parties.items())), data.policy, repr(data.settings),
              repr([(m.name, m.label, m.formula, m.source, m.plain) for m in data.measure_docs]),
              repr(data.thresholds), repr(sorted(data.state_names.items())), repr(sorted(data.state_slugs.items())),
-             repr(sorted(data.chamber_slugs.items())), repr({ch: data.chamber_cycles(ch) for ch in data.chambers}),
+             repr(sorted(data.chamber_slugs.items())), repr(data.chambers),
              repr(sorted(set(data.measures["measure"]))), repr(data.min_coverage), data.base_url,
              repr(sorted(data.pairs()))]
     h = hashlib.sha256("\n".join(parts).encode())

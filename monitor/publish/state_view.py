@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import re
 
+import numpy as np
 import pandas as pd
 
 from monitor.coverage import summary as coverage_summary
-from monitor.inputs import UNIT_KEYS
 from monitor.measures import registry
 from monitor.publish import charts as C
 from monitor.publish import formats as F
@@ -23,6 +23,8 @@ SEATS_VOTES_COLUMNS = {"vote share": "vote share (two-party, after the uncontest
 
 
 TABLE_MEASURES = tuple(m.name for m in registry.measures() if m.table)
+#: The columns of the headline measures' frame that a state page's trend charts read.
+TREND_COLUMNS = ("value", "low", "high", "null_low", "null_high", "flagged", "direction")
 
 
 class StatePage:
@@ -39,8 +41,7 @@ class StatePage:
         slug = "m"
         charts = []
         for measure in d.headline():
-            frame = self._measure_frame(measure, state=state, chamber=chamber)
-            frame = frame.merge(units[UNIT_KEYS + ["certification"]], on=UNIT_KEYS, how="right")
+            frame = self._on_units(self._measure_frame(measure, state=state, chamber=chamber), units)
             if frame["value"].notna().sum() == 0:
                 continue
             lines = [t for t in d.thresholds if t.get("measure") == measure and applies(t, chamber)]
@@ -92,6 +93,21 @@ class StatePage:
             "provenance": self.provenance(units["load_id"]),
         }
 
+    @staticmethod
+    def _on_units(frame: pd.DataFrame, units: pd.DataFrame) -> pd.DataFrame:
+        """A trend chart's rows: one per unit of the state chamber (in ``units``' order), with its
+        certification and this measure's columns (missing where the unit has no row in ``frame``):
+        a right merge on the unit keys, done with lists (one per chart on every state page)."""
+        cycles = units["cycle"].tolist()
+        at = dict(zip(frame["cycle"].tolist(), range(len(frame))))
+        take = [at.get(c) for c in cycles]
+        out = {"cycle": cycles}
+        for col in TREND_COLUMNS:
+            values = frame[col].tolist()
+            out[col] = [np.nan if i is None else values[i] for i in take]
+        out["certification"] = units["certification"].tolist()
+        return pd.DataFrame(out)
+
     def _undefined_reasons(self, state: str, chamber: str) -> list[str]:
         """Why the headline measures have no value for this state (as the engine stored it)."""
         m = self.by("measures", ("state", "chamber"), (state, chamber))
@@ -134,9 +150,10 @@ class StatePage:
     def _measure_table(self, state: str, chamber: str, units: pd.DataFrame) -> dict:
         d = self.d
         m = self.by("measures", ("state", "chamber"), (state, chamber))
-        present = [name for name in TABLE_MEASURES if name in set(m["measure"])]
+        stored = set(m["measure"].tolist())
+        present = [name for name in TABLE_MEASURES if name in stored]
         cells: dict[tuple, str] = {}
-        for cycle, name, value, p, reason in zip(m["cycle"], m["measure"], m["value"], m["p_value"], m["reason"]):
+        for cycle, name, value, p, reason in zip(*(m[c].tolist() for c in ("cycle", "measure", "value", "p_value", "reason"))):
             if name not in present:
                 continue
             if F.missing(value):
@@ -145,14 +162,14 @@ class StatePage:
                 text = self.measure_value(name, value) + ("" if F.missing(p) else f" (p {F.pvalue(p)})")
             cells[(int(cycle), name)] = text
         pool = self.by("pool", ("state", "chamber"), (state, chamber))
-        excess = {int(c): self.words.stake(x).text for c, x in zip(pool["cycle"], pool["excess_seats"])}
+        excess = {int(c): self.words.stake(x).text for c, x in zip(pool["cycle"].tolist(), pool["excess_seats"].tolist())}
         flagged = self.by("tails", ("state", "chamber"), (state, chamber))
         flags: dict[int, list[str]] = {}
-        for cycle, name, flag, direction in zip(flagged["cycle"], flagged["measure"], flagged["flagged"], flagged["direction"]):
+        for cycle, name, flag, direction in zip(*(flagged[c].tolist() for c in ("cycle", "measure", "flagged", "direction"))):
             if flag == 1:
                 flags.setdefault(int(cycle), []).append(f"{d.label(name)} ({self.party(direction)})")
         rows = []
-        for cycle, cert in sorted(zip(units["cycle"].astype(int), units["certification"]), reverse=True):
+        for cycle, cert in sorted(zip(units["cycle"].astype(int).tolist(), units["certification"].tolist()), reverse=True):
             incomplete = (cycle, state, chamber) in self._incomplete_units
             flagged = ", ".join(flags.get(cycle, []))
             if flagged and incomplete:  # a flag on a unit the measures do not wholly cover says so
@@ -173,19 +190,22 @@ class StatePage:
         out and why, and whether the unit is below flags.min_coverage (never flagged)."""
         cov = self.by("coverage", ("state", "chamber"), (state, chamber))
         gaps = self.by("coverage_gaps", ("state", "chamber"), (state, chamber))
-        by_cycle = {int(c): g for c, g in gaps.groupby("cycle")} if len(gaps) else {}
+        by_cycle: dict[int, list[tuple]] = {}  # each cycle's gaps, in their stored order
+        for cycle, *gap in zip(*(gaps[c].tolist() for c in ("cycle", "district", "seats", "gap", "reason"))):
+            by_cycle.setdefault(int(cycle), []).append(gap)
+        columns = list(cov.columns)
+        records = [dict(zip(columns, row)) for row in zip(*(cov[c].tolist() for c in columns))]
         rows = []
-        for r in cov.sort_values("cycle", ascending=False).to_dict("records"):
+        for r in sorted(records, key=lambda r: r["cycle"], reverse=True):
             cycle = int(r["cycle"])
             share = r["seat_coverage"]
-            g = by_cycle.get(cycle, gaps.iloc[0:0])
             rows.append({
                 "cycle": cycle, "summary": _whole_in_words(coverage_summary(r)), "incomplete": int(r["incomplete"]) == 1,
                 "share": F.share(share, 0),
                 "never_flagged": not F.missing(share) and float(share) < self.d.min_coverage,
                 "gaps": [{"district": dist or "codes not known", "gap": gap, "seats": F.count(seats),
                           "reason": self.words.plain(F.text(reason))}
-                         for dist, seats, gap, reason in zip(g["district"], g["seats"], g["gap"], g["reason"])],
+                         for dist, seats, gap, reason in by_cycle.get(cycle, [])],
             })
         return rows
 
