@@ -50,13 +50,19 @@ class Views(StatePage, Standing):
         each frame is split once, so a page costs a lookup, not a scan."""
         if (name, keys) not in self._splits:
             frame = getattr(self, name) if name.startswith("_") else getattr(self.d, name)
-            groups = {}
-            if len(frame):
-                for k, g in frame.groupby(list(keys), sort=False):
-                    groups[k if isinstance(k, tuple) else (k,)] = g
-            self._splits[(name, keys)] = (groups, frame.iloc[0:0])
-        groups, empty = self._splits[(name, keys)]
-        return groups.get(key if isinstance(key, tuple) else (key,), empty)
+            # the rows grouped (each group's rows in the frame's order, as a groupby gives them;
+            # rows with a missing key belong to no group), so that a group is one slice
+            positions: dict[tuple, list[int]] = {}
+            for i, k in enumerate(zip(*(frame[c].tolist() for c in keys))):
+                if not any(F.missing(v) for v in k):
+                    positions.setdefault(k, []).append(i)
+            ends = np.cumsum([len(p) for p in positions.values()]).tolist()
+            spans = {k: (end - len(p), end) for (k, p), end in zip(positions.items(), ends)}
+            grouped = frame.take([i for p in positions.values() for i in p])
+            self._splits[(name, keys)] = (grouped, spans)
+        grouped, spans = self._splits[(name, keys)]
+        start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
+        return grouped.iloc[start:end]
 
     def _headline_frame(self) -> pd.DataFrame:
         """The headline measures with their tails judgement (flag, direction, null band)."""
