@@ -100,6 +100,23 @@ def test_nothing_changed_means_nothing_recomputed(history):
     assert not verify_store(h["db"], h["config"])
 
 
+def test_a_build_that_keeps_a_file_keeps_the_parts_it_is_made_of(history):
+    """The encoded parts beside the site (a state page's results table, a download's cycles) of a
+    file kept from the previous build stay in the cache: without them the next change to one cycle
+    re-encodes every other cycle of the download, and re-renders the results table of every page
+    the change touches."""
+    h = history
+    out = h["root"] / "kept-parts"
+    build(h["db"], h["config"], out)
+    cache = out.parent / f".{out.name}-parts"
+    made = sorted(p.name for p in cache.iterdir())
+    assert any(n.startswith("results.") and n.endswith(".html") for n in made)
+    assert any(n.startswith("results.csv.") for n in made)
+    again = build(h["db"], h["config"], out)  # nothing changed: every page and download is kept
+    assert again.unchanged and set(again.written) <= {MANIFEST}
+    assert sorted(p.name for p in cache.iterdir()) == made
+
+
 def test_staggered_chambers_follow_the_change_too(tmp_path):
     """With the state senates declared staggered (issue 16), a correction of one senate unit
     recomputes that unit and its chamber's whole-chamber units, and nothing else; the store still

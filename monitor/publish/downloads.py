@@ -322,7 +322,7 @@ def _file(data: SiteData, spec: dict, kind: str, reuse, path: str, parts: dict[i
     def bodies():
         for cycle, digest in sorted(parts.items()):
             yield reuse.part(f"{base}.{kind}.{head[:16]}.{digest}",
-                             lambda c=cycle: encode(_part_rows(data, spec["name"], c), fields))
+                             lambda c=cycle: encode(_part_rows(data, spec["name"], c), fields), path)
 
     if kind == "csv":
         return Parts(itertools.chain([_csv_header(fields)], bodies()))

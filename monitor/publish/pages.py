@@ -115,7 +115,7 @@ class Renderer:
             page=path, root=root, title=title, section=section, parties=self.data.parties, **context)
         return path, html.encode("utf-8")
 
-    def results(self, state: str, chamber: str) -> list[Markup]:
+    def results(self, state: str, chamber: str, page: str | None = None) -> list[Markup]:
         """A state page's district results: the latest cycle's table (earlier cycles are in the
         results download: a page holding every cycle of a large chamber would weigh megabytes).
         The table depends only on its unit's delivery (:func:`monitor.publish.plan.deliveries`): it
@@ -125,7 +125,7 @@ class Renderer:
                         reverse=True)[:1]
         names = {c: f"results.{self.delivered[(c, state, chamber)]}.{int(i == 0)}.html"
                  for i, c in enumerate(cycles) if (c, state, chamber) in self.delivered}
-        html = {c: self.reuse.cached(n) for c, n in names.items()} if self.reuse is not None else {}
+        html = {c: self.reuse.cached(n, page) for c, n in names.items()} if self.reuse is not None else {}
         missing = [c for c in cycles if html.get(c) is None]
         if missing:
             template = self.env.get_template("_results_cycle.html")
@@ -133,7 +133,7 @@ class Renderer:
                 c = entry["cycle"]
                 html[c] = template.render(c=entry, first=c == cycles[0], parties=self.data.parties).encode("utf-8")
                 if c in names and self.reuse is not None:
-                    self.reuse.store(names[c], html[c])
+                    self.reuse.store(names[c], html[c], page)
         return [Markup(html[c].decode("utf-8")) for c in cycles if c in html]
 
     def render(self) -> Iterator[tuple[str, bytes]]:
@@ -149,7 +149,7 @@ class Renderer:
                 yield path, KEPT
                 continue
             ctx = v.state(state, chamber, _root(path))
-            ctx["results"] = self.results(state, chamber)
+            ctx["results"] = self.results(state, chamber, path)
             yield self.page(path, "state.html", ctx["where"], "states", **ctx)
         for cycle in d.cycles:
             path = P.cycle_page(cycle)

@@ -77,39 +77,52 @@ class Reuse:
         if self.out is None or not old or old.get("inputs") != inputs or not (self.out / path).is_file():
             return False
         self.now[path] = dict(old)
+        # the parts a kept file was made of stay in the cache: the next build that changes one of
+        # its other parts needs them (a kept page's results table, a kept download's cycles)
+        self.used.update(old.get("parts", ()))
         return True
 
     def wrote(self, path: str, size: int, sha256: str) -> None:
         if path in self.now:
             self.now[path].update(bytes=size, sha256=sha256)
 
-    def cached(self, name: str) -> bytes | None:
+    def _owns(self, owner: str | None, name: str) -> None:
+        """Record that the file ``owner`` is made with the part ``name`` (kept with it when it is kept)."""
+        if owner is not None and owner in self.now:
+            parts = self.now[owner].setdefault("parts", [])
+            if name not in parts:
+                parts.append(name)
+
+    def cached(self, name: str, owner: str | None = None) -> bytes | None:
         """The cached part ``name``, or None (marked as used either way: a part asked for and then
-        made is kept)."""
+        made is kept); ``owner``: the file made with it."""
         if self.cache is None:
             return None
         self.used.add(name)
+        self._owns(owner, name)
         try:
             return (self.cache / name).read_bytes()
         except OSError:
             return None
 
-    def store(self, name: str, data: bytes) -> None:
+    def store(self, name: str, data: bytes, owner: str | None = None) -> None:
         if self.cache is None:
             return
         self.used.add(name)
+        self._owns(owner, name)
         self.cache.mkdir(parents=True, exist_ok=True)
         path = self.cache / name
         tmp = path.with_suffix(path.suffix + f".{os.getpid()}.tmp")
         tmp.write_bytes(data)
         tmp.replace(path)
 
-    def part(self, name: str, make) -> bytes:
-        """The cached part ``name`` (a digest-derived file name), made by ``make()`` when absent."""
-        data = self.cached(name)
+    def part(self, name: str, make, owner: str | None = None) -> bytes:
+        """The cached part ``name`` (a digest-derived file name), made by ``make()`` when absent;
+        ``owner``: the file made with it."""
+        data = self.cached(name, owner)
         if data is None:
             data = make()
-            self.store(name, data)
+            self.store(name, data, owner)
         return data
 
     def manifest(self) -> bytes:
