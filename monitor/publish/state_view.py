@@ -234,10 +234,10 @@ class StatePage:
         natural district order (1, 2, ..., 10)."""
         c = self.d.contests_of(state, chamber, cycles)
         if len(c):
-            pos = c["position"].fillna("").astype(str) if "position" in c else pd.Series("", index=c.index)
-            c = c.iloc[sorted(range(len(c)), key=lambda i: (district_key(c["district"].iloc[i]),
-                                                              district_key(pos.iloc[i]),
-                                                              int(c["special"].iloc[i]), int(c["runoff"].iloc[i])))]
+            pos = c["position"].fillna("").astype(str).tolist() if "position" in c else [""] * len(c)
+            keys = list(zip(c["district"].tolist(), pos, c["special"].tolist(), c["runoff"].tolist()))
+            c = c.iloc[sorted(range(len(c)), key=lambda i: (district_key(keys[i][0]), district_key(keys[i][1]),
+                                                              int(keys[i][2]), int(keys[i][3])))]
         out = []
         for cycle, part in sorted(c.groupby("cycle", sort=False), key=lambda kv: -kv[0]):
             part = part.assign(position=part["position"].fillna("").astype(str) if "position" in part else "",
