@@ -450,37 +450,15 @@ def stage_prepare(args: dict) -> dict:
 
 def stage_incremental(args: dict) -> dict:
     """One new cycle arrives: load it (and reduce it), recompute (incremental), flags
-    (incremental) and aggregates, republish."""
-    from monitor import aggregates, reductions
-    from monitor.compute import compute
-    from monitor.flags import run_flags
-    from monitor.ingest.load import load_file
-
+    (incremental) and aggregates, republish (unless ``publish`` is false)."""
     src = Path(args["ready"])
     public = src / "public"
     ws, db, config = _workspace(args["ws"], args["data"], str(src / "history.sqlite"),
                                 str(public) if public.is_dir() else None)
-    steps = {}
-    t0 = start_timed()
-    load_file(db, Path(args["file"]), config)
-    reductions.refresh(db, config)
-    t1 = time.perf_counter()
-    measures = compute(db, config)
-    t2 = time.perf_counter()
-    flags = run_flags(db, config)
-    aggregates.refresh(db)
-    t3 = time.perf_counter()
-    steps = {"load": t1 - t0, "compute": t2 - t1, "flags": t3 - t2}
-    info = {"units_computed": measures.units_computed, "groups_computed": flags.groups_computed,
-            "groups_total": flags.groups_total}
-    if publisher() is not None and args.get("publish", True):
-        report = _publish(ws, db, config)
-        steps["publish"] = time.perf_counter() - t3
-        info.update(_publish_info(report))
-    total = time.perf_counter() - t0
+    out = _timed_chain(ws, db, config, Path(args["file"]), publish=args.get("publish", True))
     if args.get("keep"):
         db.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-    return {"seconds": total, "steps": steps, **info}
+    return out
 
 
 def stage_flags_nochange(args: dict) -> dict:
@@ -510,9 +488,9 @@ def stage_publish_full(args: dict) -> dict:
     return {"seconds": dt, "force_option": _force_option(fn), **_publish_info(report)}
 
 
-def _timed_chain(ws, db, config, path: Path) -> dict:
-    """Load ``path`` (and reduce it), recompute (incremental), flags and aggregates, republish:
-    the steps and their seconds."""
+def _timed_chain(ws, db, config, path: Path, publish: bool = True) -> dict:
+    """Load ``path`` (and reduce it), recompute (incremental), flags and aggregates, republish
+    (when ``publish`` and there is a publisher): the steps and their seconds."""
     from monitor import aggregates, reductions
     from monitor.compute import compute
     from monitor.flags import run_flags
@@ -527,11 +505,13 @@ def _timed_chain(ws, db, config, path: Path) -> dict:
     flags = run_flags(db, config)
     aggregates.refresh(db)
     t3 = time.perf_counter()
-    report = _publish(ws, db, config)
-    t4 = time.perf_counter()
-    return {"seconds": t4 - t0, "steps": {"load": t1 - t0, "compute": t2 - t1, "flags": t3 - t2, "publish": t4 - t3},
-            "units_computed": measures.units_computed, "groups_computed": flags.groups_computed,
-            "groups_total": flags.groups_total, **_publish_info(report)}
+    steps = {"load": t1 - t0, "compute": t2 - t1, "flags": t3 - t2}
+    info = {"units_computed": measures.units_computed, "groups_computed": flags.groups_computed,
+            "groups_total": flags.groups_total}
+    if publish and publisher() is not None:
+        info.update(_publish_info(_publish(ws, db, config)))
+        steps["publish"] = time.perf_counter() - t3
+    return {"seconds": time.perf_counter() - t0, "steps": steps, **info}
 
 
 def stage_correction(args: dict) -> dict:
