@@ -21,6 +21,7 @@ previous run stored.
 from __future__ import annotations
 
 import datetime as dt
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -196,11 +197,10 @@ def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str
         write_inferred(conn, inferred)
         store_flags.replace_all(
             conn,
-            seats=[(*[_sql(r.get(c)) for c in store_flags.SEAT_COLUMNS], POOL_METHOD_VERSION, stamp)
-                   for r in seats.to_dict("records")],
-            tails=[(*[_sql(r.get(c)) for c in store_flags.TAIL_COLUMNS], stamp) for r in judged.to_dict("records")],
+            seats=_sql_rows(seats, store_flags.SEAT_COLUMNS, POOL_METHOD_VERSION, stamp),
+            tails=_sql_rows(judged, store_flags.TAIL_COLUMNS, stamp),
             watch_columns=list(watch.columns),
-            watch=[(*[_sql(r[c]) for c in watch.columns], stamp) for r in watch.to_dict("records")],
+            watch=_sql_rows(watch, list(watch.columns), stamp),
             events=[(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
                      e["direction"], e["why"], stamp, e["load_id"]) for e in events],
         )
@@ -256,7 +256,19 @@ def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, 
     return seats, tails
 
 
+def _sql_rows(frame: pd.DataFrame, columns, *extra) -> list[tuple]:
+    """The rows of ``frame`` as SQL values of ``columns`` (None for a column it lacks), each
+    followed by ``extra``; read column by column (every row of the tails is written each run)."""
+    cols = [[_sql(v) for v in frame[c].tolist()] if c in frame.columns else [None] * len(frame) for c in columns]
+    return [(*row, *extra) for row in zip(*cols)]
+
+
 def _sql(value):
+    kind = type(value)
+    if kind is str or kind is int:
+        return value
+    if kind is float:
+        return value if math.isfinite(value) else None
     if value is None:
         return None
     if isinstance(value, float) and not np.isfinite(value):
