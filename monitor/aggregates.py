@@ -72,12 +72,13 @@ def _groups(units: pd.DataFrame) -> set[str]:
 
 
 def frames(db: sqlite_utils.Database, groups: set[str] | None = None,
-           old: dict[str, pd.DataFrame] | None = None) -> dict[str, pd.DataFrame]:
+           old: dict[str, pd.DataFrame] | None = None, inputs: dict[str, pd.DataFrame] | None = None
+           ) -> dict[str, pd.DataFrame]:
     """Every table of :data:`store.aggregates.TABLES`, computed from what the store holds: of the
     (cycle, chamber) ``groups`` only (every group when None; then ``old`` is not needed), their
     rows merged with the ``old`` stored rows of the other groups in the order a whole recompute
-    gives."""
-    inputs = _inputs(db)
+    gives. ``inputs``: :func:`_inputs` when already read (in the same snapshot)."""
+    inputs = _inputs(db) if inputs is None else inputs
     keys = inputs["keys"]
     if groups is None:
         contests = reduced_contests(db)
@@ -149,11 +150,12 @@ def refresh(db: sqlite_utils.Database, *, full: bool = False) -> dict[str, int]:
     (:func:`group_bases`; every group when ``full`` or when none was recorded), reading only
     those groups' reductions (one consistent step); return the rows per table."""
     def prepare():
-        now = group_bases(_inputs(db))
+        inputs = _inputs(db)
+        now = group_bases(inputs)
         known = {} if full else store_bases.read(db, "aggregates")
         todo = {g for g, b in now.items() if known.get(g) != b}
         old = None if full or not known else {name: stored.read(db, name) for name in stored.TABLES}
-        made = frames(db) if old is None else frames(db, todo, old)
+        made = frames(db, inputs=inputs) if old is None else frames(db, todo, old, inputs)
         rows = {name: [tuple(_plain(v) for v in r) for r in frame[stored.TABLES[name]].itertuples(index=False)]
                 for name, frame in made.items()}
 

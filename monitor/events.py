@@ -51,7 +51,12 @@ def unit_events(old: pd.DataFrame, new: pd.DataFrame, group_load: dict[tuple, in
     key = [*UNIT_KEYS, "measure"]
     before = {tuple(r[k] for k in key): r for r in old[old["flagged"] == 1].to_dict("records")} if not old.empty else {}
     after = {tuple(r[k] for k in key): r for r in new[new["flagged"] == 1].to_dict("records")}
-    current = {tuple(r[k] for k in key): r for r in new.to_dict("records")}
+    # the current rows of the cleared flags only (every unit's row is in ``new``: a scan of its keys,
+    # not a record per row)
+    cleared = set(before) - set(after)
+    keys = list(zip(*(new[k].tolist() for k in key))) if cleared else []
+    rows = new[[k in cleared for k in keys]] if cleared else new.iloc[0:0]
+    current = {tuple(r[k] for k in key): r for r in rows.to_dict("records")}
     events = []
     for k in sorted(set(before) | set(after), key=lambda k: (k[0], k[1], k[2], k[3])):
         b, a = before.get(k), after.get(k)
