@@ -151,7 +151,7 @@ def site_digest(data) -> str:
              repr([(m.name, m.label, m.formula, m.source, m.plain) for m in data.measure_docs]),
              repr(data.thresholds), repr(sorted(data.state_names.items())), repr(sorted(data.state_slugs.items())),
              repr(sorted(data.chamber_slugs.items())), repr(data.chambers),
-             repr(sorted(set(data.measures["measure"]))), repr(data.min_coverage), data.base_url,
+             repr(sorted(set(data.measures["measure"].unique().tolist()))), repr(data.min_coverage), data.base_url,
              repr(sorted(data.pairs()))]
     h = hashlib.sha256("\n".join(parts).encode())
     for root in (_CODE, _SITE_FILES):

@@ -53,8 +53,9 @@ class Views(StatePage, Standing):
             # the rows grouped (each group's rows in the frame's order, as a groupby gives them;
             # rows with a missing key belong to no group), so that a group is one slice
             positions: dict[tuple, list[int]] = {}
-            for i, k in enumerate(zip(*(frame[c].tolist() for c in keys))):
-                if not any(F.missing(v) for v in k):
+            missing = frame[list(keys)].isna().any(axis=1).tolist() if len(frame) else []
+            for i, (k, skip) in enumerate(zip(zip(*(frame[c].tolist() for c in keys)), missing)):
+                if not skip:
                     positions.setdefault(k, []).append(i)
             ends = np.cumsum([len(p) for p in positions.values()]).tolist()
             spans = {k: (end - len(p), end) for (k, p), end in zip(positions.items(), ends)}
