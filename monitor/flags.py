@@ -86,8 +86,13 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
     # no unit of the pool may have an expected seat count (no two-party votes anywhere): no column
     has_excess = not seats.empty and "excess_seats" in seats.columns
     per = per.merge(seats[[*UNIT_KEYS, "excess_seats"]], on=UNIT_KEYS, how="left") if has_excess else per.assign(excess_seats=np.nan)
+    # the plans with enough flagged cycles one way, found at once (most plans have none)
+    most = per.groupby(["state", "chamber", "plan_id", "direction"])["cycle"].nunique() if len(per) else pd.Series()
+    enough = {key[:3] for key, n in most.items() if n >= need_cycles}
     rows = []
     for (state, chamber, plan_id), group in per.groupby(["state", "chamber", "plan_id"], sort=True):
+        if (state, chamber, plan_id) not in enough:
+            continue
         counts = group.groupby("direction")["cycle"].nunique()
         if counts.max() < need_cycles:
             continue

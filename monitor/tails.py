@@ -211,9 +211,15 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     # no reason yet: null, or the engine's "" for a defined value (the lopsided rows come from measures)
     unexplained = t["reason"].isna() | (t["reason"] == "")
     t["reason"] = np.where(small & unexplained, f"fewer than {minimum} districts: not flagged", t["reason"])
-    coverage_reason = [not_flagged_reason(x, config["flags.min_coverage"]) for x in share]
-    t["reason"] = np.where(thin & ~small & unexplained, coverage_reason, t["reason"])
-    t["reason"] = np.where(half & unexplained, [partial_reason(c) for c in t["chamber"]], t["reason"])
+    # the reasons in words, written only for the rows that take them (every unit's rows are judged each run)
+    thin_rows = thin & ~small & unexplained.to_numpy(bool)
+    coverage_reason = np.array([not_flagged_reason(x, config["flags.min_coverage"]) if use else None
+                                for x, use in zip(share, thin_rows)], dtype=object)
+    t["reason"] = np.where(thin_rows, coverage_reason, t["reason"])
+    half_rows = half & unexplained.to_numpy(bool)
+    half_reason = np.array([partial_reason(c) if use else None for c, use in zip(t["chamber"].tolist(), half_rows)],
+                           dtype=object)
+    t["reason"] = np.where(half_rows, half_reason, t["reason"])
     return t
 
 
