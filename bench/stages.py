@@ -134,7 +134,7 @@ def _publish(ws, db, config, out: Path | None = None, force: bool = False):
 
 def _publish_info(report) -> dict:
     info = {}
-    for name in ("written", "unchanged", "removed"):
+    for name in ("written", "unchanged", "removed", "kept"):  # kept: not even rendered
         value = getattr(report, name, None)
         if value is not None:
             info[f"files_{name}"] = len(value) if hasattr(value, "__len__") else value

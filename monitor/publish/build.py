@@ -52,12 +52,14 @@ except ImportError:  # pragma: no cover - not on Windows
 
 @dataclass
 class BuildReport:
-    """What a build did: paths (site-relative) written, left unchanged and removed."""
+    """What a build did: paths (site-relative) written, left unchanged and removed; ``kept``: the
+    unchanged ones that were not even rendered (their inputs were those of the previous build's)."""
 
     out: Path
     written: list[str] = field(default_factory=list)
     unchanged: list[str] = field(default_factory=list)
     removed: list[str] = field(default_factory=list)
+    kept: list[str] = field(default_factory=list)
     total_bytes: int = 0
     site_time: dt.datetime | None = None
     swap: str = ""
@@ -235,6 +237,7 @@ def write_site(files: Mapping[str, bytes] | Iterable[tuple[str, bytes]], out: Pa
                 report.total_bytes += old.stat().st_size
                 _reuse(old, dest)
                 report.unchanged.append(path)
+                report.kept.append(path)
                 continue
             if isinstance(content, Parts):
                 _write_parts(old, dest, content, report, path)
@@ -250,6 +253,7 @@ def write_site(files: Mapping[str, bytes] | Iterable[tuple[str, bytes]], out: Pa
                 report.written.append(path)
         report.written.sort()
         report.unchanged.sort()
+        report.kept.sort()
         if out.is_dir():
             report.removed = sorted(
                 p.relative_to(out).as_posix() for p in out.rglob("*")
