@@ -107,9 +107,11 @@ class Segments:
     PER_DISTRICT = ("total", "share", "share_b", "margin", "seat")
 
     @classmethod
-    def take(cls, source: "Segments", rows: np.ndarray, unit: np.ndarray, n_units: int) -> "Segments":
+    def take(cls, source: "Segments", rows: np.ndarray, unit: np.ndarray, n_units: int,
+             count: np.ndarray | None = None) -> "Segments":
         """The districts ``rows`` of ``source`` (repeats allowed), grouped into ``n_units`` units by
-        ``unit`` (non-decreasing, one id per row; not checked).
+        ``unit`` (non-decreasing, one id per row; not checked); ``count``, when the caller knows
+        it, is the number of rows of each unit (int64, not checked either).
 
         The per-district values ``source`` has already computed (:attr:`PER_DISTRICT`) are gathered
         instead of computed again, and when ``source`` has no district without votes neither has
@@ -132,6 +134,8 @@ class Segments:
                 seg.__dict__[name] = source.__dict__[name][rows]
         if not source.has_empty_district.any():
             seg.__dict__["has_empty_district"] = np.zeros(n_units, dtype=bool)
+        if count is not None:
+            seg.__dict__["count"] = count
         return seg
 
     # -- per district ---------------------------------------------------------------------

@@ -100,7 +100,7 @@ def _evaluate_shared(fns: Mapping[str, Callable], d: Delegations) -> dict[str, n
     for first, last, row_start, size in _chunks(d):
         idx = d.district[row_start[first]:row_start[last]].astype(np.intp)
         unit = np.repeat(np.arange(last - first, dtype=np.int64), size[first:last])
-        seg = Segments.take(pool, idx, unit, last - first)
+        seg = Segments.take(pool, idx, unit, last - first, count=size[first:last])
         for name, f in fns.items():
             out[name][first:last] = f(seg)
     return out

@@ -29,6 +29,17 @@ stored weights are ``exp(-lam * sum_i y_{j_i})`` scaled to sum to one per unit. 
 effective sample size close to the number of kept draws.  Any ``lam`` keeps the estimator exact; the
 choice of ``lam`` affects only its efficiency (``lam = 0`` is plain rejection).
 
+Drawing: each unit draws from its own random stream (the child of the call's seed sequence keyed
+by the unit), so its draws depend on nothing but the seed, its key and its own inputs: not on the
+other units of the call, nor on how the work is cut into batches, chunks or threads.  The tilt is
+solved per unit (``brentq``, above); the proposals are drawn in chunks of 64K (draw, district)
+cells by inverse CDF with a guide table (:func:`_inverse_cdf`), over the whole pool's index with
+the unit's own state at zero mass (:func:`_pool_cdf`), so every unit reads the pool's arrays in
+place.  The units of a (cycle, chamber) are not stacked into one array pass: with one stream per
+unit the work per cell (a uniform, a table look-up, two gathers) would be the same, and a chunk
+of 64K cells takes some 20 array operations, so the loop over units adds little;
+:func:`~monitor.pool.nulls.compare_with_pool` runs batches of units on threads instead.
+
 Monte Carlo error: Kish's effective sample size ``ESS = (sum w)^2 / sum w^2`` [3]_ and, for a
 weighted mean ``m = sum w f`` (weights normalised to one), the delta-method standard error of the
 self-normalised estimator, ``se = sqrt(sum w^2 (f - m)^2)`` [2]_.
