@@ -3,9 +3,7 @@ units with the pool (expected seats and every null at once, in bounded memory)."
 
 from __future__ import annotations
 
-import os
 from collections.abc import Callable, Mapping
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, fields
 
 import numpy as np
@@ -56,17 +54,6 @@ class NullResult:
 
 #: District rows of simulated delegations evaluated at once (2 MB per temporary of the measures).
 _CHUNK_CELLS = 1 << 18
-
-
-def default_workers() -> int:
-    """Threads :func:`compare_with_pool` runs batches of units on by default: the CPUs this
-    process may use, at most 4 (the array work of the sampler and the measures releases the GIL,
-    so two CPUs do it in about half the time; every batch is independent of the others)."""
-    try:
-        n = len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - platforms without affinity
-        n = os.cpu_count() or 1
-    return max(1, min(n, 4))
 
 
 def _default_measures() -> dict[str, Callable]:
@@ -241,18 +228,13 @@ def compare_with_pool(
     alpha: float = 0.025,
     measures: Mapping[str, Callable] | None = None,
     max_cells: int = 1 << 25,
-    workers: int | None = None,
 ) -> tuple[SeatsResult, dict[str, NullResult]]:
     """Expected seats and null percentiles for many units, in memory-bounded batches.
 
     Runs :func:`simulate_delegations`, :func:`expected_seats` and :func:`null_distributions` on
-    consecutive batches of units and joins the per-unit results.  ``workers`` threads (default
-    :func:`default_workers`) run the batches at once, each holding at most ``max_cells /
-    workers`` simulated district rows (about ``accepted * N`` per unit; a larger unit runs
-    alone), so that at most ``max_cells`` are held together; with more than one worker the units
-    are cut into at least two batches per worker, to share the work out.  With an int or
-    SeedSequence ``rng`` the output equals one unbatched run with the same ``unit_key``, for any
-    ``workers`` and ``max_cells``: each unit draws from its own stream.
+    consecutive batches of units holding at most ``max_cells`` simulated district rows (about
+    ``accepted * N`` per unit; a larger unit runs alone) and joins the per-unit results.  With an
+    int or SeedSequence ``rng`` the output equals one unbatched run with the same ``unit_key``.
 
     Returns
     -------
@@ -268,42 +250,33 @@ def compare_with_pool(
         raise ValueError("actual_seats, unit_key and every observed array need one value per unit")
     if max_cells < 1:
         raise ValueError("max_cells must be >= 1")
-    workers = default_workers() if workers is None else int(workers)
-    if workers < 1:
-        raise ValueError("workers must be >= 1")
     base = _base_seed(rng)
     fns = _default_measures() if measures is None else dict(measures)
     cells = accepted * np.asarray(n_districts, dtype=np.int64)
-    cap = max(1, max_cells // workers)
-    if workers > 1:
-        cap = max(1, min(cap, -(-int(cells.sum()) // (2 * workers))))
     batch = np.zeros(U, np.int64)
     if U:
         used = 0
         for u in range(1, U):  # greedy cut into consecutive batches
             used += int(cells[u - 1])
             batch[u] = batch[u - 1]
-            if used + cells[u] > cap:
+            if used + cells[u] > max_cells:
                 batch[u] += 1
                 used = 0
-
-    def run(sel: np.ndarray) -> tuple[SeatsResult, dict[str, NullResult]]:
+    seats_parts, null_parts = [], []
+    for b in range(int(batch[-1]) + 1 if U else 0):
+        sel = np.flatnonzero(batch == b)
         d = simulate_delegations(
             pool, unit_state[sel], n_districts[sel], vote_share[sel], rng=base, tol=tol,
             accepted=accepted, max_draws=max_draws, exclude_own=exclude_own, unit_key=keys[sel],
         )
-        return (expected_seats(d, actual[sel], level=level),
-                null_distributions(d, {k: v[sel] for k, v in obs.items()}, alpha=alpha, measures=fns))
-
-    batches = [np.flatnonzero(batch == b) for b in range(int(batch[-1]) + 1 if U else 0)]
-    if workers > 1 and len(batches) > 1:
-        with ThreadPoolExecutor(min(workers, len(batches))) as pool_of_threads:
-            parts = list(pool_of_threads.map(run, batches))
-    else:
-        parts = [run(sel) for sel in batches]
-    if not parts:  # no units: run once on the empty set for correctly typed empty output
+        seats_parts.append(expected_seats(d, actual[sel], level=level))
+        null_parts.append(
+            null_distributions(d, {k: v[sel] for k, v in obs.items()}, alpha=alpha, measures=fns)
+        )
+    if not seats_parts:  # no units: run once on the empty set for correctly typed empty output
         d = simulate_delegations(pool, unit_state, n_districts, vote_share, rng=base, tol=tol)
         nulls = null_distributions(d, obs, alpha=alpha, measures=fns)
         return expected_seats(d, actual, level=level), nulls
-    nulls = {name: _concat([part[1][name] for part in parts]) for name in fns}
-    return _concat([part[0] for part in parts]), nulls
+    nulls = {name: _concat([part[name] for part in null_parts]) for name in fns}
+    return _concat(seats_parts), nulls
+
