@@ -37,8 +37,8 @@ cells by inverse CDF with a guide table (:func:`_inverse_cdf`), over the whole p
 the unit's own state at zero mass (:func:`_pool_cdf`), so every unit reads the pool's arrays in
 place.  The units of a (cycle, chamber) are not stacked into one array pass: with one stream per
 unit the work per cell (a uniform, a table look-up, two gathers) would be the same, and a chunk
-of 64K cells takes some 20 array operations, so the loop over units adds little;
-:func:`~monitor.pool.nulls.compare_with_pool` runs batches of units on threads instead.
+of 64K cells takes some 20 array operations, so the loop over units adds little (running batches
+of units on two threads was slower on the bench's shared 2-CPU machine, so it is not done).
 
 Monte Carlo error: Kish's effective sample size ``ESS = (sum w)^2 / sum w^2`` [3]_ and, for a
 weighted mean ``m = sum w f`` (weights normalised to one), the delta-method standard error of the
