@@ -62,8 +62,8 @@ from scipy.optimize import brentq
 from .pool import NationalPool
 
 #: Proposal cells drawn at once per unit: 64K cells make temporaries of 512 KB, which stay in cache
-#: and are reused by the allocator; chunks of 2M cells (16 MB temporaries, mapped afresh from the
-#: system on each chunk) made every proposal cell about 3x slower on the bench's history.
+#: and are reused by the allocator (timed on one unit of the bench's x1 history, on the shared
+#: machine: chunks of 128K cells and more cost 1.5x to 3x as much per cell, 16K to 64K the same).
 _DRAW_CELLS = 1 << 16
 
 
