@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
+import gzip
 import hashlib
 import html.parser
 import io
@@ -301,6 +302,13 @@ def test_watch_page_lists_every_plan_on_watch(fx, site):
 
 
 # --- downloads --------------------------------------------------------------------------------------
+def read_csv_download(out: Path, name: str) -> str:
+    """A CSV download's text, decompressed when it is published gzip-compressed."""
+    path = out / "downloads" / D.csv_path(name)
+    content = path.read_bytes()
+    return (gzip.decompress(content) if path.suffix == ".gz" else content).decode("utf-8")
+
+
 def _parse_cell(value: str, kind: str):
     if value == "":
         return None
@@ -331,6 +339,9 @@ def test_datapackage_descriptor_validates_against_its_field_list(site):
         content = path.read_bytes()
         assert res["bytes"] == len(content)
         assert res["hash"] == "sha256:" + hashlib.sha256(content).hexdigest()
+        if res.get("compression") == "gz":  # bytes and hash are the published (compressed) file's
+            assert res["path"].endswith(".csv.gz") and res["name"] in D.COMPRESSED
+            content = gzip.decompress(content)
         fields = res["schema"]["fields"]
         assert not D.check_types([(f["name"], f["type"], "") for f in fields])
         assert all(f["type"] in D.FRICTIONLESS_TYPES for f in fields)
@@ -351,7 +362,7 @@ def test_datapackage_descriptor_validates_against_its_field_list(site):
 
 def test_csv_cells_are_neutralised_but_numbers_stay_numbers(site):
     out, _ = site
-    results = list(csv.DictReader(io.StringIO((out / "downloads/results.csv").read_text(encoding="utf-8"))))
+    results = list(csv.DictReader(io.StringIO(read_csv_download(out, "results"))))
     candidates = {r["candidate"] for r in results}
     parties = {r["party"] for r in results}
     assert "'" + sf.INJECTION_CANDIDATE in candidates and sf.INJECTION_CANDIDATE not in candidates
@@ -359,7 +370,7 @@ def test_csv_cells_are_neutralised_but_numbers_stay_numbers(site):
     for row in results:
         for value in row.values():
             assert not value.startswith(D.FORMULA_START) or re.fullmatch(r"-?[\d.]+(e-?\d+)?", value), value
-    measures = list(csv.DictReader(io.StringIO((out / "downloads/measures.csv").read_text(encoding="utf-8"))))
+    measures = list(csv.DictReader(io.StringIO(read_csv_download(out, "measures"))))
     negative = [r["value"] for r in measures if r["value"].startswith("-")]
     assert negative and all(float(v) < 0 for v in negative)
     # the large tables come once, as CSV (weight); the small ones also as JSON, the same rows in original text
@@ -568,7 +579,7 @@ def test_correcting_one_state_rewrites_only_its_pages_and_the_national_ones(tmp_
         assert changed - lu <= national | {p for p in after if p.startswith("downloads/")} | {MANIFEST}
         assert P.cycle_page(2016) not in changed
         assert not {p for p in changed if p.startswith("assets/")}
-        assert {P.HOME, P.cycle_page(2022), "downloads/results.csv"} <= changed
+        assert {P.HOME, P.cycle_page(2022), "downloads/results.csv.gz"} <= changed
     finally:
         fx.close()
 
@@ -604,7 +615,7 @@ def test_a_fresh_store_publishes_a_valid_empty_site(tmp_path):
     assert "Nothing here yet" in (out / P.HOME).read_text(encoding="utf-8")
     root = ET.fromstring((out / P.FEED).read_bytes())
     assert not root.findall(f"{ATOM}entry") and root.find(f"{ATOM}updated").text == "1970-01-01T00:00:00Z"
-    rows = list(csv.reader(io.StringIO((out / "downloads/results.csv").read_text())))
+    rows = list(csv.reader(io.StringIO(read_csv_download(out, "results"))))
     assert len(rows) == 1 and rows[0][:3] == ["cycle", "state", "chamber"]
     json.loads((out / "downloads/datapackage.json").read_text())
     for page in html_pages(out):
@@ -664,7 +675,7 @@ def test_sample_history_site(sample_workspace, tmp_path):
     # weight budget (README "Weight"): no HTML page over 300 KB; no JSON twin of the large tables
     heavy = {p.relative_to(out).as_posix(): p.stat().st_size for p in out.rglob("*.html") if p.stat().st_size > 300_000}
     assert heavy == {}
-    assert not (out / "downloads/results.json").exists() and (out / "downloads/results.csv").is_file()
+    assert not (out / "downloads/results.json").exists() and (out / "downloads/results.csv.gz").is_file()
     db = store.connect(ws.store_path)
     try:
         data = collect(db, load_config(ws.config_path))
