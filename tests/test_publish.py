@@ -127,12 +127,25 @@ def check_links(out: Path) -> int:
     return checked
 
 
-def chart_specs(folder: Path) -> list[tuple[str, dict]]:
+#: the page's one chart look (fonts, colours), which charts.js hands to the renderer with every chart
+CHART_CONFIG_ID = "chart-config"
+
+
+def chart_specs(folder: Path, with_config: bool = False) -> list[tuple[str, dict]]:
+    """Every chart spec of every page; ``with_config``: each with its page's chart config merged
+    in, as charts.js draws it."""
     out = []
     for page in html_pages(folder):
-        for script in parse(page).scripts:
-            if script["attrs"].get("type") == "application/json":
-                out.append((f"{page.relative_to(folder)}#{script['attrs']['id']}", json.loads(script["text"])))
+        scripts = [s for s in parse(page).scripts if s["attrs"].get("type") == "application/json"]
+        config = [json.loads(s["text"]) for s in scripts if s["attrs"].get("id") == CHART_CONFIG_ID]
+        for script in scripts:
+            if script["attrs"].get("id") == CHART_CONFIG_ID:
+                continue
+            spec = json.loads(script["text"])
+            if with_config:
+                assert len(config) == 1, page
+                spec = {**spec, "config": config[0]}
+            out.append((f"{page.relative_to(folder)}#{script['attrs']['id']}", spec))
     return out
 
 
@@ -220,7 +233,7 @@ def test_chart_specs_are_valid_vega_lite_with_party_colours(fx, site):
 
     out, _ = site
     schema = load_schema()
-    specs = chart_specs(out)
+    specs = chart_specs(out, with_config=True)  # the page's config is validated with each chart
     assert len(specs) > 40
     for where, spec in specs:
         validate_jsonschema(spec, schema)  # raises on an invalid spec
@@ -232,18 +245,26 @@ def test_chart_specs_are_valid_vega_lite_with_party_colours(fx, site):
 def test_every_chart_has_a_description_and_a_data_table(site):
     out, _ = site
     found = 0
+    shared_tables = 0
     for page in html_pages(out):
         text = page.read_text(encoding="utf-8")
         figures = re.findall(r'<figure class="chart" id="([^"]+)">(.*?)</figure>', text, re.S)
         # every chart spec on the page belongs to a figure this pattern found (none slips past it)
-        assert len(figures) == text.count('<script type="application/json" id="'), page
+        assert len(figures) == text.count('<script type="application/json" id="') - text.count(f'id="{CHART_CONFIG_ID}"'), page
         found += len(figures)
         for cid, body in figures:
             assert f'data-spec="{cid}-spec"' in body and f'aria-describedby="{cid}-desc"' in body
             desc = re.search(rf'<p class="chart-desc" id="{cid}-desc">(.*?)</p>', body, re.S)
             assert desc and len(desc.group(1).strip()) > 40, (page, cid)
+            ref = re.search(r'<p class="small chart-data-ref">.*?<a href="#([^"]+)">', body, re.S)
+            if ref:  # its numbers are in the section's every-state table, which the page holds
+                shared = re.search(rf'<details class="chart-data measure-table" id="{ref[1]}">(.*?)</details>', text, re.S)
+                assert shared, (page, cid, ref[1])
+                body = shared[1]
+                shared_tables += 1
             rows = re.findall(r"<tbody>(.*?)</tbody>", body, re.S)
             assert rows and "<td>" in rows[0], (page, cid)
+    assert shared_tables > 10
     assert found > 40  # the fixture's pages hold charts: a pattern that finds none fails here
 
 
@@ -673,8 +694,10 @@ def test_sample_history_site(sample_workspace, tmp_path):
     report = build(ws, out=out)
     assert report.pages > 50 and not report.removed
     # weight budget (README "Weight"): no HTML page over 300 KB; no JSON twin of the large tables
-    heavy = {p.relative_to(out).as_posix(): p.stat().st_size for p in out.rglob("*.html") if p.stat().st_size > 300_000}
-    assert heavy == {}
+    from monitor.publish.weight import weigh
+
+    weight = weigh(out)  # the same check make bench reports on the x1 site
+    assert weight.pages == report.pages and weight.over == {}
     assert not (out / "downloads/results.json").exists() and (out / "downloads/results.csv.gz").is_file()
     db = store.connect(ws.store_path)
     try:

@@ -20,8 +20,9 @@ import numpy as np
 import pandas as pd
 
 from monitor.publish import formats as F
-from monitor.publish.chartkit import (BAND, FAINT, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style, _eras, _n,
-                                      _q, _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure, records)
+from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style,
+                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure,
+                                      records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -93,7 +94,8 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
               "mark": {"type": "point", "filled": True, "size": 70, "opacity": 0.85},
               "encoding": {
                   "x": _q("v", title=_signed_title(label, style)),
-                  "y": _n("flag", title=None, sort=style.flag_domain(), axis={"labels": False, "ticks": False, "domain": False}),
+                  # the rows are placed by the flag code (the axis shows no labels): the name layers need no label
+                  "y": _n("f", title=None, sort=list(FLAG_CODES), axis={"labels": False, "ticks": False, "domain": False}),
                   "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
                   "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
                   "tooltip": [_tip("s", "nominal", "state"), _tip("v", title="value", fmt="+.3f"), _tip("flag", "nominal")]}}
@@ -101,10 +103,9 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
     f = f.assign(label_level=label_levels(f, flagged_labels))
     levels = int(f["label_level"].max()) + 1 if len(f) else 1
     names = [{"data": {"name": "states"},
-              "transform": [style.flag_calculate(), {"filter": {"field": "flag", "oneOf": flagged_labels}},
-                            {"filter": {"field": "l", "equal": level}}],
+              "transform": [{"filter": {"field": "f", "oneOf": list(FLAG_CODES[:2])}}, {"filter": {"field": "l", "equal": level}}],
               "mark": {"type": "text", "dy": -11 * (level + 1), "fontSize": 10},
-              "encoding": {"x": _q("v", title=xtitle), "y": _n("flag", title=None, sort=style.flag_domain()),
+              "encoding": {"x": _q("v", title=xtitle), "y": _n("f", title=None, sort=list(FLAG_CODES)),
                            "text": _n("s")}} for level in range(levels)]
     flagged = f[f["flag"].isin(flagged_labels)]
     few = f[f["flag"] == TOO_FEW]
