@@ -214,6 +214,45 @@ def test_chart_descriptions_follow_the_sign_rule_in_words(site):
     assert ranked >= 3 and pooled >= 1
 
 
+def test_cycle_pages_count_every_stored_flag_change_and_tabulate_every_charted_state(fx, site):
+    """The weight-saving forms keep every number: a cycle page's counts of flag changes add up to
+    the stored flag history of that cycle (by chamber), and each chamber's every-state table has a
+    row for every state its ranked charts draw, with the value and the flagged party of each."""
+    stored = {}
+    for cycle, chamber in fx.db.execute("SELECT cycle, chamber FROM flag_events WHERE cycle IS NOT NULL"):
+        stored[(int(cycle), chamber)] = stored.get((int(cycle), chamber), 0) + 1
+    data = collect(fx.db, fx.config)
+    short = {data.chamber_short(c): c for c in data.chambers}
+    checked = 0
+    for cycle in data.cycles:
+        text = (site / P.cycle_page(cycle)).read_text(encoding="utf-8")
+        counted = {}
+        section = re.search(r'<section id="flags">(.*?)</section>', text, re.S)[1]
+        for chamber, _, n, _, _ in re.findall(r"<tr><td>([^<]*)</td><td>([^<]*)</td><td>([\d,]+)</td><td>([\d,]+)</td>"
+                                              r"<td>([^<]*)</td></tr>", section):
+            key = (cycle, short[html.unescape(chamber)])
+            counted[key] = counted.get(key, 0) + int(n.replace(",", ""))
+        assert counted == {k: v for k, v in stored.items() if k[0] == cycle}, cycle
+        for fig in FIGURE.finditer(text):
+            if not fig["id"].startswith("chart-rank-"):
+                continue
+            ref = re.search(rf'id="{re.escape(fig["id"])}".*?<a href="#([^"]+)">', text, re.S)[1]
+            table = re.search(rf'<details class="chart-data measure-table" id="{ref}">(.*?)</details>', text, re.S)[1]
+            heads = [html.unescape(h) for h in re.findall(r"<th[^>]*>([^<]*)</th>", table)]
+            rows = {html.unescape(r[0]).split(" (too few")[0]: [html.unescape(c) for c in r]
+                    for r in (re.findall(r"<td>([^<]*)</td>", row) for row in re.findall(r"<tr>(.*?)</tr>", table.split("<tbody>")[1], re.S))}
+            title = json.loads(fig["spec"])["layer"][0]["encoding"]["x"]["title"][0]
+            col = heads.index(title)
+            for point in json.loads(fig["spec"])["datasets"]["states"]:
+                cell = rows[point["s"]][col]
+                assert abs(float(cell.split()[0].replace("\u2212", "-")) - point["v"]) < 6e-3, (cycle, point, cell)
+                assert ("(flagged: " in cell) == (point["f"] in ("a", "b")), (cycle, point, cell)
+                if point["f"] in ("a", "b"):
+                    assert cell.endswith(f"(flagged: {NAMES[point['f']]})"), (cycle, point, cell)
+                checked += 1
+    assert checked > 20
+
+
 def test_watch_rows_show_the_stored_seats_and_say_when_the_measures_disagree(fx, site):
     stored = {r[0]: r[1] for r in fx.db.execute("SELECT plan_id, seats_at_stake FROM watch")}
     favours = {r[0]: r[1] for r in fx.db.execute("SELECT plan_id, favours FROM watch")}

@@ -50,8 +50,8 @@ def events_summary(events: pd.DataFrame, chamber_short) -> dict:
         return {"total": 0, "rows": []}
     e = events.assign(load=events["load_id"].map(lambda v: "" if F.missing(v) else f"#{int(v)}"),
                       chamber=events["chamber"].fillna(""))
-    rows = []
+    rows = []  # cells: chamber, change, changes, states, load
     for (chamber, event, load), g in e.groupby(["chamber", "event", "load"], sort=True):
-        rows.append({"chamber": chamber_short(chamber) if chamber else F.DASH, "event": event,
-                     "count": F.count(len(g)), "states": F.count(g["state"].nunique()), "load": load or F.DASH})
+        rows.append([chamber_short(chamber) if chamber else F.DASH, event, F.count(len(g)),
+                     F.count(g["state"].nunique()), load or F.DASH])
     return {"total": len(e), "rows": rows}
