@@ -167,6 +167,7 @@ def test_every_seat_count_on_every_page_names_the_party_its_sign_favours(site):
         # no signed seat count shown beside a direction: seats appear only through the stake words
         for node in text_nodes(page):
             assert not re.search(r"seats at stake [+\-\u2212]\d", node), (page.name, node)
+            assert "seats at stake no seats at stake" not in node, (page.name, node)
     assert checked >= 10
 
 
