@@ -41,3 +41,20 @@ def test_a_site_within_its_budgets_has_ratios_at_most_one(tmp_path):
     _file(tmp_path / "index.html", 300_000)
     w = weigh(tmp_path)
     assert w.over == {} and w.page_ratio == 1.0 and w.site_ratio == 300_000 / 60_000_000
+
+
+def test_the_bench_reports_the_weight_as_ratios_against_the_budgets(tmp_path):
+    """``make bench`` turns the full publish's weight into two targets (hand-made stage entries)."""
+    import bench.__main__ as bench
+
+    for page_bytes, verdict in ((285_707, "met"), (480_000, "MISSED")):
+        _file(tmp_path / str(page_bytes) / "cycle" / "1996.html", page_bytes)
+        weight = weigh(tmp_path / str(page_bytes)).summary()
+        stages = {"publish_full": {"seconds": 1.0, "weight": weight, "peak_rss_mb": 1.0}}
+        derived = bench.derive({"stages": stages})
+        _, checks = bench.table({"1": {"stages": stages, "derived": derived}}, {})
+        by_name = {c["target"]: c for c in checks}
+        page = by_name["largest HTML page / budget (300 KB)"]
+        assert page["measured"] == page_bytes / PAGE_BUDGET and page["verdict"] == verdict
+        site = by_name["site weight / budget (60 MB), full publish"]
+        assert site["measured"] == page_bytes / SITE_BUDGET and site["verdict"] == "met"
