@@ -394,7 +394,9 @@ def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style:
                                       "value": "normal"})
     # compact data (weight): s = state, v = value (4 decimals; 3 are shown), f = flag code
     bars = {"data": {"name": "states"}, "transform": [style.flag_calculate()], "mark": {"type": "bar", "height": {"band": 0.7}},
-            "encoding": {"x": _q("v", title=_signed_title(label, style)),
+            # the title ends at the plot's right edge: centred under a plot narrowed by long state
+            # labels it ran past the chart's edge and was cut ("Mean-median differenc")
+            "encoding": {"x": _q("v", title=_signed_title(label, style), axis={"titleAnchor": "end"}),
                          "y": _n("s", title=None, scale={"domain": order}, axis=y_axis),  # the domain sets the order
                          "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
                          "tooltip": [_tip("s", "nominal", "state"), _tip("v", title="value", fmt="+.3f"), _tip("flag", "nominal")]}}
