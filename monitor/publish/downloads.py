@@ -54,7 +54,8 @@ CSV_ONLY = {"results", "measures", "coverage", "coverage-gaps", "expected-seats"
 #: Tables published gzip-compressed (``<name>.csv.gz``, one gzip member per cycle): the three over
 #: a megabyte at the bench's x1 history (vote lines 60 MB, measures 5.7 MB, tails 3.9 MB as CSV).
 COMPRESSED = {"results", "measures", "flagged-units"}
-#: zlib's default level: within a few per cent of level 9 on these files, at a third of its time.
+#: zlib's default level: 4% larger than level 9 on the x1 results (7.86 against 7.57 MB from 60.4 MB),
+#: in about half its time (2.2 s against 4.0 s, measured once under load 2-3).
 GZIP_LEVEL = 6
 
 RESOURCES: list[dict] = [
