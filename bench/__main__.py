@@ -292,6 +292,10 @@ def derive(scale_result: dict) -> dict:
     corr = _sec(st.get("correction"))
     if corr is not None and d.get("full_rebuild"):
         d["correction_fraction"] = corr / d["full_rebuild"]
+    weight = (st.get("publish_full") or {}).get("weight")
+    if weight:
+        d["site_budget_ratio"], d["page_budget_ratio"] = weight["site_budget_ratio"], weight["page_budget_ratio"]
+        d["site_weight"] = weight
     d["peak_rss_mb"] = max((s.get("peak_rss_mb") or 0) for s in st.values())
     d["peak_rss_stage"] = max(st, key=lambda k: st[k].get("peak_rss_mb") or 0)
     return d
@@ -462,6 +466,12 @@ def table(results: dict, growth_fit: dict) -> tuple[list[str], list[dict]]:
         check(f"peak RSS growth slope {name}", g.get("slope"), 1.0, "<", f"{len(g.get('peak_rss_mb', []))} scales")
     check("peak RSS of every stage at x1 (MB)", results["1"]["derived"]["peak_rss_mb"] if "1" in results else None,
           1024, "<", results["1"]["derived"]["peak_rss_stage"] if "1" in results else "")
+    w = d.get("site_weight") or {}
+    check("site weight / budget (60 MB), full publish", d.get("site_budget_ratio"), 1.0, "<=",
+          f"{_fmt((w.get('site_bytes') or 0) / 1e6)} MB in {w.get('site_files')} files" if w else "")
+    check("largest HTML page / budget (300 KB)", d.get("page_budget_ratio"), 1.0, "<=",
+          f"{w.get('largest_page')} {_fmt((w.get('largest_page_bytes') or 0) / 1e3)} KB; "
+          f"{w.get('pages_over_budget')} of {w.get('html_pages')} pages over" if w else "")
     lines.append("Targets (scale x%s unless noted):" % ref_scale)
     lines.append(f"{'target':<66}{'measured':>11}{'goal':>10}  verdict")
     for c in checks:

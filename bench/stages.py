@@ -485,7 +485,11 @@ def stage_publish_full(args: dict) -> dict:
     t0 = start_timed()
     report = _publish(ws, db, config, out=out, force=True)
     dt = time.perf_counter() - t0
-    return {"seconds": dt, "force_option": _force_option(fn), **_publish_info(report)}
+    from monitor.publish.weight import weigh
+
+    # the weight budget (issue 15), measured on the site just built (untimed)
+    weight = weigh(out).summary()
+    return {"seconds": dt, "force_option": _force_option(fn), **_publish_info(report), "weight": weight}
 
 
 def _timed_chain(ws, db, config, path: Path, publish: bool = True) -> dict:

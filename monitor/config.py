@@ -185,8 +185,8 @@ OPTIONS: list[Option] = [
         "chambers elected in classes (a staggered senate: each cycle elects part of it): classes.<chamber> = N "
         "for every state, or = { <STATE> = N, \"*\" = N } per state (1 = not staggered). Each cycle's unit of "
         "such a chamber is partial and never flagged; the measures and flags of the whole chamber are those of "
-        "<chamber>_whole, which combines the latest election of every seat over the last N cycles of the same "
-        "plan (project choice)",
+        "its whole-chamber unit, which combines the latest election of every seat over the last N cycles of the "
+        "same plan (project choice; chamber code <chamber>_whole in the downloads and the CLI)",
         _staggered_classes,
         example=('classes.state_upper = 2', 'classes.state_upper = { QV = 2, ZX = 1 }'),
     ),

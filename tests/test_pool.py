@@ -289,6 +289,49 @@ def test_seed_reproducible_and_distinct(small_pool):
     assert not np.array_equal(d6.district[rows == 0], d6.district[rows == 1])
 
 
+def inverse_cdf_reference(pool, state, N, V, tol, tilt, centre, seed_seq, key, rows):
+    """A unit's kept draws written from the definitions alone: q_j proportional to
+    exp(lam y_j) over the districts of the other states, y_j = (a_j - T n_j) / mean(n) (module
+    docstring of monitor.pool.sampler; lam and T as the sampler reports them), indexes by
+    numpy's own weighted choice (searchsorted of the CDF, side="right") on the uniforms of the
+    unit's stream (child of the seed sequence with spawn key ``key``), rows kept in the window."""
+    eligible = np.flatnonzero(pool.state != state)
+    a, n = pool.votes_a[eligible], pool.turnout[eligible]
+    z = tilt * ((a - centre * n) / n.mean())
+    q = np.exp(z - z.max())
+    q /= q.sum()
+    cdf = np.cumsum(q)
+    cdf /= cdf[-1]
+    stream = np.random.default_rng(np.random.SeedSequence(seed_seq.entropy, spawn_key=(*seed_seq.spawn_key, key)))
+    j = eligible[np.searchsorted(cdf, stream.random((rows, N)), side="right")]
+    share = pool.votes_a[j].sum(axis=1) / pool.turnout[j].sum(axis=1)
+    ok = np.flatnonzero(np.abs(share - V) <= tol)
+    return j[ok], share[ok], ok
+
+
+def test_draws_are_the_inverse_cdf_of_the_units_own_stream(small_pool, monkeypatch):
+    # the sampler's kept draws equal, index for index, the reference's, whatever the size of the
+    # batches it draws in (so they do not depend on how the work is cut, nor does the count of
+    # proposals made: the rows up to the last kept one)
+    import monitor.pool.sampler as sampler_module
+
+    seed = np.random.SeedSequence(17)
+    units, Ns, V = np.array([2, 5]), np.array([3, 7]), np.array([0.44, 0.55])
+    d = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=700, unit_key=[11, 12])
+    monkeypatch.setattr(sampler_module, "_DRAW_CELLS", 50)  # batches of a few rows
+    small = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=700, unit_key=[11, 12])
+    for f in ("district", "weight", "share", "seats", "n_proposed", "n_accepted", "ess"):
+        np.testing.assert_array_equal(getattr(d, f), getattr(small, f))
+    rows = d.draw_unit[d.row_draw]
+    for u in range(2):
+        j, share, ok = inverse_cdf_reference(small_pool, units[u], Ns[u], V[u], d.tol, d.tilt[u], d.tilt_share[u],
+                                             seed, [11, 12][u], rows=40_000)
+        assert ok.size >= 700
+        np.testing.assert_array_equal(d.district[rows == u], j[:700].ravel())
+        np.testing.assert_array_equal(d.share[d.draw_unit == u], share[:700])
+        assert d.n_proposed[u] == ok[699] + 1
+
+
 def test_batched_comparison_equals_one_pass(small_pool):
     from monitor import measures
 
@@ -635,6 +678,26 @@ def test_null_evaluated_in_chunks_equals_one_pass(small_pool, monkeypatch):
     assert whole["mean_median"].null_mean[1] == pytest.approx(
         d.weight[d.draw_unit == 1] @ direct[d.draw_unit == 1]
     )
+
+
+def test_registry_nulls_from_gathered_districts_equal_the_public_measures(small_pool):
+    # the registry's null measures evaluated on one Segments per chunk that gathers each pool
+    # district's share, seat and turnout (Segments.take) against the public measure functions
+    # called on the drawn votes (monitor.measures, the engine's own definitions): value for value
+    d = simulate_delegations(small_pool, [0, 1, 2], [2, 5, 9], [0.45, 0.5, 0.55], rng=6, accepted=400)
+    obs = {name: np.full(3, 0.01) for name in NULL_MEASURES}
+    shared = null_distributions(d, obs)
+    public = {name: (lambda *args, f=f: f(*args)) for name, f in NULL_MEASURES.items()}  # not the shared path
+    each = null_distributions(d, obs, measures=public)
+    a, b = small_pool.votes_a[d.district], small_pool.votes_b[d.district]
+    for name, f in NULL_MEASURES.items():
+        direct = f(d.row_draw, a, b, d.n_draws)
+        ok = ~np.isnan(direct)
+        w = np.where(ok, d.weight, 0.0)
+        mean = np.bincount(d.draw_unit, w * np.where(ok, direct, 0.0), 3) / np.bincount(d.draw_unit, w, 3)
+        np.testing.assert_array_equal(shared[name].null_mean, mean)
+        for field in ("percentile", "null_low", "null_high", "null_mean", "nan_fraction", "n_used"):
+            np.testing.assert_array_equal(getattr(shared[name], field), getattr(each[name], field))
 
 
 def test_undefined_observed_value_gives_no_verdict(small_pool):

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
+import gzip
 import hashlib
 import html.parser
 import io
@@ -126,12 +127,25 @@ def check_links(out: Path) -> int:
     return checked
 
 
-def chart_specs(folder: Path) -> list[tuple[str, dict]]:
+#: the page's one chart look (fonts, colours), which charts.js hands to the renderer with every chart
+CHART_CONFIG_ID = "chart-config"
+
+
+def chart_specs(folder: Path, with_config: bool = False) -> list[tuple[str, dict]]:
+    """Every chart spec of every page; ``with_config``: each with its page's chart config merged
+    in, as charts.js draws it."""
     out = []
     for page in html_pages(folder):
-        for script in parse(page).scripts:
-            if script["attrs"].get("type") == "application/json":
-                out.append((f"{page.relative_to(folder)}#{script['attrs']['id']}", json.loads(script["text"])))
+        scripts = [s for s in parse(page).scripts if s["attrs"].get("type") == "application/json"]
+        config = [json.loads(s["text"]) for s in scripts if s["attrs"].get("id") == CHART_CONFIG_ID]
+        for script in scripts:
+            if script["attrs"].get("id") == CHART_CONFIG_ID:
+                continue
+            spec = json.loads(script["text"])
+            if with_config:
+                assert len(config) == 1, page
+                spec = {**spec, "config": config[0]}
+            out.append((f"{page.relative_to(folder)}#{script['attrs']['id']}", spec))
     return out
 
 
@@ -219,7 +233,7 @@ def test_chart_specs_are_valid_vega_lite_with_party_colours(fx, site):
 
     out, _ = site
     schema = load_schema()
-    specs = chart_specs(out)
+    specs = chart_specs(out, with_config=True)  # the page's config is validated with each chart
     assert len(specs) > 40
     for where, spec in specs:
         validate_jsonschema(spec, schema)  # raises on an invalid spec
@@ -231,18 +245,26 @@ def test_chart_specs_are_valid_vega_lite_with_party_colours(fx, site):
 def test_every_chart_has_a_description_and_a_data_table(site):
     out, _ = site
     found = 0
+    shared_tables = 0
     for page in html_pages(out):
         text = page.read_text(encoding="utf-8")
         figures = re.findall(r'<figure class="chart" id="([^"]+)">(.*?)</figure>', text, re.S)
         # every chart spec on the page belongs to a figure this pattern found (none slips past it)
-        assert len(figures) == text.count('<script type="application/json" id="'), page
+        assert len(figures) == text.count('<script type="application/json" id="') - text.count(f'id="{CHART_CONFIG_ID}"'), page
         found += len(figures)
         for cid, body in figures:
             assert f'data-spec="{cid}-spec"' in body and f'aria-describedby="{cid}-desc"' in body
             desc = re.search(rf'<p class="chart-desc" id="{cid}-desc">(.*?)</p>', body, re.S)
             assert desc and len(desc.group(1).strip()) > 40, (page, cid)
+            ref = re.search(r'<p class="small chart-data-ref">.*?<a href="#([^"]+)">', body, re.S)
+            if ref:  # its numbers are in the section's every-state table, which the page holds
+                shared = re.search(rf'<details class="chart-data measure-table" id="{ref[1]}">(.*?)</details>', text, re.S)
+                assert shared, (page, cid, ref[1])
+                body = shared[1]
+                shared_tables += 1
             rows = re.findall(r"<tbody>(.*?)</tbody>", body, re.S)
             assert rows and "<td>" in rows[0], (page, cid)
+    assert shared_tables > 10
     assert found > 40  # the fixture's pages hold charts: a pattern that finds none fails here
 
 
@@ -301,6 +323,13 @@ def test_watch_page_lists_every_plan_on_watch(fx, site):
 
 
 # --- downloads --------------------------------------------------------------------------------------
+def read_csv_download(out: Path, name: str) -> str:
+    """A CSV download's text, decompressed when it is published gzip-compressed."""
+    path = out / "downloads" / D.csv_path(name)
+    content = path.read_bytes()
+    return (gzip.decompress(content) if path.suffix == ".gz" else content).decode("utf-8")
+
+
 def _parse_cell(value: str, kind: str):
     if value == "":
         return None
@@ -331,6 +360,9 @@ def test_datapackage_descriptor_validates_against_its_field_list(site):
         content = path.read_bytes()
         assert res["bytes"] == len(content)
         assert res["hash"] == "sha256:" + hashlib.sha256(content).hexdigest()
+        if res.get("compression") == "gz":  # bytes and hash are the published (compressed) file's
+            assert res["path"].endswith(".csv.gz") and res["name"] in D.COMPRESSED
+            content = gzip.decompress(content)
         fields = res["schema"]["fields"]
         assert not D.check_types([(f["name"], f["type"], "") for f in fields])
         assert all(f["type"] in D.FRICTIONLESS_TYPES for f in fields)
@@ -351,7 +383,7 @@ def test_datapackage_descriptor_validates_against_its_field_list(site):
 
 def test_csv_cells_are_neutralised_but_numbers_stay_numbers(site):
     out, _ = site
-    results = list(csv.DictReader(io.StringIO((out / "downloads/results.csv").read_text(encoding="utf-8"))))
+    results = list(csv.DictReader(io.StringIO(read_csv_download(out, "results"))))
     candidates = {r["candidate"] for r in results}
     parties = {r["party"] for r in results}
     assert "'" + sf.INJECTION_CANDIDATE in candidates and sf.INJECTION_CANDIDATE not in candidates
@@ -359,7 +391,7 @@ def test_csv_cells_are_neutralised_but_numbers_stay_numbers(site):
     for row in results:
         for value in row.values():
             assert not value.startswith(D.FORMULA_START) or re.fullmatch(r"-?[\d.]+(e-?\d+)?", value), value
-    measures = list(csv.DictReader(io.StringIO((out / "downloads/measures.csv").read_text(encoding="utf-8"))))
+    measures = list(csv.DictReader(io.StringIO(read_csv_download(out, "measures"))))
     negative = [r["value"] for r in measures if r["value"].startswith("-")]
     assert negative and all(float(v) < 0 for v in negative)
     # the large tables come once, as CSV (weight); the small ones also as JSON, the same rows in original text
@@ -568,7 +600,7 @@ def test_correcting_one_state_rewrites_only_its_pages_and_the_national_ones(tmp_
         assert changed - lu <= national | {p for p in after if p.startswith("downloads/")} | {MANIFEST}
         assert P.cycle_page(2016) not in changed
         assert not {p for p in changed if p.startswith("assets/")}
-        assert {P.HOME, P.cycle_page(2022), "downloads/results.csv"} <= changed
+        assert {P.HOME, P.cycle_page(2022), "downloads/results.csv.gz"} <= changed
     finally:
         fx.close()
 
@@ -604,7 +636,7 @@ def test_a_fresh_store_publishes_a_valid_empty_site(tmp_path):
     assert "Nothing here yet" in (out / P.HOME).read_text(encoding="utf-8")
     root = ET.fromstring((out / P.FEED).read_bytes())
     assert not root.findall(f"{ATOM}entry") and root.find(f"{ATOM}updated").text == "1970-01-01T00:00:00Z"
-    rows = list(csv.reader(io.StringIO((out / "downloads/results.csv").read_text())))
+    rows = list(csv.reader(io.StringIO(read_csv_download(out, "results"))))
     assert len(rows) == 1 and rows[0][:3] == ["cycle", "state", "chamber"]
     json.loads((out / "downloads/datapackage.json").read_text())
     for page in html_pages(out):
@@ -662,9 +694,11 @@ def test_sample_history_site(sample_workspace, tmp_path):
     report = build(ws, out=out)
     assert report.pages > 50 and not report.removed
     # weight budget (README "Weight"): no HTML page over 300 KB; no JSON twin of the large tables
-    heavy = {p.relative_to(out).as_posix(): p.stat().st_size for p in out.rglob("*.html") if p.stat().st_size > 300_000}
-    assert heavy == {}
-    assert not (out / "downloads/results.json").exists() and (out / "downloads/results.csv").is_file()
+    from monitor.publish.weight import weigh
+
+    weight = weigh(out)  # the same check make bench reports on the x1 site
+    assert weight.pages == report.pages and weight.over == {}
+    assert not (out / "downloads/results.json").exists() and (out / "downloads/results.csv.gz").is_file()
     db = store.connect(ws.store_path)
     try:
         data = collect(db, load_config(ws.config_path))

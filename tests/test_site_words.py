@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
+import hashlib
 import html
 import html.parser
 import io
@@ -36,6 +37,7 @@ from monitor.ingest import load_file
 from monitor.measures import registry
 from monitor.publish import build, collect
 from monitor.publish import paths as P
+from monitor.publish.chartkit import DIGITS
 from monitor.publish.pages import render_site
 from monitor.publish.views import Views
 
@@ -165,7 +167,91 @@ def test_every_seat_count_on_every_page_names_the_party_its_sign_favours(site):
         # no signed seat count shown beside a direction: seats appear only through the stake words
         for node in text_nodes(page):
             assert not re.search(r"seats at stake [+\-\u2212]\d", node), (page.name, node)
+            assert "seats at stake no seats at stake" not in node, (page.name, node)
     assert checked >= 10
+
+
+FIGURE = re.compile(r'<figure class="chart" id="(?P<id>[^"]*)">.*?<script type="application/json" id="[^"]*">'
+                    r'(?P<spec>.*?)</script>.*?<p class="chart-desc" id="[^"]*">(?P<desc>.*?)</p>', re.S)
+SIGNED = re.compile(r"(?<![\w\-\u2013])[+\u2212-]\d")
+
+
+def test_chart_descriptions_follow_the_sign_rule_in_words(site):
+    """Every chart's text alternative speaks like the rest of the page: no signed number and no
+    sign note, a direction named by the sign of the number it describes. Checked against the
+    numbers the chart itself draws (its spec's data): the ranked charts' highest and lowest
+    states and the expected-seats chart's ends."""
+    ranked = pooled = 0
+    for page in sorted(site.rglob("*.html")):
+        for fig in FIGURE.finditer(page.read_text(encoding="utf-8")):
+            desc = html.unescape(fig["desc"])
+            where = (page.name, fig["id"])
+            assert not SIGNED.search(desc), (where, desc)
+            assert "positive" not in desc.casefold() and "negative value" not in desc.casefold(), (where, desc)
+            spec = json.loads(fig["spec"])
+            if fig["id"].startswith("chart-rank-"):
+                states = spec["datasets"]["states"]
+                ordered = [r for r in states if r["f"] != "x"]
+                top, bottom = max(ordered, key=lambda r: r["v"]), min(ordered, key=lambda r: r["v"])
+                digits = DIGITS.get(fig["id"].rsplit("-", 1)[1], 3)  # the digits the page shows
+                ends = re.search(r"Highest: (.*?), ([\d.]+)(?: towards ([^;]*))?; lowest: (.*?), ([\d.]+)"
+                                 r"(?: towards ([^.]*?))?\. ", desc)
+                assert ends, (where, desc)
+                for (state, amount, party), r in ((ends.groups()[:3], top), (ends.groups()[3:], bottom)):
+                    # the chart's data holds 4 decimals: the words name the party its sign favours
+                    assert state == r["s"] and abs(float(amount) - abs(r["v"])) <= 0.6 * 10 ** -digits, (where, desc)
+                    if abs(r["v"]) > 10 ** -digits:
+                        assert party == NAMES["a" if r["v"] > 0 else "b"], (where, desc)
+                ranked += 1
+            if fig["id"].startswith("chart-pool-"):
+                units = spec["datasets"]["units"]
+                top, bottom = units[0], units[-1]
+                for r in (top, bottom):
+                    code = expected_code(r["excess_seats"])
+                    words = (f"favours {NAMES[code]} by {abs(r['excess_seats']):.1f} seats" if code
+                             else "no seats at stake")
+                    assert f"{r['state_label']}, {words}" in desc, (where, desc)
+                pooled += 1
+    assert ranked >= 3 and pooled >= 1
+
+
+def test_cycle_pages_count_every_stored_flag_change_and_tabulate_every_charted_state(fx, site):
+    """The weight-saving forms keep every number: a cycle page's counts of flag changes add up to
+    the stored flag history of that cycle (by chamber), and each chamber's every-state table has a
+    row for every state its ranked charts draw, with the value and the flagged party of each."""
+    stored = {}
+    for cycle, chamber in fx.db.execute("SELECT cycle, chamber FROM flag_events WHERE cycle IS NOT NULL"):
+        stored[(int(cycle), chamber)] = stored.get((int(cycle), chamber), 0) + 1
+    data = collect(fx.db, fx.config)
+    short = {data.chamber_short(c): c for c in data.chambers}
+    checked = 0
+    for cycle in data.cycles:
+        text = (site / P.cycle_page(cycle)).read_text(encoding="utf-8")
+        counted = {}
+        section = re.search(r'<section id="flags">(.*?)</section>', text, re.S)[1]
+        for chamber, _, n, _, _ in re.findall(r"<tr><td>([^<]*)</td><td>([^<]*)</td><td>([\d,]+)</td><td>([\d,]+)</td>"
+                                              r"<td>([^<]*)</td></tr>", section):
+            key = (cycle, short[html.unescape(chamber)])
+            counted[key] = counted.get(key, 0) + int(n.replace(",", ""))
+        assert counted == {k: v for k, v in stored.items() if k[0] == cycle}, cycle
+        for fig in FIGURE.finditer(text):
+            if not fig["id"].startswith("chart-rank-"):
+                continue
+            ref = re.search(rf'id="{re.escape(fig["id"])}".*?<a href="#([^"]+)">', text, re.S)[1]
+            table = re.search(rf'<details class="chart-data measure-table" id="{ref}">(.*?)</details>', text, re.S)[1]
+            heads = [html.unescape(h) for h in re.findall(r"<th[^>]*>([^<]*)</th>", table)]
+            rows = {html.unescape(r[0]).split(" (too few")[0]: [html.unescape(c) for c in r]
+                    for r in (re.findall(r"<td>([^<]*)</td>", row) for row in re.findall(r"<tr>(.*?)</tr>", table.split("<tbody>")[1], re.S))}
+            title = json.loads(fig["spec"])["layer"][0]["encoding"]["x"]["title"][0]
+            col = heads.index(title)
+            for point in json.loads(fig["spec"])["datasets"]["states"]:
+                cell = rows[point["s"]][col]
+                assert abs(float(cell.split()[0].replace("\u2212", "-")) - point["v"]) < 6e-3, (cycle, point, cell)
+                assert ("(flagged: " in cell) == (point["f"] in ("a", "b")), (cycle, point, cell)
+                if point["f"] in ("a", "b"):
+                    assert cell.endswith(f"(flagged: {NAMES[point['f']]})"), (cycle, point, cell)
+                checked += 1
+    assert checked > 20
 
 
 def test_watch_rows_show_the_stored_seats_and_say_when_the_measures_disagree(fx, site):
@@ -417,4 +503,59 @@ def test_the_data_package_validates_with_frictionless(site, tmp_path):
     shutil.copytree(site / "downloads", copy)
     watch = copy / "watch.csv"
     watch.write_bytes(watch.read_bytes().replace(b"KA-federal-2012", b"KA-federal-2013"))
+    assert not frictionless.validate(str(copy / "datapackage.json")).valid
+
+
+def test_the_compressed_results_are_the_csv_and_frictionless_reads_inside_them(fx, site, tmp_path):
+    """``results.csv.gz`` decompresses to exactly the CSV of the results' columns (gzip members,
+    RFC 1952 section 2.2: one for the header, one per cycle, mtime 0); the reference validator
+    reads its rows (a bad cell inside a correctly hashed file is an error) and its bytes (a
+    changed byte is an error)."""
+    frictionless = pytest.importorskip("frictionless")
+    import gzip
+
+    from monitor.publish import downloads as D
+
+    packed = (site / "downloads" / "results.csv.gz").read_bytes()
+    spec = next(r for r in D.RESOURCES if r["name"] == "results")
+    data = collect(fx.db, fx.config)
+    assert gzip.decompress(packed) == D.to_csv(data.results, spec["fields"])
+    # one member per cycle after the header's: the header line alone decompresses from the start
+    header = D.gzip_member(D._csv_header(spec["fields"]))
+    assert packed.startswith(header) and gzip.decompress(header).decode().startswith("cycle,state,chamber,district,")
+    assert packed.count(b"\x1f\x8b\x08\x00\x00\x00\x00\x00") >= 1 + len(data.cycles)  # mtime 0 in every member
+    package = json.loads((site / "downloads" / "datapackage.json").read_text(encoding="utf-8"))
+    (res,) = [r for r in package["resources"] if r["name"] == "results"]
+    assert (res["path"], res["compression"], res["format"]) == ("results.csv.gz", "gz", "csv")
+    report = frictionless.validate(str(site / "downloads" / "datapackage.json"))
+    (task,) = [t for t in report.tasks if t.name == "results"]
+    assert task.valid and task.stats["rows"] == len(data.results)
+
+    def republish(content: bytes) -> Path:
+        copy = tmp_path / f"v{len(list(tmp_path.iterdir()))}"
+        shutil.copytree(site / "downloads", copy)
+        (copy / "results.csv.gz").write_bytes(content)
+        doc = json.loads((copy / "datapackage.json").read_text(encoding="utf-8"))
+        for r in doc["resources"]:
+            if r["name"] == "results":
+                r["bytes"], r["hash"] = len(content), "sha256:" + hashlib.sha256(content).hexdigest()
+        (copy / "datapackage.json").write_text(json.dumps(doc), encoding="utf-8")
+        return copy / "datapackage.json"
+
+    def results_errors(descriptor: Path) -> list[str]:
+        out = frictionless.validate(str(descriptor))
+        return [e.type for t in out.tasks if t.name == "results" for e in t.errors]
+
+    assert results_errors(republish(packed)) == []  # re-hashed but unchanged: still valid
+    text = gzip.decompress(packed).decode("utf-8").splitlines(keepends=True)
+    votes = [f["name"] for f in res["schema"]["fields"]].index("votes")
+    cells = text[1].split(",")
+    cells[votes] = "many"
+    broken = D.gzip_member("".join([text[0], ",".join(cells), *text[2:]]).encode("utf-8"))
+    assert "type-error" in results_errors(republish(broken))
+    flipped = bytearray(packed)
+    flipped[len(packed) // 2] ^= 0xFF
+    copy = tmp_path / "flipped"
+    shutil.copytree(site / "downloads", copy)
+    (copy / "results.csv.gz").write_bytes(bytes(flipped))
     assert not frictionless.validate(str(copy / "datapackage.json")).valid

@@ -102,6 +102,42 @@ class Segments:
         self.votes_b = votes_b
         self.n_units = n_units
 
+    #: The per-district values :meth:`take` carries over: each an elementwise function of one
+    #: district's votes, so a gathered value equals the one computed on the gathered votes.
+    PER_DISTRICT = ("total", "share", "share_b", "margin", "seat")
+
+    @classmethod
+    def take(cls, source: "Segments", rows: np.ndarray, unit: np.ndarray, n_units: int,
+             count: np.ndarray | None = None) -> "Segments":
+        """The districts ``rows`` of ``source`` (repeats allowed), grouped into ``n_units`` units by
+        ``unit`` (non-decreasing, one id per row; not checked); ``count``, when the caller knows
+        it, is the number of rows of each unit (int64, not checked either).
+
+        The per-district values ``source`` has already computed (:attr:`PER_DISTRICT`) are gathered
+        instead of computed again, and when ``source`` has no district without votes neither has
+        any unit: the measures of many units drawn from one set of districts (the simulated
+        delegations of :mod:`monitor.pool`) read each district's share and seat once, value for
+        value the same as from ``Segments(unit, votes_a[rows], votes_b[rows], n_units)``.
+
+        Examples
+        --------
+        >>> src = Segments([0, 0, 0], [60.0, 30.0, 50.0], [40.0, 70.0, 50.0], 1)
+        >>> src.share.tolist()
+        [0.6, 0.3, 0.5]
+        >>> seg = Segments.take(src, np.array([2, 0, 0, 1]), np.array([0, 0, 1, 1]), 2)
+        >>> seg.share.tolist(), seg.seats_a.tolist()
+        ([0.5, 0.6, 0.6, 0.3], [1.5, 1.0])
+        """
+        seg = cls(unit, source.votes_a[rows], source.votes_b[rows], n_units, validate=False)
+        for name in cls.PER_DISTRICT:
+            if name in source.__dict__:  # computed (cached) on the source
+                seg.__dict__[name] = source.__dict__[name][rows]
+        if not source.has_empty_district.any():
+            seg.__dict__["has_empty_district"] = np.zeros(n_units, dtype=bool)
+        if count is not None:
+            seg.__dict__["count"] = count
+        return seg
+
     # -- per district ---------------------------------------------------------------------
     @cached_property
     def total(self) -> np.ndarray:

@@ -11,8 +11,8 @@ import numpy as np
 from monitor.measures import registry
 
 from .pool import NationalPool
-from .sampler import _CHUNK_CELLS, Delegations, _base_seed, simulate_delegations
-from .seats import SeatsResult, _weighted_midrank, _weighted_quantile, expected_seats
+from .sampler import Delegations, _base_seed, simulate_delegations
+from .seats import SeatsResult, _weighted_midrank, _weighted_quantiles, expected_seats
 
 #: The measures judged against their national-pool null (the registry's flags with ``null``), by
 #: their flag name, with the vectorised function ``f(unit, votes_a, votes_b, n_units)`` that
@@ -52,6 +52,10 @@ class NullResult:
     n_used: np.ndarray
 
 
+#: District rows of simulated delegations evaluated at once (2 MB per temporary of the measures).
+_CHUNK_CELLS = 1 << 18
+
+
 def _default_measures() -> dict[str, Callable]:
     return dict(NULL_MEASURES)
 
@@ -71,16 +75,19 @@ def _chunks(d: Delegations):
 
 def _evaluate_shared(fns: Mapping[str, Callable], d: Delegations) -> dict[str, np.ndarray]:
     """Every measure of ``fns`` (Segments forms, :data:`NULL_MEASURES_OF`) on every kept draw,
-    one Segments per chunk shared by all of them (their per-district shares, seats and sums are
-    computed once). Equal to :func:`_evaluate` of the public forms, value for value."""
+    one Segments per chunk shared by all of them (their per-district sums are computed once), and
+    each pool district's share and seat computed once and gathered (:meth:`Segments.take`).
+    Equal to :func:`_evaluate` of the public forms, value for value."""
     from monitor.measures.segments import Segments
 
     out = {name: np.empty(d.n_draws) for name in fns}
-    a, b = d.pool.votes_a, d.pool.votes_b
+    pool = Segments(np.zeros(d.pool.size, np.int64), d.pool.votes_a, d.pool.votes_b, 1, validate=False)
+    for name in ("total", "share", "seat"):  # each district's, once: the chunks gather them
+        getattr(pool, name)
     for first, last, row_start, size in _chunks(d):
-        idx = d.district[row_start[first]:row_start[last]]
+        idx = d.district[row_start[first]:row_start[last]].astype(np.intp)
         unit = np.repeat(np.arange(last - first, dtype=np.int64), size[first:last])
-        seg = Segments(unit, a[idx], b[idx], last - first, validate=False)
+        seg = Segments.take(pool, idx, unit, last - first, count=size[first:last])
         for name, f in fns.items():
             out[name][first:last] = f(seg)
     return out
@@ -183,13 +190,14 @@ def _null_of(vals: np.ndarray, obs: np.ndarray, d: Delegations, alpha: float) ->
     tail = np.zeros(U, np.int8)
     tail[pct > 1 - alpha] = 1
     tail[pct < alpha] = -1
+    low, high = _weighted_quantiles(v, w, g, U, (alpha, 1 - alpha))
     return NullResult(
         observed=obs,
         percentile=pct,
         percentile_se=se,
         tail=tail,
-        null_low=_weighted_quantile(v, w, g, U, alpha),
-        null_high=_weighted_quantile(v, w, g, U, 1 - alpha),
+        null_low=low,
+        null_high=high,
         null_mean=mean,
         nan_fraction=np.where(d.n_accepted > 0, np.bincount(g, d.weight * ~ok, U), np.nan),
         n_used=np.bincount(g, ok, U).astype(np.int64),

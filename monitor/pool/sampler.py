@@ -29,6 +29,17 @@ stored weights are ``exp(-lam * sum_i y_{j_i})`` scaled to sum to one per unit. 
 effective sample size close to the number of kept draws.  Any ``lam`` keeps the estimator exact; the
 choice of ``lam`` affects only its efficiency (``lam = 0`` is plain rejection).
 
+Drawing: each unit draws from its own random stream (the child of the call's seed sequence keyed
+by the unit), so its draws depend on nothing but the seed, its key and its own inputs: not on the
+other units of the call, nor on how the work is cut into batches, chunks or threads.  The tilt is
+solved per unit (``brentq``, above); the proposals are drawn in chunks of 64K (draw, district)
+cells by inverse CDF with a guide table (:func:`_inverse_cdf`), over the whole pool's index with
+the unit's own state at zero mass (:func:`_pool_cdf`), so every unit reads the pool's arrays in
+place.  The units of a (cycle, chamber) are not stacked into one array pass: with one stream per
+unit the work per cell (a uniform, a table look-up, two gathers) would be the same, and a chunk
+of 64K cells takes some 20 array operations, so the loop over units adds little (running batches
+of units on two threads was slower on the bench's shared 2-CPU machine, so it is not done).
+
 Monte Carlo error: Kish's effective sample size ``ESS = (sum w)^2 / sum w^2`` [3]_ and, for a
 weighted mean ``m = sum w f`` (weights normalised to one), the delta-method standard error of the
 self-normalised estimator, ``se = sqrt(sum w^2 (f - m)^2)`` [2]_.
@@ -50,8 +61,10 @@ from scipy.optimize import brentq
 
 from .pool import NationalPool
 
-# Upper bound on the number of (draw, district) cells held in memory at once.
-_CHUNK_CELLS = 1 << 21
+#: Proposal cells drawn at once per unit: 64K cells make temporaries of 512 KB, which stay in cache
+#: and are reused by the allocator (timed on one unit of the bench's x1 history, on the shared
+#: machine: chunks of 128K cells and more cost 1.5x to 3x as much per cell, 16K to 64K the same).
+_DRAW_CELLS = 1 << 16
 
 
 @dataclass(frozen=True)
@@ -189,9 +202,13 @@ def _inverse_cdf(cdf: np.ndarray, guide: np.ndarray, u: np.ndarray) -> np.ndarra
     k = (u * guide.size).astype(np.int64)
     j = guide[k]
     todo = np.flatnonzero(cdf[j] <= u)
-    while todo.size:
+    for _ in range(2):  # a step or two settles nearly all the rest
+        if not todo.size:
+            break
         j[todo] += 1
         todo = todo[cdf[j[todo]] <= u[todo]]
+    if todo.size:  # the few in a slot that spans many entries (a run of zero mass, say): a search
+        j[todo] = np.searchsorted(cdf, u[todo], side="right")
     return j.reshape(shape)
 
 
@@ -289,12 +306,13 @@ def simulate_delegations(
     unit_state, n_districts, vote_share, keys = _check_units(pool, unit_state, n_districts, vote_share, tol,
                                                              accepted, max_draws, unit_key)
     base = _base_seed(rng)
+    group = _GroupArrays.of(pool)
     units = []
     for u in range(unit_state.shape[0]):
         eligible = np.flatnonzero(pool.state != unit_state[u]) if exclude_own else np.arange(pool.size)
         stream = lambda key=int(keys[u]): np.random.default_rng(  # noqa: E731
             np.random.SeedSequence(base.entropy, spawn_key=(*base.spawn_key, key)))
-        units.append(_draw_unit(pool, eligible, int(n_districts[u]), float(vote_share[u]), tol, accepted,
+        units.append(_draw_unit(group, eligible, int(n_districts[u]), float(vote_share[u]), tol, accepted,
                                 max_draws, stream))
     return _assemble(pool, unit_state, n_districts, vote_share, tol, units)
 
@@ -331,8 +349,23 @@ def _check_units(pool, unit_state, n_districts, vote_share, tol, accepted, max_d
 
 
 @dataclass(frozen=True)
+class _GroupArrays:
+    """The per-district arrays every unit of a call reads, computed once: votes, turnout, seat to a,
+    and the index type of the stored draws."""
+
+    a: np.ndarray
+    n: np.ndarray
+    seat: np.ndarray
+    index_type: type
+
+    @classmethod
+    def of(cls, pool: NationalPool) -> "_GroupArrays":
+        return cls(pool.votes_a, pool.turnout, pool.seat_a, np.int32 if pool.size < 2**31 else np.int64)
+
+
+@dataclass(frozen=True)
 class _UnitDraws:
-    """One unit's kept draws: pool indexes (kept, N), normalised weights, shares, seats; counts."""
+    """One unit's kept draws: pool indexes (flat, kept x N), normalised weights, shares, seats; counts."""
 
     district: np.ndarray
     weight: np.ndarray
@@ -345,23 +378,40 @@ class _UnitDraws:
     tilt_share: float = np.nan
 
 
-def _draw_unit(pool: NationalPool, eligible: np.ndarray, N: int, v: float, tol: float, accepted: int,
+def _pool_cdf(size: int, eligible: np.ndarray, q: np.ndarray) -> np.ndarray:
+    """The CDF over the whole pool of the proposal ``q`` on ``eligible`` (zero mass elsewhere).
+
+    At the eligible entries it holds exactly the values of ``cumsum(q) / sum`` over the eligible
+    districts alone (adding the zeros of the others leaves a float sum unchanged), and an entry
+    of zero mass repeats its predecessor's value, so ``min{i : cdf[i] > u}`` is never one: the
+    inverse CDF returns ``eligible[j]`` for the ``j`` the eligible districts' own CDF gives."""
+    full = np.zeros(size)
+    full[eligible] = q
+    cdf = np.cumsum(full)
+    cdf /= cdf[-1]
+    return cdf
+
+
+def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol: float, accepted: int,
                max_draws: int, stream) -> _UnitDraws:
     """Tilted proposals for one unit (``stream()`` gives its generator) until ``accepted`` land within
-    ``tol`` of ``v`` or ``max_draws`` were made; nothing kept when the target is out of reach."""
+    ``tol`` of ``v`` or ``max_draws`` were made; nothing kept when the target is out of reach.
+
+    The proposals index the whole pool (:func:`_pool_cdf`), so the pool's arrays are read in place."""
     prop = None
     if eligible.size:
-        a, n, x = pool.votes_a[eligible], pool.turnout[eligible], pool.share[eligible]
-        prop = _tilted_proposal(a, n, x, v, tol)
+        a_el, n_el = group.a[eligible], group.n[eligible]
+        prop = _tilted_proposal(a_el, n_el, a_el / n_el, v, tol)
     if prop is None:
-        return _UnitDraws(np.empty((0, N), np.int64), np.empty(0), np.empty(0), np.empty(0))
-    t, lam, y, q = prop
-    rng = stream()
-    seat = pool.seat_a[eligible]
-    cdf = np.cumsum(q)
-    cdf /= cdf[-1]
+        return _UnitDraws(np.empty(0, group.index_type), np.empty(0), np.empty(0), np.empty(0))
+    t, lam, y_el, q = prop
+    a, n, seat = group.a, group.n, group.seat
+    y = np.zeros(a.size)
+    y[eligible] = y_el
+    cdf = _pool_cdf(a.size, eligible, q)
     guide = guide_table(cdf)
-    rows = max(1, _CHUNK_CELLS // N)
+    rng = stream()
+    rows = max(1, _DRAW_CELLS // N)
     kept_j, kept_logw, kept_share, kept_seats = [], [], [], []
     got = done = 0
     while got < accepted and done < max_draws:
@@ -375,23 +425,26 @@ def _draw_unit(pool: NationalPool, eligible: np.ndarray, N: int, v: float, tol: 
         j = _inverse_cdf(cdf, guide, rng.random((r, N)))
         sh = a[j].sum(axis=1) / n[j].sum(axis=1)
         ok = np.flatnonzero(np.abs(sh - v) <= tol)
-        if ok.size > accepted - got:  # stop at the accepted-th kept draw
-            ok = ok[: accepted - got]
+        if ok.size >= accepted - got:  # stop at the accepted-th kept draw (so the count of proposals
+            ok = ok[: accepted - got]    # made does not depend on the batch sizes either)
             done += int(ok[-1]) + 1
         else:
             done += r
         got += ok.size
-        kept_j.append(j[ok])
-        kept_logw.append(-lam * y[j[ok]].sum(axis=1))
-        kept_share.append(sh[ok])
-        kept_seats.append(seat[j[ok]].sum(axis=1))
+        if ok.size:
+            jk = j[ok]
+            kept_j.append(jk.astype(group.index_type).ravel())
+            kept_logw.append(-lam * y[jk].sum(axis=1))
+            kept_share.append(sh[ok])
+            kept_seats.append(seat[jk].sum(axis=1))
+    if not got:
+        return _UnitDraws(np.empty(0, group.index_type), np.empty(0), np.empty(0), np.empty(0), done, 0, np.nan,
+                          lam, t)
     logw = np.concatenate(kept_logw)
-    w, ess = logw, np.nan
-    if got:
-        w = np.exp(logw - logw.max())
-        w /= w.sum()
-        ess = 1.0 / float(w @ w)
-    return _UnitDraws(eligible[np.concatenate(kept_j)], w, np.concatenate(kept_share), np.concatenate(kept_seats),
+    w = np.exp(logw - logw.max())
+    w /= w.sum()
+    ess = 1.0 / float(w @ w)
+    return _UnitDraws(np.concatenate(kept_j), w, np.concatenate(kept_share), np.concatenate(kept_seats),
                       done, got, ess, lam, t)
 
 
@@ -400,7 +453,7 @@ def _assemble(pool, unit_state, n_districts, vote_share, tol, units: list[_UnitD
     U = len(units)
     n_acc = np.array([u.accepted for u in units], dtype=np.int64)
     index_type = np.int32 if pool.size < 2**31 else np.int64
-    district = np.concatenate([u.district.ravel().astype(index_type) for u in units] + [np.empty(0, index_type)])
+    district = np.concatenate([u.district for u in units] + [np.empty(0, index_type)])
     flat = lambda name: np.concatenate([getattr(u, name) for u in units]) if U else np.empty(0)  # noqa: E731
     return Delegations(
         pool=pool,
@@ -419,4 +472,3 @@ def _assemble(pool, unit_state, n_districts, vote_share, tol, units: list[_UnitD
         tilt=np.array([u.tilt for u in units], dtype=np.float64),
         tilt_share=np.array([u.tilt_share for u in units], dtype=np.float64),
     )
-

@@ -52,7 +52,12 @@ def _weighted_quantile(values, weights, seg, n_seg, q):
     ``values`` must be free of NaN; segments with zero total weight give NaN.  The inverse-CDF
     rule returns an observed value, which suits discrete quantities such as seats.
     """
-    out = np.full(n_seg, np.nan)
+    return _weighted_quantiles(values, weights, seg, n_seg, (q,))[0]
+
+
+def _weighted_quantiles(values, weights, seg, n_seg, qs):
+    """:func:`_weighted_quantile` at each of ``qs``, from one sort of the values."""
+    out = [np.full(n_seg, np.nan) for _ in qs]
     live = weights > 0
     if not live.any():
         return out
@@ -65,10 +70,11 @@ def _weighted_quantile(values, weights, seg, n_seg, q):
     frac = (cw - start[g]) / total[g]  # within-segment CDF at each sorted value, ends at 1
     key = g + np.minimum(frac, 1.0)
     present = np.flatnonzero(total > 0)
-    # first sorted position in segment s with frac >= q (q < 1 keeps it inside the segment)
-    pos = np.searchsorted(key, present + q * (1 - 1e-12), side="left")
-    pos = np.minimum(pos, np.searchsorted(g, present, side="right") - 1)
-    out[present] = v[pos]
+    last = np.searchsorted(g, present, side="right") - 1
+    for q, o in zip(qs, out):
+        # first sorted position in segment s with frac >= q (q < 1 keeps it inside the segment)
+        pos = np.searchsorted(key, present + q * (1 - 1e-12), side="left")
+        o[present] = v[np.minimum(pos, last)]
     return out
 
 
@@ -136,10 +142,11 @@ def expected_seats(delegations: Delegations, actual_seats, *, level: float = 0.9
         sd = np.where(has, np.sqrt(np.bincount(g, w * dev2, U)), np.nan)
         se = np.where(has, np.sqrt(np.bincount(g, w**2 * dev2, U)), np.nan)
     pct, _ = _weighted_midrank(k, w, g, U, actual)
+    low, high = _weighted_quantiles(k, w, g, U, ((1 - level) / 2, (1 + level) / 2))
     return SeatsResult(
         expected_seats=mean,
-        low=_weighted_quantile(k, w, g, U, (1 - level) / 2),
-        high=_weighted_quantile(k, w, g, U, (1 + level) / 2),
+        low=low,
+        high=high,
         sd_seats=sd,
         actual_seats=actual,
         percentile=np.where(has, pct, np.nan),

@@ -14,6 +14,7 @@ import pandas as pd
 from monitor.config import Party
 from monitor.measures import registry
 from monitor.publish import formats as F
+from monitor.publish.words import Words
 
 INK = "#2b2a27"
 MUTED = "#6f6b63"
@@ -25,6 +26,8 @@ FONT = "system-ui, -apple-system, 'Segoe UI', Roboto, 'Helvetica Neue', Arial, s
 NOT_FLAGGED = "not flagged"
 #: Units below ``flags.min_districts``: never flagged, shown apart and in grey.
 TOO_FEW = "too few districts to flag"
+#: The codes of the four flag labels (:meth:`Style.flag_domain`) in compact chart data.
+FLAG_CODES = ("a", "b", "n", "x")
 SCHEMA_URL = alt.SCHEMA_URL
 
 CONFIG = {
@@ -59,6 +62,10 @@ class Chart:
     spec: dict
     columns: list[str] = field(default_factory=list)
     rows: list[list[str]] = field(default_factory=list)
+    #: the id and title of a table of the page that holds this chart's numbers (with others'), when
+    #: the chart carries no table of its own (:func:`monitor.publish.compact.measure_table`)
+    table_ref: str = ""
+    table_title: str = ""
 
 
 @dataclass(frozen=True)
@@ -77,6 +84,28 @@ class Style:
 
     def flag_shape(self) -> dict:
         return {"domain": self.flag_domain(), "range": ["triangle-up", "triangle-down", "circle", "circle"]}
+
+    @property
+    def words(self) -> Words:
+        """The site's words helpers (:mod:`monitor.publish.words`) for these two parties."""
+        return Words({"a": self.a, "b": self.b})
+
+    def lean(self, measure: str, value) -> str:
+        """A signed measure value in words, by the one sign rule: ``0.067 towards Upland Party``."""
+        return self.words.leaning(value, DIGITS.get(measure, 3))
+
+    def flag_codes(self) -> dict[str, str]:
+        """flag label -> the one-letter code a compact dataset stores (:meth:`flag_calculate`)."""
+        return dict(zip(self.flag_domain(), FLAG_CODES))
+
+    def flag_calculate(self, code_field: str = "f", as_field: str = "flag") -> dict:
+        """A Vega-Lite transform that turns the stored code back into its label (for scales and
+        tooltips): a chart's data then carries one letter per state instead of the label."""
+        expr = "'" + self.flag_domain()[2].replace("'", "\\'") + "'"
+        for code, label in reversed(list(zip(FLAG_CODES, self.flag_domain()))):
+            if code != "n":
+                expr = f"datum.{code_field} === '{code}' ? '" + label.replace("'", "\\'") + f"' : ({expr})"
+        return {"calculate": expr, "as": as_field}
 
     def flag_label(self, flagged, direction, too_few: bool = False) -> str:
         if flagged and direction in ("a", "b"):
@@ -98,10 +127,18 @@ def _clean(value):
     return value
 
 
-def records(frame: pd.DataFrame, columns: list[str]) -> list[dict]:
-    """Rows as JSON-ready dicts (NaN -> null, floats rounded to 6 digits)."""
+def records(frame: pd.DataFrame, columns: list[str], names: list[str] | None = None, digits: int = 6) -> list[dict]:
+    """Rows as JSON-ready dicts (NaN -> null, floats rounded to ``digits``), keyed by ``names``
+    (default: the column names)."""
     cols = [frame[c].tolist() for c in columns]
-    return [{c: _clean(v) for c, v in zip(columns, row)} for row in zip(*cols)]
+    keys = names or columns
+    out = [{c: _clean(v) for c, v in zip(keys, row)} for row in zip(*cols)]
+    if digits < 6:
+        for row in out:
+            for k, v in row.items():
+                if isinstance(v, float):
+                    row[k] = round(v, digits)
+    return out
 
 
 def _q(field_name: str, **extra) -> dict:
@@ -122,8 +159,11 @@ def _tip(field_name: str, kind: str = "quantitative", title: str | None = None, 
 
 
 def _spec(layers: list[dict], datasets: dict[str, list], height: int) -> dict:
+    """A layered spec. Its look (:data:`CONFIG`, the same for every chart) is not repeated in each
+    spec: a page carries it once (``chart-config``) and ``site/assets/charts.js`` hands it to the
+    renderer with every chart (``vegaEmbed``'s ``config`` option), which saves 0.6 KB a chart."""
     return {"$schema": SCHEMA_URL, "width": "container", "height": height, "autosize": {"type": "fit-x", "contains": "padding"},
-            "config": CONFIG, "datasets": datasets, "layer": layers}
+            "datasets": datasets, "layer": layers}
 
 
 def _rule(axis: str, value: float, title: str, colour: str = FAINT, dash: list | None = None) -> dict:

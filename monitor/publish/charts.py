@@ -20,8 +20,9 @@ import numpy as np
 import pandas as pd
 
 from monitor.publish import formats as F
-from monitor.publish.chartkit import (BAND, FAINT, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style, _eras, _n,
-                                      _q, _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure, records)
+from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style,
+                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure,
+                                      records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -32,7 +33,9 @@ def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamb
     kinds = [f"won by {style.a.name}", f"won by {style.b.name}", "tied", "uncontested (imputed share)"]
     frame = hist.assign(kind=hist["kind"].replace({"won by a": kinds[0], "won by b": kinds[1]}))
     frame = frame.assign(order=frame["kind"].map({k: i for i, k in enumerate(kinds)}))
-    bars = {"data": {"name": "bins"}, "mark": {"type": "bar", "stroke": "#ffffff", "strokeWidth": 0.5},
+    # compact data (weight): each bin's kind is stored as its place in ``kinds`` (order) and named here
+    named = {"calculate": "[" + ", ".join(_js(k) for k in kinds) + "][datum.order]", "as": "kind"}
+    bars = {"data": {"name": "bins"}, "transform": [named], "mark": {"type": "bar", "stroke": "#ffffff", "strokeWidth": 0.5},
             "encoding": {
                 "x": _q("bin_start", title=f"{style.a.name} share of the two-party vote in the district",
                         scale={"domain": [0, 1], "nice": False}, axis={"format": ".0%"}),
@@ -43,7 +46,7 @@ def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamb
                 "tooltip": [_tip("bin_start", title="from", fmt=".1%"), _tip("bin_end", title="to", fmt=".1%"),
                             _tip("kind", "nominal"), _tip("districts")]}}
     spec = _spec([bars, _rule("x", 0.5, bars["encoding"]["x"]["title"], INK, [4, 3])],
-                 {"bins": records(frame, ["bin_start", "bin_end", "kind", "order", "districts"])}, 220)
+                 {"bins": records(frame, ["bin_start", "bin_end", "order", "districts"])}, 220)
     # every count below is a sum of the bars drawn; uncontested districts (shown at their imputed
     # share) are counted apart, by the side of 50% their share lies on (``side``: a | b | tied)
     side = frame["side"] if "side" in frame else pd.Series("", index=frame.index)
@@ -86,36 +89,48 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
     """
     f = _with_flags(frame, style, min_districts).dropna(subset=["value"])
     flagged_labels = style.flag_domain()[:2]
-    points = {"data": {"name": "states"}, "mark": {"type": "point", "filled": True, "size": 70, "opacity": 0.85},
+    # compact data (weight): s = state, v = value (4 decimals; 3 are shown), f = flag code, l = label row
+    points = {"data": {"name": "states"}, "transform": [style.flag_calculate()],
+              "mark": {"type": "point", "filled": True, "size": 70, "opacity": 0.85},
               "encoding": {
-                  "x": _q("value", title=_signed_title(label, style)),
-                  "y": _n("flag", title=None, sort=style.flag_domain(), axis={"labels": False, "ticks": False, "domain": False}),
+                  "x": _q("v", title=_signed_title(label, style)),
+                  # the rows are placed by the flag code (the axis shows no labels): the name layers need no label
+                  "y": _n("f", title=None, sort=list(FLAG_CODES), axis={"labels": False, "ticks": False, "domain": False}),
                   "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
                   "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
-                  "tooltip": [_tip("state_label", "nominal", "state"), _tip("value", fmt="+.3f"), _tip("flag", "nominal")]}}
+                  "tooltip": [_tip("s", "nominal", "state"), _tip("v", title="value", fmt="+.3f"), _tip("flag", "nominal")]}}
     xtitle = points["encoding"]["x"]["title"]
     f = f.assign(label_level=label_levels(f, flagged_labels))
     levels = int(f["label_level"].max()) + 1 if len(f) else 1
     names = [{"data": {"name": "states"},
-              "transform": [{"filter": {"field": "flag", "oneOf": flagged_labels}},
-                            {"filter": {"field": "label_level", "equal": level}}],
+              "transform": [{"filter": {"field": "f", "oneOf": list(FLAG_CODES[:2])}}, {"filter": {"field": "l", "equal": level}}],
               "mark": {"type": "text", "dy": -11 * (level + 1), "fontSize": 10},
-              "encoding": {"x": _q("value", title=xtitle), "y": _n("flag", title=None, sort=style.flag_domain()),
-                           "text": _n("state_label")}} for level in range(levels)]
+              "encoding": {"x": _q("v", title=xtitle), "y": _n("f", title=None, sort=list(FLAG_CODES)),
+                           "text": _n("s")}} for level in range(levels)]
     flagged = f[f["flag"].isin(flagged_labels)]
     few = f[f["flag"] == TOO_FEW]
     layers = [_rule("x", 0.0, xtitle), points] + (names if len(flagged) else [])
-    spec = _spec(layers, {"states": records(f, ["state_label", "value", "flag", "label_level"])},
+    coded = f.assign(code=f["flag"].map(style.flag_codes()))
+    spec = _spec(layers, {"states": records(coded, ["state_label", "value", "code", "label_level"], ["s", "v", "f", "l"],
+                                            digits=4)},
                  (110 if len(few) else 90) + 11 * (levels - 1))
-    desc = (f"{label} of {len(f)} states in {cycle} ({chamber_label}): median {fmt_measure(measure, f['value'].median())}, "
-            f"from {fmt_measure(measure, f['value'].min())} to {fmt_measure(measure, f['value'].max())}. ")
-    desc += (f"Flagged at the tails: {', '.join(f'{r.state_label} ({r.flag})' for r in flagged.itertuples())}."
-             if len(flagged) else "No state is flagged on this measure.")
+    desc = (f"{label} of {len(f)} states in {cycle} ({chamber_label}): median {style.lean(measure, f['value'].median())}; "
+            f"from {style.lean(measure, f['value'].min())} to {style.lean(measure, f['value'].max())}. ")
+    desc += (f"Flagged at the tails: {flagged_by_party(flagged, style)}." if len(flagged)
+             else "No state is flagged on this measure.")
     if len(few):
         desc += (f" On a row of their own, in grey: {len(few)} states with fewer than {min_districts} districts, "
                  "too few to flag.")
     rows = [[r.state_label, fmt_measure(measure, r.value), r.flag] for r in f.sort_values("value", ascending=False).itertuples()]
     return Chart(chart_id, f"{label} across states, {cycle}", desc, spec, ["state", label, "flag"], rows)
+
+
+def flagged_by_party(flagged: pd.DataFrame, style: Style) -> str:
+    """``favouring Upland Party: Aa (A), Bb (B); favouring ...``: the flagged states of a chart,
+    grouped by the party their flag favours (each party named once, not once per state)."""
+    groups = [(label, [r.state_label for r in flagged.itertuples() if r.flag == label])
+              for label in style.flag_domain()[:2]]
+    return "; ".join(f"{label.replace('favours', 'favouring', 1)}: {', '.join(states)}" for label, states in groups if states)
 
 
 def label_levels(frame: pd.DataFrame, labelled, width_px: float = 300.0, char_px: float = 5.6) -> np.ndarray:
@@ -200,10 +215,10 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     desc = f"{label} of {where}: {len(defined)} of {len(table)} cycles defined"
     if defined:
         cycle, value, low, high = defined[-1][:4]
-        desc += f"; latest {int(cycle)}: {fmt_measure(measure, value)}"
+        desc += f"; latest {int(cycle)}: {style.lean(measure, value)}"
         if not F.missing(low):
-            desc += f" (95% interval {fmt_measure(measure, low)} to {fmt_measure(measure, high)})"
-    desc += f". Positive values favour {style.a.name}, negative values {style.b.name}. "
+            desc += f" (95% interval from {style.lean(measure, low)} to {style.lean(measure, high)})"
+    desc += ". "
     desc += ("Flagged at the national tails in " + ", ".join(f"{int(r[0])} ({r[6]})" for r in flagged) + "."
              if flagged else "Not flagged in any cycle.")
     if not eras.empty:
@@ -339,7 +354,7 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
             f"Observed: {F.share(obs['vote'])} of the vote gave {style.a.name} {F.number(obs['seats'], 1)} of {n} seats. "
             f"With the vote flipped to {F.share(flip['vote'])}, {style.a.name} would win {F.number(flip['seats'], 1)} seats "
             f"(a symmetric plan would give {F.number(n - obs['seats'], 1)}). At 50% of the vote: "
-            f"{F.number(even['seats'], 1)} seats (partisan bias {F.signed(even['seat_share'] - 0.5)}). "
+            f"{F.number(even['seats'], 1)} seats (partisan bias {style.words.leaning(even['seat_share'] - 0.5)}). "
             "Marks: the stepped line is the curve and the dotted diagonal is seats equal to votes; the observed result "
             "is the large open circle, the flipped vote the small filled diamond and the even vote (50%) the open square, "
             "each labelled beside it.")
@@ -376,23 +391,29 @@ def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style:
     ranked, few = f[~f["few"]], f[f["few"]]
     heading = f"fewer than {min_districts} districts: too few to flag"
     order = list(dict.fromkeys(ranked["state_label"])) + ([heading] if len(few) else []) + list(dict.fromkeys(few["state_label"]))
-    y_axis = {"labelLimit": 400, "labelColor": {"condition": {"test": f"datum.value == {_js(heading)}", "value": MUTED},
-                                                 "value": INK},
-              "labelFontStyle": {"condition": {"test": f"datum.value == {_js(heading)}", "value": "italic"},
-                                 "value": "normal"}}
-    bars = {"data": {"name": "states"}, "mark": {"type": "bar", "height": {"band": 0.7}},
-            "encoding": {"x": _q("value", title=_signed_title(label, style)),
-                         "y": _n("state_label", title=None, sort=order, scale={"domain": order}, axis=y_axis),
+    y_axis = {"labelLimit": 400}
+    if len(few):  # the heading row of the states too small to flag, set apart
+        y_axis.update(labelColor={"condition": {"test": f"datum.value == {_js(heading)}", "value": MUTED}, "value": INK},
+                      labelFontStyle={"condition": {"test": f"datum.value == {_js(heading)}", "value": "italic"},
+                                      "value": "normal"})
+    # compact data (weight): s = state, v = value (4 decimals; 3 are shown), f = flag code
+    bars = {"data": {"name": "states"}, "transform": [style.flag_calculate()], "mark": {"type": "bar", "height": {"band": 0.7}},
+            # the title ends at the plot's right edge: centred under a plot narrowed by long state
+            # labels it ran past the chart's edge and was cut ("Mean-median differenc")
+            "encoding": {"x": _q("v", title=_signed_title(label, style), axis={"titleAnchor": "end"}),
+                         "y": _n("s", title=None, scale={"domain": order}, axis=y_axis),  # the domain sets the order
                          "color": _n("flag", title=None, scale=style.flag_colour(), legend=None),
-                         "tooltip": [_tip("state_label", "nominal", "state"), _tip("value", fmt="+.3f"), _tip("flag", "nominal")]}}
+                         "tooltip": [_tip("s", "nominal", "state"), _tip("v", title="value", fmt="+.3f"), _tip("flag", "nominal")]}}
+    coded = f.assign(code=f["flag"].map(style.flag_codes()))
     spec = _spec([bars, _rule("x", 0.0, bars["encoding"]["x"]["title"], INK)],
-                 {"states": records(f, ["state_label", "value", "flag"])}, max(60, 16 * len(order)))
+                 {"states": records(coded, ["state_label", "value", "code"], ["s", "v", "f"], digits=4)},
+                 max(60, 16 * len(order)))
     flagged = ranked[ranked["flag"] != NOT_FLAGGED]
     desc = f"{len(ranked)} states ranked by {label} in {cycle} ({chamber_label}). "
     if len(ranked):
-        desc += (f"Highest: {ranked.iloc[0]['state_label']} {fmt_measure(measure, ranked.iloc[0]['value'])}; lowest: "
-                 f"{ranked.iloc[-1]['state_label']} {fmt_measure(measure, ranked.iloc[-1]['value'])}. ")
-    desc += (f"Flagged: {', '.join(f'{r.state_label} ({r.flag})' for r in flagged.itertuples())}." if len(flagged)
+        desc += (f"Highest: {ranked.iloc[0]['state_label']}, {style.lean(measure, ranked.iloc[0]['value'])}; lowest: "
+                 f"{ranked.iloc[-1]['state_label']}, {style.lean(measure, ranked.iloc[-1]['value'])}. ")
+    desc += (f"Flagged: {flagged_by_party(flagged, style)}." if len(flagged)
              else "None flagged.")
     if len(few):
         desc += (f" Below them, apart and in grey: {len(few)} states with fewer than {min_districts} districts, "
@@ -419,7 +440,6 @@ def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, cha
     # the dots' layer alone (its colour and shape scales share one domain, so they make one legend);
     # the bar and the tick take their colours from the same constants.
     marks = ["95% interval (national pool)", "expected (national pool)", f"won by {style.a.name}"]
-    f = f.assign(kind_won=marks[2])
     y = _n("state_label", title=None, sort=order, axis={"labelLimit": 400})
     x_title = f"{style.a.name} seats"
     colour = {"domain": marks, "range": [FAINT, INK, style.a.colour]}
@@ -433,20 +453,22 @@ def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, cha
                       "tooltip": tips}},
         {"data": {"name": "units"}, "mark": {"type": "tick", "thickness": 2, "size": 14, "color": INK},
          "encoding": {"x": _q("expected_seats", title=x_title), "y": y, "tooltip": tips}},
-        {"data": {"name": "units"}, "mark": {"type": "point", "filled": True, "size": 60, "opacity": 1},
+        {"data": {"name": "units"}, "transform": [{"calculate": _js(marks[2]), "as": "kind_won"}],
+         "mark": {"type": "point", "filled": True, "size": 60, "opacity": 1},
          "encoding": {"x": _q("seats_a", title=x_title), "y": y,
                       "color": _n("kind_won", title=None, scale=colour),
                       "shape": _n("kind_won", title=None, scale=shape), "tooltip": tips}},
     ]
-    datasets = {"units": records(f, ["state_label", "low", "high", "expected_seats", "seats_a", "excess_seats",
-                                     "kind_won"])}
+    # 3 decimals: the tooltips show 2 at most; the dots' key label is set in the chart, not per row
+    datasets = {"units": records(f, ["state_label", "low", "high", "expected_seats", "seats_a", "excess_seats"], digits=3)}
     desc = (f"Seats {style.a.name} won in each state in {cycle} ({chamber_label}) against the seats expected for "
             f"delegations of the same size and statewide vote drawn from the national pool (grey bar: 95% interval; "
             f"upright tick: expected seats; dot: seats won). ")
     if len(f):
         top, bottom = f.iloc[0], f.iloc[-1]
-        desc += (f"Largest excess for {style.a.name}: {top['state_label']} {F.signed(top['excess_seats'], 2)} seats; "
-                 f"smallest: {bottom['state_label']} {F.signed(bottom['excess_seats'], 2)} seats.")
+        desc += (f"Most seats beyond the expectation for {style.a.name}: {top['state_label']}, "
+                 f"{style.words.stake(top['excess_seats']).text}; at the other end: {bottom['state_label']}, "
+                 f"{style.words.stake(bottom['excess_seats']).text}.")
     rows = [[r.state_label, F.count(r.districts), F.number(r.seats_a, 1), F.number(r.expected_seats, 2),
              f"{F.number(r.low, 1)} to {F.number(r.high, 1)}", F.signed(r.excess_seats, 2)] for r in f.itertuples()]
     return Chart(chart_id, f"Expected and actual seats, {chamber_label}, {cycle}", desc,
@@ -470,7 +492,8 @@ def excess_by_drawer(chart_id: str, frame: pd.DataFrame, style: Style, cycle: in
     spec = _spec([bars, _rule("x", 0.0, bars["encoding"]["x"]["title"], INK)], {"drawers": records(f, ["drawer", "excess_seats", "units", "side"])},
                  max(60, 26 * len(f)))
     desc = (f"Excess seats summed by who drew the plan in force, {cycle} ({chamber_label}): "
-            + "; ".join(f"{r.drawer}: {F.signed(r.excess_seats, 2)} over {int(r.units)} states" for r in f.itertuples()) + ".")
+            + "; ".join(f"{r.drawer}: {style.words.stake(r.excess_seats).text} over {int(r.units)} states"
+                        for r in f.itertuples()) + ".")
     rows = [[r.drawer, F.count(r.units), F.signed(r.excess_seats, 2)] for r in f.itertuples()]
     return Chart(chart_id, f"Excess seats by who drew the plan, {chamber_label}, {cycle}", desc, spec,
                  ["drawn by", "states", "excess seats"], rows)

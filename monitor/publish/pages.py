@@ -19,6 +19,7 @@ from pathlib import Path
 import jinja2
 from markupsafe import Markup
 
+from monitor.publish.chartkit import CONFIG as CHART_CONFIG
 from monitor.publish import formats as F
 from monitor.publish import paths as P
 from monitor.publish.collect import SiteData
@@ -81,6 +82,7 @@ def register_filters(env: jinja2.Environment) -> None:
         "size": F.size,
     })
     env.globals["caution"] = CAUTION
+    env.globals["chart_config"] = CHART_CONFIG  # once per page, not in every chart (charts.js applies it)
 
 
 def _root(page: str) -> str:

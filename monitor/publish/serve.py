@@ -15,7 +15,7 @@ class SiteHandler(http.server.SimpleHTTPRequestHandler):
     extensions_map = {
         **http.server.SimpleHTTPRequestHandler.extensions_map,
         ".js": "text/javascript", ".json": "application/json", ".csv": "text/csv; charset=utf-8",
-        ".css": "text/css", ".html": "text/html; charset=utf-8",
+        ".css": "text/css", ".html": "text/html; charset=utf-8", ".gz": "application/gzip",
     }
 
     def guess_type(self, path):

@@ -158,8 +158,8 @@ class Standing:
         else:
             was = self.direction(before)
             text = f"in {prev} flagged favouring {w.party(was) if was else 'both parties'}"
-        if then.value is not None:
-            text += f", seats at stake {then.text.replace('favours ', 'favouring ')}"
+        if then.value is not None:  # "no seats at stake (0.0)" says it alone
+            text += f", {then.text}" if then.code is None else f", seats at stake {then.text.replace('favours ', 'favouring ')}"
         new = sorted({m for m, d in flat_now - flat_before})
         gone = sorted({m for m, d in flat_before - flat_now})
         if flat_before and new:

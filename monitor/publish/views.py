@@ -12,6 +12,7 @@ import pandas as pd
 from monitor.inputs import UNIT_KEYS
 from monitor.measures import registry
 from monitor.publish import charts as C
+from monitor.publish.compact import events_summary, measure_table
 from monitor.publish import formats as F
 from monitor.publish import paths as P
 from monitor.publish.collect import SiteData, flag_changes, parse_time
@@ -226,12 +227,17 @@ class Views(StatePage, Standing):
                        "summary": self._national_rows(chamber, d.chamber_cycles(chamber)[-2:]),
                        "histogram": self._histogram(f"hist-{slug}", cycle, chamber), "charts": []}
             judged, judged_label = self._judged(cycle, chamber)
+            frames, measures = [], []
             for measure in d.headline():
                 frame = self._measure_frame(measure, cycle=cycle, chamber=judged)
                 if frame["value"].notna().sum() == 0:
                     continue
+                frames.append(frame)
+                measures.append(measure)
                 section["charts"].append(C.distribution(f"dist-{slug}-{measure}", frame, measure, d.label(measure),
                                                         self.style, cycle, judged_label, self._min_districts))
+            section["table"] = self._states_table(f"measures-{slug}", f"{judged_label}, {cycle}", section["charts"],
+                                                   frames, measures)
             ctx["sections"].append(section)
         return ctx
 
@@ -358,14 +364,17 @@ class Views(StatePage, Standing):
                 continue
             label = d.chamber_label(chamber)
             slug = d.chamber_slugs[chamber]
-            charts = []
+            charts, frames, measures = [], [], []
             judged, judged_label = self._judged(cycle, chamber)
             for measure in d.headline():
                 frame = self._measure_frame(measure, cycle=cycle, chamber=judged)
                 if frame["value"].notna().sum() == 0:
                     continue
+                frames.append(frame)
+                measures.append(measure)
                 charts.append(C.ranking(f"rank-{slug}-{measure}", frame, measure, d.label(measure), self.style, cycle,
                                         judged_label, self._min_districts))
+            table = self._states_table(f"measures-{slug}", f"{judged_label}, {cycle}", charts, frames, measures)
             pool = self.by("pool", ("cycle", "chamber"), (cycle, judged)).copy()
             pool_chart = drawer_chart = None
             if pool["expected_seats"].notna().any():
@@ -382,14 +391,22 @@ class Views(StatePage, Standing):
                        "incomplete": (int(cycle), s, chamber) in self._incomplete_units}
                       for s in sorted(units.loc[units["chamber"] == chamber, "state"])]
             sections.append({"chamber": label, "tails": self._tails_section(cycle, chamber, root),
-                             "charts": charts, "pool": pool_chart, "drawer": drawer_chart,
+                             "charts": charts, "table": table, "pool": pool_chart, "drawer": drawer_chart,
                              "states": states, "summary": self._national_rows(chamber, earlier[-1:] + [cycle]),
                              "histogram": self._histogram(f"hist-{slug}", cycle, chamber)})
         events = self.by("events", ("cycle",), cycle)
         return {"cycle": cycle, "sections": sections, "unofficial": self._unofficial(units, root),
-                "events": self._events(events, root), "provenance": self.provenance(units["load_id"]),
+                "events": events_summary(events, d.chamber_short), "provenance": self.provenance(units["load_id"]),
                 "previous": max((c for c in d.cycles if c < cycle), default=None),
                 "next": min((c for c in d.cycles if c > cycle), default=None)}
+
+    def _states_table(self, table_id: str, where: str, charts, frames, measures) -> dict | None:
+        """One table of every state's value of each charted measure (the charts point to it)."""
+        if not charts:
+            return None
+        labels = [self.d.label(m) for m in measures]
+        return measure_table(table_id, f"Every state, every measure: {where}", charts, frames, measures, labels,
+                             self.party, self._min_districts)
 
     def drawer_group(self, key: str) -> str:
         """The label of an excess-by-drawer group (:data:`monitor.national.DRAWER_KEYS`)."""

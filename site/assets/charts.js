@@ -10,6 +10,23 @@
     view.appendChild(p);
   }
 
+  var config = null;
+
+  /* The look shared by every chart of the page (fonts, colours, axes), embedded once as
+     <script type="application/json" id="chart-config"> instead of in each spec. */
+  function pageConfig() {
+    if (config === null) {
+      var holder = document.getElementById("chart-config");
+      try {
+        config = holder ? JSON.parse(holder.textContent) : {};
+      } catch (err) {
+        config = {};
+        console.error("levelfield: unreadable chart config", err);
+      }
+    }
+    return config;
+  }
+
   function draw(view) {
     var holder = document.getElementById(view.getAttribute("data-spec"));
     if (!holder) {
@@ -24,7 +41,7 @@
       console.error("levelfield: unreadable chart spec", holder.id, err);
       return;
     }
-    window.vegaEmbed(view, spec, { actions: false, renderer: "svg" }).then(function () {
+    window.vegaEmbed(view, spec, { actions: false, renderer: "svg", config: pageConfig() }).then(function () {
       view.classList.add("chart-ready");
     }).catch(function (err) {
       view.classList.add("chart-failed");
