@@ -151,5 +151,29 @@ def test_staggered_chambers_follow_the_change_too(tmp_path):
     differences = verify_store(db, config)
     assert not differences, "\n".join(map(str, differences[:20]))
     _republish_equals_a_full_build(h, "staggered")
+    # a correction of the latest cycle's senate of one state redraws that cycle's whole-chamber
+    # pool, which moves the other states' whole-chamber rows (expected seats, tails, standing) shown
+    # on their senate pages although none of their own units changed
+    path, state, _ = scenarios.corrected_file(files[2], tmp_path / "fix-latest.csv", state=None, chamber="state_upper")
+    _arrive(h, path)
+    assert not verify_store(db, config)
+    site = _republish_equals_a_full_build(h, "staggered-latest")
+    others = [p for p in site.written if p.startswith("state/") and "upper" in p and state.lower() not in p]
+    assert others, site.written
+    # the page plan names the whole-chamber units among their chamber's pages' inputs: a change to
+    # a whole-chamber unit's rows alone (played here by editing its stored expected seats) renders
+    # its state's senate page again, and that page equals a full build's
+    latest = db.execute("SELECT MAX(cycle) FROM pool_seats").fetchone()[0]
+    db.execute("UPDATE pool_seats SET expected_seats = expected_seats + 0.5, excess_seats = excess_seats - 0.5 "
+               "WHERE chamber = 'state_upper_whole' AND cycle = ? AND state = ?", [latest, state])
+    db.conn.commit()
+    site = build(db, config, tmp_path / "public")
+    assert [p for p in site.written if p.startswith("state/") and "upper" in p], site.written
+    full_dir = tmp_path / "full-whole-row"
+    full_dir.mkdir()
+    for name in (MARKER, "atom.xml"):  # no flag changed: the feed stays as it was
+        shutil.copyfile(tmp_path / "public" / name, full_dir / name)
+    build(db, config, full_dir, full=True)
+    assert _files(tmp_path / "public") == _files(full_dir)
     again = pipeline.recompute(db, config)
     assert again.measures_computed == 0 and again.groups_computed == 0

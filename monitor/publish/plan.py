@@ -33,6 +33,7 @@ import numpy as np
 import pandas as pd
 
 from monitor.publish import paths as P
+from monitor.staggered import base_chamber, is_whole
 
 SITE = ("site",)
 EVERYTHING = ("everything",)
@@ -56,8 +57,13 @@ def page_inputs(data) -> dict[str, tuple]:
         by_pair.setdefault((s, ch), []).append(("unit", c, s, ch))
         by_cycle.setdefault(c, []).append(("unit", c, s, ch))
     cycles = data.cycles
+    for c, s, ch in whole_units(data):
+        # a staggered chamber's whole-chamber units are shown as their chamber's (standing, watch)
+        by_pair[(s, base_chamber(ch))].extend([("unit", c, s, ch), ("pair", s, ch)])
+        by_cycle.setdefault(c, []).append(("unit", c, s, ch))
     for s, ch in data.pairs():
-        out[P.state_page(data.state_slugs[s], data.chamber_slugs[ch])] = (SITE, ("pair", s, ch), *sorted(by_pair[(s, ch)]))
+        out[P.state_page(data.state_slugs[s], data.chamber_slugs[ch])] = (SITE, ("pair", s, ch),
+                                                                         *sorted(set(by_pair[(s, ch)])))
     chamber_cycles: dict[str, list[int]] = {}
     for c in cycles:
         for ch in sorted({ch for *_, ch in by_cycle[c]}):
@@ -69,9 +75,22 @@ def page_inputs(data) -> dict[str, tuple]:
         # the links to the previous and next cycle pages: the key itself holds them
         links = (("links", cycles[i - 1] if i else None, cycles[i + 1] if i + 1 < len(cycles) else None),)
         # each flagged unit's "since when" and "what changed" read the earlier cycles of its state chamber
-        earlier = sorted({k for _, _, s, ch in by_cycle[c] for k in by_pair[(s, ch)] if k[1] < c})
+        earlier = sorted({k for _, _, s, ch in by_cycle[c] for k in by_pair.get((s, ch), ())
+                          if k[0] == "unit" and k[1] < c})
         out[P.cycle_page(c)] = (SITE, ("cycle", c), *sorted(before), *links, *sorted(by_cycle[c]), *earlier)
     return out
+
+
+def whole_units(data) -> list[tuple[int, str, str]]:
+    """(cycle, state, chamber) of every whole-chamber unit of a staggered chamber
+    (:mod:`monitor.staggered`) with stored measures: they hold no results of their own, so they
+    are not among ``data.units``, yet their pool rows, tails and watch rows show on their chamber's
+    pages."""
+    m = data.measures
+    if m.empty:
+        return []
+    rows = m.loc[m["chamber"].map(is_whole), UNIT_KEYS].drop_duplicates()
+    return sorted(zip(rows["cycle"].astype(int), rows["state"], rows["chamber"]))
 
 
 def touched_pages(inputs: dict[str, tuple], changed: Iterable[tuple]) -> set[str]:
@@ -135,7 +154,8 @@ def digests(data, keys: pd.DataFrame) -> dict[tuple, str]:
                        ("events", events)):
         _fold(frame, ["cycle"], tag, per_cycle)
     out: dict[tuple, str] = {SITE: site_digest(data)}
-    for c, s, ch in zip(data.units["cycle"].astype(int), data.units["state"], data.units["chamber"]):
+    for c, s, ch in [*zip(data.units["cycle"].astype(int), data.units["state"], data.units["chamber"]),
+                     *whole_units(data)]:
         out[("unit", c, s, ch)] = _sha(per_unit.get(f"{c}|{s}|{ch}", []))
         out[("pair", s, ch)] = _sha(per_pair.get(f"{s}|{ch}", []))
         out[("cycle", c)] = _sha(per_cycle.get(str(c), []))
