@@ -120,4 +120,5 @@ def test_the_pages_name_the_load_behind_them(sites):
     ka = (public / "state" / "ka" / "federal.html").read_text(encoding="utf-8")
     assert "latest load #2 <code>correction.csv</code>" in lu
     assert "latest load #1 <code>results.csv</code>" in ka
-    assert "#2" not in ka.split('class="provenance"')[1]
+    provenance = ka.split('class="provenance"')[1].split("</footer>")[0]  # not the chart styling after it
+    assert "latest load #1" in provenance and "#2" not in provenance
