@@ -191,7 +191,7 @@ def run_scale(runner: Runner, scale: float, work: Path, complete: bool, real_fla
         st["publish_full"] = runner.record(scale, "publish_full", {
             "seconds": prep["publish_seconds"], "runs": 1, "run_seconds": [prep["publish_seconds"]],
             "peak_rss_mb": prep.get("publish_peak_rss_mb"), **{k: v for k, v in prep.items() if k.startswith("files")
-                                                        or k in ("pages", "total_bytes", "force_option")}})
+                                                        or k in ("pages", "total_bytes", "force_option", "weight")}})
         if prep["publish_seconds"] < runner.short_limit(scale):
             runner.extend(st["publish_full"], "publish_full", {**base, "ready": str(ready)})
     if complete:

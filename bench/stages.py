@@ -443,6 +443,7 @@ def stage_prepare(args: dict) -> dict:
         out["publish_peak_rss_mb"] = peak_rss_mb()
         out["force_option"] = _force_option(fn)
         out.update(_publish_info(report))
+        out["weight"] = _weight(ws.folder("public"))
     db.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     out["seconds"] = out["compute_seconds"]
     return out
@@ -485,11 +486,14 @@ def stage_publish_full(args: dict) -> dict:
     t0 = start_timed()
     report = _publish(ws, db, config, out=out, force=True)
     dt = time.perf_counter() - t0
+    return {"seconds": dt, "force_option": _force_option(fn), **_publish_info(report), "weight": _weight(out)}
+
+
+def _weight(site: Path) -> dict:
+    """The weight budget (issue 15) of a site just built, measured after its clock stopped."""
     from monitor.publish.weight import weigh
 
-    # the weight budget (issue 15), measured on the site just built (untimed)
-    weight = weigh(out).summary()
-    return {"seconds": dt, "force_option": _force_option(fn), **_publish_info(report), "weight": weight}
+    return weigh(Path(site)).summary()
 
 
 def _timed_chain(ws, db, config, path: Path, publish: bool = True) -> dict:
