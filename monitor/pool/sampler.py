@@ -314,7 +314,7 @@ def simulate_delegations(
             np.random.SeedSequence(base.entropy, spawn_key=(*base.spawn_key, key)))
         units.append(_draw_unit(group, eligible, int(n_districts[u]), float(vote_share[u]), tol, accepted,
                                 max_draws, stream))
-    return _assemble(pool, unit_state, n_districts, vote_share, tol, units)
+    return _assemble(pool, group, unit_state, n_districts, vote_share, tol, units)
 
 
 def _check_units(pool, unit_state, n_districts, vote_share, tol, accepted, max_draws, unit_key):
@@ -448,12 +448,12 @@ def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol:
                       done, got, ess, lam, t)
 
 
-def _assemble(pool, unit_state, n_districts, vote_share, tol, units: list[_UnitDraws]) -> Delegations:
+def _assemble(pool, group: _GroupArrays, unit_state, n_districts, vote_share, tol,
+              units: list[_UnitDraws]) -> Delegations:
     """The units' draws, flat, unit after unit."""
     U = len(units)
     n_acc = np.array([u.accepted for u in units], dtype=np.int64)
-    index_type = np.int32 if pool.size < 2**31 else np.int64
-    district = np.concatenate([u.district for u in units] + [np.empty(0, index_type)])
+    district = np.concatenate([u.district for u in units] + [np.empty(0, group.index_type)])
     flat = lambda name: np.concatenate([getattr(u, name) for u in units]) if U else np.empty(0)  # noqa: E731
     return Delegations(
         pool=pool,

@@ -341,7 +341,7 @@ def _file(data: SiteData, spec: dict, kind: str, reuse, path: str, parts: dict[i
     without ``reuse``), so that every build writes the same bytes for the same rows."""
     fields = spec["fields"]
     packed = kind == "csv" and spec["name"] in COMPRESSED
-    if (reuse is None or parts is None) and not (packed and parts is not None):
+    if parts is None:
         frame = _frame(data, spec["name"])
         content = to_csv(frame, fields) if kind == "csv" else to_json(frame, fields)
         return gzip_member(content) if packed else content
