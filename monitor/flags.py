@@ -93,9 +93,7 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
     for (state, chamber, plan_id), group in per.groupby(["state", "chamber", "plan_id"], sort=True):
         if (state, chamber, plan_id) not in enough:
             continue
-        counts = group.groupby("direction")["cycle"].nunique()
-        if counts.max() < need_cycles:
-            continue
+        counts = group.groupby("direction")["cycle"].nunique()  # one direction has need_cycles (enough)
         best = counts[counts == counts.max()]
         if len(best) > 1:  # as many cycles each way: no agreement, not on watch
             continue

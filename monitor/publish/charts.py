@@ -154,8 +154,8 @@ def label_levels(frame: pd.DataFrame, labelled, width_px: float = 300.0, char_px
     half = frame["state_label"].astype(str).str.len().to_numpy() * char_px / 2 + 3
     for flag in labelled:
         placed: list[list[tuple[float, float]]] = []
-        for i in np.flatnonzero((frame["flag"] == flag).to_numpy() & np.isfinite(values))[np.argsort(
-                px[(frame["flag"] == flag).to_numpy() & np.isfinite(values)], kind="mergesort")]:
+        rows = np.flatnonzero((frame["flag"] == flag).to_numpy() & np.isfinite(values))
+        for i in rows[np.argsort(px[rows], kind="mergesort")]:  # left to right
             lo, hi = px[i] - half[i], px[i] + half[i]
             level = next((k for k, row in enumerate(placed) if all(hi < a or lo > b for a, b in row)), len(placed))
             if level == len(placed):
