@@ -23,7 +23,8 @@ from monitor.coverage import not_flagged_reason
 from monitor.inputs import UNIT_KEYS
 from monitor.measures import registry
 
-POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
+POOL_METHOD_VERSION = "pool-3"  # pool-2: observed values and null rules taken from the engine; pool-3: the last
+# district of a simulated delegation drawn within reach, with rejection control (new random streams)
 #: the measures the flags judge (the registry's ``flag`` declarations), by their flag name
 JUDGED = registry.flag_by_name()
 #: flag names judged against their national-pool null
