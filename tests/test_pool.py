@@ -34,7 +34,7 @@ from monitor.pool import (
     robust_z,
     simulate_delegations,
 )
-from monitor.pool.sampler import _inverse_cdf, guide_table
+from monitor.pool.sampler import LAST_MAX_N, _inverse_cdf, guide_table
 from monitor.pool.seats import _weighted_midrank, _weighted_quantile
 
 Z_MAX = 4.0
@@ -140,6 +140,23 @@ def test_seat_law_matches_rejection_sampling(small_pool, V, tol):
     r = expected_seats(d, [0.0])
     se_mean = np.hypot(r.mc_se[0], k_rej.std() / np.sqrt(k_rej.size))
     assert abs(r.expected_seats[0] - k_rej.mean()) < Z_MAX * se_mean
+
+
+def test_large_delegation_matches_rejection_sampling(small_pool):
+    # a delegation of LAST_MAX_N districts or more draws them all from the tilted pool (no last
+    # district within reach): its seat law against plain rejection, the same 4-SE rule
+    N, V, tol = LAST_MAX_N + 5, 0.49, 0.005
+    a, b = small_pool.votes_a, small_pool.votes_b
+    k_rej, _ = rejection_seats(a, b, N, V, tol, draws=400_000, seed=13, chunk=50_000)
+    assert k_rej.size > 20_000
+    d = simulate_delegations(small_pool, [-1], [N], [V], rng=14, tol=tol, accepted=20_000)
+    r = expected_seats(d, [0.0])
+    se_mean = np.hypot(r.mc_se[0], k_rej.std() / np.sqrt(k_rej.size))
+    assert abs(r.expected_seats[0] - k_rej.mean()) < Z_MAX * se_mean
+    for k in np.unique(k_rej)[np.bincount(np.searchsorted(np.unique(k_rej), k_rej)) >= 200]:  # seat counts seen 200+ times
+        p_rej = np.mean(k_rej == k)
+        p_is, se_is = weighted_share(d, 0, d.seats == k)
+        assert abs(p_is - p_rej) < Z_MAX * np.hypot(se_is, np.sqrt(p_rej * (1 - p_rej) / k_rej.size))
 
 
 def test_seat_law_matches_exact_enumeration_far_from_mean():
@@ -363,6 +380,12 @@ def inverse_cdf_reference(pool, state, N, V, tol, tilt, centre, seed_seq, key, r
     before = (N - 1) * n.mean()
     c = 0.5 * q[by_y][last_window(a, n, y[by_y], V, centre, tol, centre * before, before)].sum()
     stream = np.random.default_rng(np.random.SeedSequence(seed_seq.entropy, spawn_key=(*seed_seq.spawn_key, key)))
+    if N >= LAST_MAX_N:  # a large delegation: all N districts from the tilted pool, N uniforms a row
+        j = eligible[np.searchsorted(cdf, stream.random((rows, N)), side="right")]
+        share = pool.votes_a[j].sum(axis=1) / pool.turnout[j].sum(axis=1)
+        ok = np.flatnonzero(np.abs(share - V) <= tol)
+        w = np.exp(-tilt * ((pool.votes_a[j[ok]] - centre * pool.turnout[j[ok]]) / n.mean()).sum(axis=1))
+        return j[ok], w / w.sum(), share[ok], ok
     first, second = stream.spawn(2)
     u, u_last = first.random((rows, N - 1)), second.random((rows, 2))
     kept, weights, shares, ok = [], [], [], []
@@ -390,12 +413,13 @@ def test_draws_are_the_inverse_cdf_of_the_units_own_stream(small_pool, monkeypat
     # the sampler's kept draws and weights equal the reference's (written from the definitions,
     # weights from p(J) / proposal probability), whatever the size of the batches it draws in (so
     # they do not depend on how the work is cut, nor does the count of proposals made: the rows up
-    # to the last kept one); a delegation of one district (no tilt) and of two included
+    # to the last kept one); a delegation of one district (no tilt), of two, and one large enough
+    # to draw every district from the tilted pool (LAST_MAX_N) included
     import monitor.pool.sampler as sampler_module
 
     seed = np.random.SeedSequence(17)
-    units, Ns, V = np.array([2, 5, 6, 1]), np.array([3, 7, 1, 2]), np.array([0.44, 0.55, 0.5, 0.6])
-    keys = [11, 12, 13, 14]
+    units, Ns, V = np.array([2, 5, 6, 1, 3]), np.array([3, 7, 1, 2, LAST_MAX_N]), np.array([0.44, 0.55, 0.5, 0.6, 0.5])
+    keys = [11, 12, 13, 14, 15]
     d = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=300, unit_key=keys)
     monkeypatch.setattr(sampler_module, "_DRAW_CELLS", 50)  # batches of a few rows
     small = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=300, unit_key=keys)
@@ -403,7 +427,7 @@ def test_draws_are_the_inverse_cdf_of_the_units_own_stream(small_pool, monkeypat
         np.testing.assert_array_equal(getattr(d, f), getattr(small, f))
     assert d.tilt[2] == 0.0  # one district: nothing before the last to tilt
     rows = d.draw_unit[d.row_draw]
-    for u in range(4):
+    for u in range(5):
         j, w, share, ok = inverse_cdf_reference(small_pool, units[u], Ns[u], V[u], d.tol, d.tilt[u],
                                                 d.tilt_share[u], seed, keys[u], rows=3000)
         assert ok.size >= 300

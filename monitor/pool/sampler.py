@@ -106,7 +106,7 @@ import numpy as np
 
 from .pool import NationalPool
 from .proposal import (  # noqa: F401  (guide_table: the tests read it from here)
-    _inverse_cdf, _LastDistrict, _pool_cdf, _tilted_proposal, guide_table, log_weight)
+    LAST_MAX_N, _inverse_cdf, _LastDistrict, _pool_cdf, _tilted_proposal, guide_table, log_weight)
 
 #: Proposal cells drawn at once per unit: 64K cells make temporaries of 512 KB, which stay in cache
 #: and are reused by the allocator (timed on one unit of the bench's x1 history, on the shared
@@ -340,13 +340,15 @@ class _UnitDraws:
 def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol: float, accepted: int,
                max_draws: int, stream) -> _UnitDraws:
     """Proposals for one unit (``stream()`` gives its generator) until ``accepted`` land within
-    ``tol`` of ``v`` and pass the rejection control, or ``max_draws`` were made; nothing kept when
-    the target is out of reach.
+    ``tol`` of ``v`` (and pass the rejection control), or ``max_draws`` were made; nothing kept
+    when the target is out of reach.
 
-    Each proposal takes ``N - 1`` uniforms of one stream for the districts before the last (tilted,
-    by inverse CDF over the whole pool's index, :func:`_pool_cdf`, so the pool's arrays are read in
-    place) and two of another for the last district (:class:`_LastDistrict`) and the rejection
-    control; both streams are children of the unit's."""
+    A delegation of fewer than ``LAST_MAX_N`` districts draws its last district within reach
+    (:class:`_LastDistrict`): ``N - 1`` uniforms a row of one child of the unit's stream for the
+    districts before the last, two of another for the last district and the rejection control. A
+    larger one draws all ``N`` from the tilted pool, ``N`` uniforms a row of the unit's stream.
+    The tilted draws are by inverse CDF over the whole pool's index (:func:`_pool_cdf`), so the
+    pool's arrays are read in place."""
     prop = None
     if eligible.size:
         a_el, n_el = group.a[eligible], group.n[eligible]
@@ -357,13 +359,12 @@ def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol:
     a, n, seat = group.a, group.n, group.seat
     y = np.zeros(a.size)
     y[eligible] = y_el
-    last = _LastDistrict.of(eligible, y_el, q, n_el, v, t, tol, N)
-    cdf = _pool_cdf(a.size, eligible, q) if N > 1 else None
-    guide = guide_table(cdf) if N > 1 else None
-    # two streams, each read row after row: the N - 1 uniforms of the districts before the last,
-    # and the 2 of the last district and the rejection control (contiguous blocks of each)
-    first_rng, last_rng = stream().spawn(2)
-    sub = max(1, _DRAW_CELLS // N)  # rows of a chunk of the districts before the last
+    last = _LastDistrict.of(eligible, y_el, q, n_el, v, t, tol, N) if N < LAST_MAX_N else None
+    free = N - 1 if last else N  # districts drawn from the tilted pool
+    cdf = _pool_cdf(a.size, eligible, q) if free else None
+    guide = guide_table(cdf) if free else None
+    first_rng, last_rng = stream().spawn(2) if last else (stream(), None)
+    sub = max(1, _DRAW_CELLS // max(free, 1))  # rows of a chunk of the tilted draws
     kept_j, kept_logw, kept_share, kept_seats = [], [], [], []
     got = done = 0
     while got < accepted and done < max_draws:
@@ -374,11 +375,15 @@ def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol:
         rate = got / done if got else (0.5 if done == 0 else 0.5 / done)
         want = int(np.ceil(1.1 * (accepted - got) / rate)) + 64
         r = min(max(sub, _DRAW_ROWS), max_draws - done, want)
-        first, sa, sn = _first_districts(cdf, guide, first_rng, group, r, N, sub)
-        u = last_rng.random((r, 2))
-        j_last, mass, keep = last.draw(sa, sn, u[:, 0], u[:, 1])
-        sh = (sa + a[j_last]) / (sn + n[j_last])
-        ok = np.flatnonzero(keep & (np.abs(sh - v) <= tol))
+        chunks, sa, sn = _tilted_districts(cdf, guide, first_rng, group, r, free, sub)
+        inside = np.ones(r, bool)
+        if last:
+            u = last_rng.random((r, 2))
+            j_last, mass, inside = last.draw(sa, sn, u[:, 0], u[:, 1])
+            sa += a[j_last]
+            sn += n[j_last]
+        sh = sa / sn
+        ok = np.flatnonzero(inside & (np.abs(sh - v) <= tol))
         if ok.size >= accepted - got:  # stop at the accepted-th kept draw (so the count of proposals
             ok = ok[: accepted - got]    # made does not depend on the batch sizes either)
             done += int(ok[-1]) + 1
@@ -386,13 +391,10 @@ def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol:
             done += r
         got += ok.size
         if ok.size:
-            jk = np.empty((ok.size, N), np.intp)
-            for c, part in enumerate(first):  # the kept rows of each chunk
-                rows = ok[(ok >= c * sub) & (ok < (c + 1) * sub)]
-                jk[np.searchsorted(ok, rows), : N - 1] = part[rows - c * sub]
-            jk[:, N - 1] = j_last[ok]
+            jk = _kept_rows(chunks, ok, sub, N, j_last if last else None)
             kept_j.append(jk.astype(group.index_type).ravel())
-            kept_logw.append(log_weight(lam, y[jk].sum(axis=1), mass[ok], last.floor))
+            kept_logw.append(log_weight(lam, y[jk].sum(axis=1), mass[ok] if last else 1.0,
+                                        last.floor if last else 0.0))
             kept_share.append(sh[ok])
             kept_seats.append(seat[jk].sum(axis=1))
     if not got:
@@ -406,18 +408,29 @@ def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol:
                       done, got, ess, lam, t)
 
 
-def _first_districts(cdf, guide, rng, group: _GroupArrays, r: int, N: int, sub: int):
-    """The districts before the last of ``r`` rows (``N - 1`` uniforms of ``rng`` each), drawn in
+def _tilted_districts(cdf, guide, rng, group: _GroupArrays, r: int, k: int, sub: int):
+    """``k`` tilted districts for each of ``r`` rows (``k`` uniforms of ``rng`` a row), drawn in
     chunks of ``sub`` rows (about ``_DRAW_CELLS`` cells), and the rows' votes and turnout summed."""
-    sa, sn, first = np.zeros(r), np.zeros(r), []
-    if N == 1:
+    sa, sn, chunks = np.zeros(r), np.zeros(r), []
+    if k == 0:
         return [np.empty((r, 0), np.intp)], sa, sn
     for lo in range(0, r, sub):
-        j = _inverse_cdf(cdf, guide, rng.random((min(sub, r - lo), N - 1)))
+        j = _inverse_cdf(cdf, guide, rng.random((min(sub, r - lo), k)))
         sa[lo:lo + j.shape[0]] = group.a[j].sum(axis=1)
         sn[lo:lo + j.shape[0]] = group.n[j].sum(axis=1)
-        first.append(j)
-    return first, sa, sn
+        chunks.append(j)
+    return chunks, sa, sn
+
+
+def _kept_rows(chunks, ok: np.ndarray, sub: int, N: int, j_last) -> np.ndarray:
+    """The districts of the kept rows ``ok`` (sorted), from the tilted chunks and the last districts."""
+    jk = np.empty((ok.size, N), np.intp)
+    for c, part in enumerate(chunks):
+        lo, hi = np.searchsorted(ok, (c * sub, (c + 1) * sub))
+        jk[lo:hi, : part.shape[1]] = part[ok[lo:hi] - c * sub]
+    if j_last is not None:
+        jk[:, N - 1] = j_last[ok]
+    return jk
 
 
 def _assemble(pool, group: _GroupArrays, unit_state, n_districts, vote_share, tol,
