@@ -34,6 +34,7 @@ from monitor.pool import (
     robust_z,
     simulate_delegations,
 )
+from monitor.pool.proposal import LAST_FLOOR
 from monitor.pool.sampler import LAST_MAX_N, _inverse_cdf, guide_table
 from monitor.pool.seats import _weighted_midrank, _weighted_quantile
 
@@ -365,7 +366,7 @@ def inverse_cdf_reference(pool, state, N, V, tol, tilt, centre, seed_seq, key, r
     each read row after row: N - 1 uniforms of the first give the districts before the last by
     numpy's weighted choice (searchsorted of the CDF, side="right"), two of the second the last
     district by the same on q restricted to the window S (districts sorted by y) and the rejection
-    control (kept when u * c < m, c = half the mass of S after N - 1 districts
+    control (kept when u * c < m, c = LAST_FLOOR times the mass of S after N - 1 districts
     of mean turnout at exactly the centre). The weight is the definition p(J) / (proposal
     probability of J * probability of keeping it), normalised."""
     eligible = np.flatnonzero(pool.state != state)
@@ -378,7 +379,7 @@ def inverse_cdf_reference(pool, state, N, V, tol, tilt, centre, seed_seq, key, r
     cdf /= cdf[-1]
     by_y = np.argsort(y, kind="stable")
     before = (N - 1) * n.mean()
-    c = 0.5 * q[by_y][last_window(a, n, y[by_y], V, centre, tol, centre * before, before)].sum()
+    c = LAST_FLOOR * q[by_y][last_window(a, n, y[by_y], V, centre, tol, centre * before, before)].sum()
     stream = np.random.default_rng(np.random.SeedSequence(seed_seq.entropy, spawn_key=(*seed_seq.spawn_key, key)))
     if N >= LAST_MAX_N:  # a large delegation: all N districts from the tilted pool, N uniforms a row
         j = eligible[np.searchsorted(cdf, stream.random((rows, N)), side="right")]
