@@ -21,8 +21,8 @@ import pandas as pd
 
 from monitor.publish import formats as F
 from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style,
-                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure,
-                                      records)
+                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, _clean,
+                                      fmt_measure, records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -173,12 +173,17 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     ``frame``: cycle, value, low, high, null_low, null_high, flagged, direction, certification.
     ``eras``: first_cycle, last_cycle, era_label.
     """
-    f = _with_flags(frame, style)
-    lo, hi = float(f["cycle"].min()) - 1, float(f["cycle"].max()) + 1
+    # one chart per measure on every state page: plain lists, not frames
+    columns = ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"]
+    cols = {c: frame[c].tolist() if isinstance(frame, pd.DataFrame) else list(frame[c])
+            for c in ("cycle", "value", "low", "high", "null_low", "null_high", "flagged", "direction", "certification")}
+    cols["flag"] = [style.flag_label(fl, d) for fl, d in zip(cols["flagged"], cols["direction"])]
+    has_interval = any(not F.missing(v) for v in cols["low"])
+    lo, hi = float(min(cols["cycle"])) - 1, float(max(cols["cycle"])) + 1
     x = _cycle_axis(lo, hi)
     era_rows, era_layers = _eras(eras, lo, hi)
     layers = era_layers[:-1]
-    if f["null_low"].notna().any():
+    if any(not F.missing(v) for v in cols["null_low"]):
         layers.append({"data": {"name": "values"}, "mark": {"type": "area", "color": BAND, "opacity": 0.6},
                        "encoding": {"x": x, "y": _q("null_low", title=label), "y2": {"field": "null_high"},
                                     "tooltip": [_tip("cycle"), _tip("null_low", title="null tail from", fmt="+.3f"),
@@ -189,7 +194,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     if lines:
         layers.append({"data": {"values": lines}, "mark": {"type": "rule", "color": MUTED, "strokeDash": [2, 3]},
                        "encoding": {"y": _q("v", title=label), "tooltip": [_tip("text", "nominal", "reference")]}})
-    if f["low"].notna().any():
+    if has_interval:
         layers.append({"data": {"name": "values"}, "mark": {"type": "rule", "color": MUTED, "strokeWidth": 1.5},
                        "encoding": {"x": x, "y": _q("low", title=label), "y2": {"field": "high"}}})
     layers.append({"data": {"name": "values"}, "mark": {"type": "line", "color": INK, "strokeWidth": 1},
@@ -201,15 +206,13 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
                        "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
                        "tooltip": [_tip("cycle"), _tip("value", fmt="+.3f")]
                        + ([_tip("low", title="95% low", fmt="+.3f"), _tip("high", title="95% high", fmt="+.3f")]
-                          if f["low"].notna().any() else [])
+                          if has_interval else [])
                        + [_tip("flag", "nominal"), _tip("certification", "nominal", "results")]}})
     layers += era_layers[-1:]
-    columns = ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"]
-    datasets = {"values": records(f, columns)}
+    table = list(zip(*(cols[c] for c in columns)))
+    datasets = {"values": [{c: _clean(v) for c, v in zip(columns, row)} for row in table]}
     if era_rows:
         datasets["eras"] = era_rows
-    # one chart per measure on every state page: rows as plain tuples, not frames
-    table = list(zip(*(f[c].tolist() for c in columns)))
     defined = [r for r in table if not F.missing(r[1])]
     flagged = [r for r in table if r[6] != NOT_FLAGGED]
     desc = f"{label} of {where}: {len(defined)} of {len(table)} cycles defined"
