@@ -247,16 +247,16 @@ def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, sty
 
     ``frame``: cycle, vote_share, seat_share, expected_share, expected_low, expected_high.
     """
-    f = frame
-    lo, hi = float(f["cycle"].min()) - 1, float(f["cycle"].max()) + 1
+    # one chart on every state page: plain lists, not frames
+    f = {c: frame[c].tolist() for c in ("cycle", "vote_share", "seat_share", "expected_share", "expected_low",
+                                        "expected_high")}
+    lo, hi = float(min(f["cycle"])) - 1, float(max(f["cycle"])) + 1
     x = _cycle_axis(lo, hi)
     names = {"vote_share": f"{style.a.name} vote share", "seat_share": f"{style.a.name} seat share"}
-    long = f.melt(id_vars=["cycle"], value_vars=["vote_share", "seat_share"], var_name="series", value_name="share")
-    long["series"] = long["series"].map(names)
     domain = list(names.values())
     era_rows, era_layers = _eras(eras, lo, hi)
     layers = era_layers[:-1]
-    if f["expected_share"].notna().any():
+    if any(not F.missing(v) for v in f["expected_share"]):
         layers.append({"data": {"name": "seats"}, "mark": {"type": "area", "color": BAND, "opacity": 0.7},
                        "encoding": {"x": x, "y": _q("expected_low", title=f"{style.a.name} share"), "y2": {"field": "expected_high"},
                                     "tooltip": [_tip("cycle"), _tip("expected_share", title="expected seat share", fmt=".1%"),
@@ -273,12 +273,15 @@ def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, sty
                                 "shape": _n("series", title=None, scale={"domain": domain, "range": ["square", "circle"]}),
                                 "tooltip": [_tip("cycle"), _tip("series", "nominal"), _tip("share", fmt=".1%")]}})
     layers += era_layers[-1:]
-    datasets = {"seats": records(f, ["cycle", "expected_share", "expected_low", "expected_high"]),
-                "long": records(long, ["cycle", "series", "share"])}
+    seats = ["cycle", "expected_share", "expected_low", "expected_high"]
+    datasets = {"seats": [{c: _clean(v) for c, v in zip(seats, row)} for row in zip(*(f[c] for c in seats))],
+                # long form: every cycle's vote share, then every cycle's seat share
+                "long": [{"cycle": _clean(cycle), "series": names[series], "share": _clean(value)}
+                         for series in names for cycle, value in zip(f["cycle"], f[series])]}
     if era_rows:
         datasets["eras"] = era_rows
-    last = f.iloc[-1]
-    desc = (f"{style.a.name}'s share of the two-party vote and of the seats in {where}, {int(f['cycle'].min())} to "
+    last = {c: values[-1] for c, values in f.items()}
+    desc = (f"{style.a.name}'s share of the two-party vote and of the seats in {where}, {int(min(f['cycle']))} to "
             f"{int(last['cycle'])}. In {int(last['cycle'])}: {F.share(last['vote_share'])} of the vote, "
             f"{F.share(last['seat_share'])} of the seats")
     if not F.missing(last["expected_share"]):
@@ -286,9 +289,9 @@ def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, sty
                  f"{F.share(last['expected_share'])} (95% {F.share(last['expected_low'])} to {F.share(last['expected_high'])})"
                  ". The grey band is that expectation")
     desc += "."
-    rows = [[str(int(r.cycle)), F.share(r.vote_share), F.share(r.seat_share), F.share(r.expected_share),
-             (f"{F.share(r.expected_low)} to {F.share(r.expected_high)}" if not F.missing(r.expected_low) else F.DASH)]
-            for r in f.itertuples()]
+    rows = [[str(int(cycle)), F.share(vote), F.share(seat), F.share(expected),
+             (f"{F.share(low)} to {F.share(high)}" if not F.missing(low) else F.DASH)]
+            for cycle, vote, seat, expected, low, high in zip(*f.values())]
     return Chart(chart_id, "Seats and votes over time", desc, _spec(layers, datasets, 200),
                  ["cycle", "vote share", "seat share", "expected seat share", "expected 95%"], rows)
 
