@@ -397,8 +397,8 @@ def _add_exports() -> None:
                    "entirely, so it must be new, empty or an earlier levelfield site.")
 @click.option("--full", is_flag=True, help="Render every page and download, not only those whose inputs changed.")
 @click.option("--workers", type=click.IntRange(1, 64), default=None,
-              help="Processes rendering the state pages (default 2 where two CPUs or more are available, "
-                   "else 1). The site is the same whatever the number.")
+              help="Processes rendering the state pages (default 2 when two CPUs or more are available "
+                   "and a second one is idle, else 1). The site is the same whatever the number.")
 @click.pass_obj
 @guarded
 def publish(ws: Workspace, out: Path | None, full: bool, workers: int | None) -> None:

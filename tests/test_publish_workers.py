@@ -55,3 +55,14 @@ def test_state_pages_on_two_processes_give_the_bytes_of_one(tmp_path, monkeypatc
     finally:
         fx.close()
 
+
+
+def test_a_second_process_only_when_a_second_cpu_is_idle(monkeypatch):
+    monkeypatch.setattr(os, "sched_getaffinity", lambda pid: {0, 1})
+    monkeypatch.setattr(os, "getloadavg", lambda: (1.0, 1.0, 1.0))  # this build alone on 2 CPUs
+    assert workers.default_workers() == 2
+    monkeypatch.setattr(os, "getloadavg", lambda: (2.6, 2.0, 2.0))  # two other jobs running
+    assert workers.default_workers() == 1
+    monkeypatch.setattr(os, "sched_getaffinity", lambda pid: {0})
+    monkeypatch.setattr(os, "getloadavg", lambda: (0.0, 0.0, 0.0))
+    assert workers.default_workers() == 1
