@@ -22,7 +22,7 @@ import pandas as pd
 from monitor.publish import formats as F
 from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style,
                                       _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, _clean,
-                                      fmt_measure, records)
+                                      era_key, fmt_measure, records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -233,13 +233,6 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
              flag, cert] for cycle, value, low, high, null_low, null_high, flag, cert in table]
     return Chart(chart_id, label, desc, _spec(layers, datasets, 190),
                  ["cycle", label, "95% low", "95% high", "national-pool null (outer tails)", "flag", "results"], rows)
-
-
-def era_key(eras: pd.DataFrame) -> str:
-    """``1: 1972-1980, drawn by Upland Party; 2: ...``: the numbers the era bands show."""
-    return "; ".join(f"{i}: {int(first)}{F.DASH}{'' if F.missing(last) else int(last)}, drawn by {label}"
-                     for i, (first, last, label) in enumerate(zip(*(eras[c].tolist() for c in
-                                                                    ("first_cycle", "last_cycle", "era_label"))), 1))
 
 
 def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, style: Style, where: str) -> Chart:
