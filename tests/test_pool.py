@@ -36,7 +36,7 @@ from monitor.pool import (
 )
 from monitor.pool.proposal import LAST_FLOOR
 from monitor.pool.sampler import LAST_MAX_N, _inverse_cdf, guide_table
-from monitor.pool.seats import _weighted_midrank, _weighted_quantile
+from monitor.pool.seats import _stable_rows_order, _weighted_midrank, _weighted_quantile
 
 Z_MAX = 4.0
 
@@ -580,6 +580,33 @@ def test_weighted_helpers_against_reference_libraries():
         for s in range(5):
             want = np.quantile(v[seg == s], q, method="inverted_cdf", weights=w[seg == s])
             assert got[s] == want
+
+
+@pytest.mark.parametrize("kind", ["continuous", "few_ties", "many_ties", "nan"])
+def test_row_sort_is_numpys_stable_argsort(kind):
+    # reference: numpy.argsort(kind="stable") (NumPy documentation: equal elements keep their order)
+    g = np.random.default_rng(5)
+    m = g.random((40, 301))
+    if kind == "few_ties":
+        m[:, ::50] = 0.5
+    elif kind == "many_ties":
+        m = g.integers(0, 9, m.shape) / 2.0
+    elif kind == "nan":
+        m[g.random(m.shape) < 0.1] = np.nan
+    want = (np.argsort(m, axis=1, kind="stable") + np.arange(0, m.size, 301)[:, None]).ravel()
+    assert np.array_equal(_stable_rows_order(m), want)
+
+
+def test_quantiles_of_equal_segments_against_numpy():
+    # reference: numpy.quantile(method="inverted_cdf", weights=...) per segment; equal segments take
+    # the one-sort-per-row path, ties on purpose
+    g = np.random.default_rng(8)
+    seg = np.repeat(np.arange(6), 250)
+    v, w = np.round(g.normal(size=seg.size), 2), g.random(seg.size)
+    for q in (0.025, 0.5, 0.975):
+        got = _weighted_quantile(v, w, seg, 6, q)
+        for s in range(6):
+            assert got[s] == np.quantile(v[seg == s], q, method="inverted_cdf", weights=w[seg == s])
 
 
 def test_inverse_cdf_sampler_matches_searchsorted():

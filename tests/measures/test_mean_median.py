@@ -88,3 +88,15 @@ def test_constant_shares_give_exact_zero_and_undefined_z():
     r = mean_median_test(*from_shares([0.6] * 7))
     assert r.statistic[0] == 0.0
     assert np.isnan(r.z[0]) and np.isnan(r.pvalue[0])
+
+
+@pytest.mark.parametrize("n", [1, 2, 7, 18, 101, 400])
+def test_median_of_equal_units_against_numpy(n):
+    # reference: numpy.median per unit (equal units take the partition path of median_share)
+    from monitor.measures.segments import Segments
+
+    g = np.random.default_rng(n)
+    a, b = g.integers(1, 900, 30 * n).astype(float), g.integers(1, 900, 30 * n).astype(float)
+    seg = Segments(np.repeat(np.arange(30), n), a, b, 30)
+    want = np.median((a / (a + b)).reshape(30, n), axis=1)
+    assert np.array_equal(seg.median_share(), want)
