@@ -261,13 +261,7 @@ class Segments:
         last = max(self.unit.size - 1, 0)
         lo = np.minimum(self.starts + np.maximum(n - 1, 0) // 2, last)
         hi = np.minimum(self.starts + n // 2, last)
-        if "sorted_share" not in self.__dict__ and self.unit.size and n.min() == n.max():
-            # equal units (simulated delegations): the two middle order statistics of each row,
-            # the same values the full sort puts there, by one partition
-            kth = sorted({int(lo[0]), int(hi[0])})  # the first unit starts at row 0
-            xs = np.partition(self.share.reshape(self.n_units, -1), kth, axis=1).ravel()
-        else:
-            xs = self.sorted_share
+        xs = self.sorted_share
         if xs.size == 0:
             return np.full(self.n_units, np.nan)
         med = (xs[lo] + xs[hi]) / 2.0

@@ -92,7 +92,7 @@ def test_constant_shares_give_exact_zero_and_undefined_z():
 
 @pytest.mark.parametrize("n", [1, 2, 7, 18, 101, 400])
 def test_median_of_equal_units_against_numpy(n):
-    # reference: numpy.median per unit (equal units take the partition path of median_share)
+    # reference: numpy.median per unit (equal units take the row-sort path of sorted_share)
     from monitor.measures.segments import Segments
 
     g = np.random.default_rng(n)
