@@ -39,8 +39,10 @@ def declination_of(seg: Segments) -> np.ndarray:
     """-delta per unit; see :func:`declination`."""
     won = seg.seat
     lost = 1.0 - won
-    k_won, k_lost = seg.sum(won), seg.sum(lost)
     n = seg.count.astype(np.float64)
+    # seats are halves, so their sums are exact in any order: k' = N - k exactly
+    k_won = seg.seats_a
+    k_lost = n - k_won
     zbar = seg.divide(seg.sum(won * seg.share), k_won)
     ybar = seg.divide(seg.sum(lost * seg.share), k_lost)
     # k = 0 or k' = 0 (a party without seats): the divisions give NaN, so delta is NaN

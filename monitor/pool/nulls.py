@@ -12,7 +12,7 @@ from monitor.measures import registry
 
 from .pool import NationalPool
 from .sampler import Delegations, _base_seed, simulate_delegations
-from .seats import SeatsResult, _weighted_midrank, _weighted_quantiles, expected_seats
+from .seats import SeatsResult, _midrank_weights, _weighted_midrank, _weighted_quantiles, expected_seats
 
 #: The measures judged against their national-pool null (the registry's flags with ``null``), by
 #: their flag name, with the vectorised function ``f(unit, votes_a, votes_b, n_units)`` that
@@ -76,7 +76,8 @@ def _chunks(d: Delegations):
 def _evaluate_shared(fns: Mapping[str, Callable], d: Delegations) -> dict[str, np.ndarray]:
     """Every measure of ``fns`` (Segments forms, :data:`NULL_MEASURES_OF`) on every kept draw,
     one Segments per chunk shared by all of them (their per-district sums are computed once), and
-    each pool district's share and seat computed once and gathered (:meth:`Segments.take`).
+    each pool district's share and seat computed once and gathered (:meth:`Segments.take`); each
+    draw's seats are the sampler's sums (:attr:`Delegations.seats`, halves: exact in any order).
     Equal to :func:`_evaluate` of the public forms, value for value."""
     from monitor.measures.segments import Segments
 
@@ -88,6 +89,7 @@ def _evaluate_shared(fns: Mapping[str, Callable], d: Delegations) -> dict[str, n
         idx = d.district[row_start[first]:row_start[last]].astype(np.intp)
         unit = np.repeat(np.arange(last - first, dtype=np.int64), size[first:last])
         seg = Segments.take(pool, idx, unit, last - first, count=size[first:last])
+        seg.__dict__["seats_a"] = d.seats[first:last]  # summed by the sampler (halves: exact in any order)
         for name, f in fns.items():
             out[name][first:last] = f(seg)
     return out
@@ -167,22 +169,29 @@ def null_distributions(
     if set(NULL_MEASURES_OF) == set(fns) and all(fns[k] is NULL_MEASURES.get(k) for k in fns):
         # the registry's own measures: one Segments per chunk, shared
         shared = _evaluate_shared(NULL_MEASURES_OF, d)
+    whole = _midrank_weights(d.weight, d.draw_unit, d.n_units)  # the weights of a measure defined on every draw
     for name, f in fns.items():
         obs = np.asarray(observed[name], dtype=np.float64)
         if obs.shape != (d.n_units,):
             raise ValueError(f"observed[{name!r}] must have one value per unit")
-        out[name] = _null_of(shared[name] if name in shared else _evaluate(f, d), obs, d, alpha)
+        out[name] = _null_of(shared[name] if name in shared else _evaluate(f, d), obs, d, alpha, whole)
     return out
 
 
-def _null_of(vals: np.ndarray, obs: np.ndarray, d: Delegations, alpha: float) -> NullResult:
-    """One measure's null from its values ``vals`` on every kept draw (NaN draws dropped)."""
+def _null_of(vals: np.ndarray, obs: np.ndarray, d: Delegations, alpha: float, whole: tuple) -> NullResult:
+    """One measure's null from its values ``vals`` on every kept draw (NaN draws dropped);
+    ``whole`` is :func:`_midrank_weights` of all the draws' weights, used as they are when the
+    measure is defined on every draw (the same arrays the dropping would build)."""
     U, g = d.n_units, d.draw_unit
     ok = ~np.isnan(vals)
-    w = np.where(ok, d.weight, 0.0)
-    v = np.where(ok, vals, 0.0)
-    used_w = np.bincount(g, w, U)
-    pct, se = _weighted_midrank(v, w, g, U, obs)
+    if ok.all():
+        w, v, used = d.weight, vals, whole
+    else:
+        w = np.where(ok, d.weight, 0.0)
+        v = np.where(ok, vals, 0.0)
+        used = _midrank_weights(w, g, U)
+    used_w = used[0]
+    pct, se = _weighted_midrank(v, w, g, U, obs, shared=used)
     pct = np.where(np.isnan(obs) | (used_w <= 0), np.nan, pct)
     se = np.where(np.isnan(pct), np.nan, se)
     with np.errstate(invalid="ignore", divide="ignore"):

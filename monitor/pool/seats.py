@@ -18,19 +18,28 @@ import numpy as np
 from .sampler import Delegations
 
 
-def _weighted_midrank(values, weights, seg, n_seg, ref):
+def _weighted_midrank(values, weights, seg, n_seg, ref, *, shared: tuple | None = None):
     """Per segment: ``sum w [v < ref] + 1/2 sum w [v == ref]`` over ``sum w``, and its SE.
 
-    ``weights`` need not be normalised; NaN where a segment's total weight is 0.
+    ``weights`` need not be normalised; NaN where a segment's total weight is 0.  ``shared``:
+    :func:`_midrank_weights` of the same weights, when several values share them.
     """
-    total = np.bincount(seg, weights, n_seg)
+    total, wn2 = _midrank_weights(weights, seg, n_seg) if shared is None else shared
     r = ref[seg]
     ind = (values < r) + 0.5 * (values == r)
     with np.errstate(invalid="ignore", divide="ignore"):
         pct = np.bincount(seg, weights * ind, n_seg) / total
-        wn = weights / total[seg]
-        se = np.sqrt(np.bincount(seg, wn**2 * (ind - pct[seg]) ** 2, n_seg))
+        se = np.sqrt(np.bincount(seg, wn2 * (ind - pct[seg]) ** 2, n_seg))
     return pct, se
+
+
+def _midrank_weights(weights, seg, n_seg) -> tuple[np.ndarray, np.ndarray]:
+    """What :func:`_weighted_midrank` takes from the weights alone: each segment's total and
+    each draw's squared normalised weight."""
+    total = np.bincount(seg, weights, n_seg)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        wn = weights / total[seg]
+    return total, wn**2
 
 
 def _segment_order(v: np.ndarray, g: np.ndarray) -> np.ndarray:
@@ -85,7 +94,7 @@ def _weighted_quantiles(values, weights, seg, n_seg, qs):
     live = weights > 0
     if not live.any():
         return out
-    v, w, g = values[live], weights[live], seg[live]
+    v, w, g = (values, weights, seg) if live.all() else (values[live], weights[live], seg[live])
     order = _segment_order(v, g)
     v, w, g = v[order], w[order], g[order]
     total = np.bincount(g, w, n_seg)
