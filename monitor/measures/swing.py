@@ -65,7 +65,9 @@ def _relative_share(seg: Segments, reference: str) -> np.ndarray:
 def seat_share_at_of(seg: Segments, v, reference: str = "vote_weighted") -> np.ndarray:
     """S(v) per unit; ``v`` a scalar or one value per unit."""
     gap = 0.5 - np.broadcast_to(np.asarray(v, dtype=np.float64), (seg.n_units,))
-    won = step(_relative_share(seg, reference) - seg.spread(gap))
+    lead = _relative_share(seg, reference)
+    # at v = 1/2 (partisan bias) the gap is 0 and x - 0 is x, bit for bit: no shift to spread
+    won = step(lead if not np.any(gap) else lead - seg.spread(gap))
     return seg.mask(seg.divide(seg.sum(won), seg.count.astype(np.float64)))
 
 
