@@ -82,43 +82,53 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
     """Plans on watch, from the judged tails rows and the unit -> plan assignment."""
     need_cycles, need_measures = config["flags.watch_cycles"], config["flags.watch_measures"]
     flagged = t[t["flagged"] == 1]
-    per = (flagged.groupby([*UNIT_KEYS, "direction"])["measure"]
-           .agg(lambda m: sorted(set(m))).reset_index())
-    per = per[per["measure"].map(len) >= need_measures]
-    per = per.merge(plans, on=UNIT_KEYS, how="left")
+    per: dict[tuple, set] = {}  # (cycle, state, chamber, direction) -> the measures flagging that way
+    for key in zip(flagged["cycle"].astype(int).tolist(), flagged["state"].tolist(), flagged["chamber"].tolist(),
+                   flagged["direction"].tolist(), flagged["measure"].tolist()):
+        per.setdefault(key[:4], set()).add(key[4])
+    plan_of = {(int(c), s, ch): (p, d, i) for c, s, ch, p, d, i in zip(
+        plans["cycle"], plans["state"], plans["chamber"], plans["plan_id"], plans["drawn_by"], plans["inferred"])}
     # no unit of the pool may have an expected seat count (no two-party votes anywhere): no column
-    has_excess = not seats.empty and "excess_seats" in seats.columns
-    per = per.merge(seats[[*UNIT_KEYS, "excess_seats"]], on=UNIT_KEYS, how="left") if has_excess else per.assign(excess_seats=np.nan)
-    # the plans with enough flagged cycles one way, found at once (most plans have none)
-    most = per.groupby(["state", "chamber", "plan_id", "direction"])["cycle"].nunique() if len(per) else pd.Series()
-    enough = {key[:3] for key, n in most.items() if n >= need_cycles}
-    rows = []
-    for (state, chamber, plan_id), group in per.groupby(["state", "chamber", "plan_id"], sort=True):
-        if (state, chamber, plan_id) not in enough:
+    excess = ({} if seats.empty or "excess_seats" not in seats.columns else
+              {(int(c), s, ch): x for c, s, ch, x in zip(seats["cycle"], seats["state"], seats["chamber"],
+                                                         seats["excess_seats"].to_numpy(float))})
+    by_plan: dict[tuple, dict[str, list]] = {}
+    for (cycle, state, chamber, direction), measures in per.items():
+        plan = plan_of.get((cycle, state, chamber))
+        if len(measures) < need_measures or plan is None or not isinstance(plan[0], str):
             continue
-        counts = group.groupby("direction")["cycle"].nunique()  # one direction has need_cycles (enough)
-        best = counts[counts == counts.max()]
-        if len(best) > 1:  # as many cycles each way: no agreement, not on watch
-            continue
-        favours = best.index[0]
-        agree = group[group["direction"] == favours].sort_values("cycle")
-        excess = agree["excess_seats"].to_numpy(float)
-        stake = float(np.nanmean(excess)) if np.isfinite(excess).any() else None
-        measures = sorted({m for ms in agree["measure"] for m in ms})
-        first = agree.iloc[0]
-        rows.append({
-            "state": state, "chamber": chamber, "plan_id": plan_id,
-            "drawn_by": first["drawn_by"], "inferred": int(first["inferred"]), "favours": favours,
-            "severity": round(abs(stake), 2) if stake is not None else 0.0,
-            "seats_at_stake": None if stake is None else round(stake, 2),  # as severity: one rounding
-            "concurring": int(agree["measure"].map(len).max()),
-            "cycles": " ".join(str(c) for c in agree["cycle"]),
-            "measures": " ".join(measures), "since": int(agree["cycle"].min()),
-        })
+        by_plan.setdefault((state, chamber, plan[0]), {}).setdefault(direction, []).append(
+            (cycle, sorted(measures), plan[1], plan[2], excess.get((cycle, state, chamber), np.nan)))
+    rows = [row for key in sorted(by_plan) if (row := _watch_entry(key, by_plan[key], need_cycles)) is not None]
     cols = ["state", "chamber", "plan_id", "drawn_by", "inferred", "favours", "severity", "seats_at_stake",
             "concurring", "cycles", "measures", "since"]
     out = pd.DataFrame(rows, columns=cols)
     return out.sort_values(["severity", "concurring", "state"], ascending=[False, False, True]).reset_index(drop=True)
+
+
+def _watch_entry(plan: tuple, ways: dict[str, list], need_cycles: int) -> dict | None:
+    """The watch entry of ``plan`` (state, chamber, plan_id) from its cycles flagged by enough
+    measures each way (``ways``: direction -> (cycle, measures, drawn_by, inferred, excess seats)),
+    or None when fewer than ``need_cycles`` cycles agree, or as many cycles go each way."""
+    counts = {d: len({e[0] for e in entries}) for d, entries in ways.items()}
+    most = max(counts.values())
+    best = [d for d, n in counts.items() if n == most]
+    if most < need_cycles or len(best) > 1:  # too few cycles, or as many each way: no agreement
+        return None
+    favours = best[0]
+    agree = sorted(ways[favours], key=lambda e: e[0])
+    excess = np.array([e[4] for e in agree], dtype=float)
+    stake = float(np.nanmean(excess)) if np.isfinite(excess).any() else None
+    state, chamber, plan_id = plan
+    return {
+        "state": state, "chamber": chamber, "plan_id": plan_id,
+        "drawn_by": agree[0][2], "inferred": int(agree[0][3]), "favours": favours,
+        "severity": round(abs(stake), 2) if stake is not None else 0.0,
+        "seats_at_stake": None if stake is None else round(stake, 2),  # as severity: one rounding
+        "concurring": max(len(e[1]) for e in agree),
+        "cycles": " ".join(str(e[0]) for e in agree),
+        "measures": " ".join(sorted({m for e in agree for m in e[1]})), "since": agree[0][0],
+    }
 
 
 def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
