@@ -295,7 +295,7 @@ def _watch_of(db, pairs: set, chambers: list, todo, judged: pd.DataFrame, seats:
                        ignore_index=True)
 
     def of_pairs(frame):
-        return frame[[(s, ch) in pairs for s, ch in zip(frame["state"], frame["chamber"])]]
+        return frame[np.array([(s, ch) in pairs for s, ch in zip(frame["state"], frame["chamber"])], dtype=bool)]
 
     watch = watch_list(of_pairs(flagged), of_pairs(plans), of_pairs(excess), config)
     return watch, of_pairs(store_flags.read_all(db, "watch"))
