@@ -225,8 +225,7 @@ def _redo(db, config: Config, scope, pool: dict, units: pd.DataFrame, plans: pd.
 
     coverage_share, partial = judged_by
     todo = scope.todo_groups
-    at = np.array([(int(c), ch) in set(todo) for c, ch in zip(units["cycle"], units["chamber"])], dtype=bool)
-    mine = units[at].reset_index(drop=True)
+    mine = units[_in_groups(units, todo)].reset_index(drop=True)
     stored = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "reason"], stored_names(), groups=todo)
     observed = observed_values(stored, mine)
     old_seats = store_flags.read_groups(db, "pool_seats", todo)
