@@ -1,7 +1,7 @@
 """What a flags run must do again: the (cycle, chamber) groups whose inputs changed.
 
 A group's tails rows (nulls, judgement, cross-state context) and expected seats depend on its
-national pool (:func:`monitor.tails.group_hash`: the pool settings and each unit's measures'
+national pool (:func:`group_hash`: the pool settings and each unit's measures'
 inputs hash) and on what the judge reads besides: the flag settings, the plan each unit is
 assigned (its id, who drew it, whether inferred), each unit's seat coverage and whether it is
 one class of a staggered chamber. :func:`judge_bases` digests all of it per group; a run redoes
@@ -24,6 +24,7 @@ import pandas as pd
 from monitor.config import Config, section_options
 from monitor.inputs import UNIT_KEYS
 
+POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
 #: bump when what the judge, the cross-state context or the watch list store changes
 FLAGS_METHOD_VERSION = "flags-1"
 STEP = "flags"
@@ -38,12 +39,23 @@ def group_of(key: str) -> tuple[int, str]:
     return int(cycle), chamber
 
 
+def group_hash(units: pd.DataFrame, config: Config) -> str:
+    """What a group's pool rows depend on: the pool and tail settings, each unit's inputs hash."""
+    h = hashlib.sha256(POOL_METHOD_VERSION.encode())
+    h.update(json.dumps({k: config[k] for k in (
+        "pool.tolerance", "pool.draws", "pool.exclude_own_state", "pool.seed", "flags.min_districts",
+        "flags.tail")}, sort_keys=True).encode())
+    for key, value in sorted(zip(units["state"], units["inputs_hash"])):
+        h.update(f"{key}\x1f{value}\n".encode())
+    return h.hexdigest()
+
+
 def _head(config: Config) -> str:
-    from monitor.tails import JUDGED
+    from monitor.measures import registry  # the flag declarations (monitor.tails would bring the pool)
 
     settings = {opt.name: config[opt.name] for section in ("flags", "pool", "staggered")
                 for opt in section_options(section)}
-    judged = {name: [m.name, m.flag.null, m.flag.p_value, m.flag.also_undefined_where] for name, m in JUDGED.items()}
+    judged = {name: [m.name, m.flag.null, m.flag.p_value, m.flag.also_undefined_where] for name, m in registry.flag_by_name().items()}
     return json.dumps({"version": FLAGS_METHOD_VERSION, "settings": settings, "judged": judged},
                       sort_keys=True, default=str)
 
@@ -85,8 +97,6 @@ def scope(units: pd.DataFrame, plans: pd.DataFrame, coverage: pd.Series, partial
     """The :class:`Scope` of a run over ``units`` (:func:`monitor.flags.flag_units`) and each
     current group's pool digest; ``known``: the stored bases, ``stored_pool``: the pool digests the
     stored pool rows were computed from."""
-    from monitor.tails import group_hash
-
     keys = [group_key(c, ch) for c, ch in zip(units["cycle"], units["chamber"])]
     pool = {key: group_hash(part, config) for key, part in units.groupby(np.array(keys, dtype=object), sort=True)}
     bases = judge_bases(units, pool, plans, coverage, partial, config)

@@ -20,10 +20,10 @@ import pandas as pd
 from monitor import pool as P
 from monitor.config import Config
 from monitor.coverage import not_flagged_reason
+from monitor.flag_scope import POOL_METHOD_VERSION, group_hash  # noqa: F401 (the pool's digest, named here too)
 from monitor.inputs import UNIT_KEYS
 from monitor.measures import registry
 
-POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
 #: the measures the flags judge (the registry's ``flag`` declarations), by their flag name
 JUDGED = registry.flag_by_name()
 #: flag names judged against their national-pool null
@@ -73,17 +73,6 @@ def group_seed(seed: int, cycle: int, chamber: str) -> list[int]:
 def state_key(state: str) -> int:
     """A stable non-negative integer per state: its simulation stream's key."""
     return int.from_bytes(hashlib.sha256(state.encode()).digest()[:4], "little")
-
-
-def group_hash(units: pd.DataFrame, config: Config) -> str:
-    """What a group's pool rows depend on: the pool and tail settings, each unit's inputs hash."""
-    h = hashlib.sha256(POOL_METHOD_VERSION.encode())
-    h.update(json.dumps({k: config[k] for k in (
-        "pool.tolerance", "pool.draws", "pool.exclude_own_state", "pool.seed", "flags.min_districts",
-        "flags.tail")}, sort_keys=True).encode())
-    for key, value in sorted(zip(units["state"], units["inputs_hash"])):
-        h.update(f"{key}\x1f{value}\n".encode())
-    return h.hexdigest()
 
 
 def pool_group(arrays, members: np.ndarray, observed: dict, undefined: dict, actual_seats: np.ndarray,
