@@ -133,8 +133,10 @@ def _watch_entry(plan: tuple, ways: dict[str, list], need_cycles: int) -> dict |
 
 def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
               now: dt.datetime | None = None, progress=None) -> FlagsReport:
-    """Recompute the national tails of changed cycle/chamber groups, judge every unit, rebuild
-    the watch list, and record every flag that was raised or cleared.
+    """Redo the cycle/chamber groups whose inputs changed (every one when ``full``): redraw their
+    national tails where their pool changed, judge their units, update the robust z across cycles
+    of their chambers and the watch entries of their state chambers, write the rows that changed,
+    and record every flag that was raised or cleared.
 
     Reads, computation and the write are one consistent step (:func:`store.write_from_snapshot`):
     when another process commits meanwhile (a load, or a second recompute), the step runs again on

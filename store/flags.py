@@ -78,10 +78,10 @@ class FlagChanges:
     computed_at), the new ``robust_z_all`` of tails rows otherwise unchanged (value, computed_at
     and the key), and the ``events`` to append (EVENT_COLUMNS)."""
 
-    seats: tuple[list, list] = ([], [])
-    tails: tuple[list, list] = ([], [])
+    seats: tuple[list, list] = field(default_factory=lambda: ([], []))
+    tails: tuple[list, list] = field(default_factory=lambda: ([], []))
     watch_columns: Sequence[str] = ()
-    watch: tuple[list, list] = ([], [])
+    watch: tuple[list, list] = field(default_factory=lambda: ([], []))
     robust_z_all: list[tuple] = field(default_factory=list)
     events: list[tuple] = field(default_factory=list)
 
