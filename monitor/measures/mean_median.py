@@ -31,6 +31,7 @@ import math
 from typing import NamedTuple
 
 import numpy as np
+from scipy import stats
 
 from .registry import FAVOURS_A, Flag, Measure
 from .segments import Segments
@@ -62,8 +63,6 @@ def mean_median_test_of(seg: Segments) -> MeanMedianTest:
     n, _, sd = seg.group_stats(seg.share, np.ones(seg.unit.shape, dtype=bool))
     se = MM_SE_FACTOR * sd / np.sqrt(np.maximum(n, 1.0))
     z = seg.mask(seg.divide(mm, np.where(np.isfinite(se), se, 0.0)))
-    from scipy import stats  # here: importing scipy.stats costs ~1 s, and only computing p needs it
-
     with np.errstate(invalid="ignore"):
         p = np.where(np.isfinite(z), 2.0 * stats.norm.sf(np.abs(np.nan_to_num(z))), np.nan)
     return MeanMedianTest(mm, z, p)

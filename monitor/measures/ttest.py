@@ -13,6 +13,7 @@ from __future__ import annotations
 from typing import NamedTuple
 
 import numpy as np
+from scipy import stats
 
 VARIANTS = ("welch", "pooled")
 
@@ -68,8 +69,6 @@ def t_test_from_summary(mean1, sd1, n1, mean2, sd2, n2, variant: str = "welch") 
             df = (q1 + q2) ** 2 / (q1**2 / (n1 - 1.0) + q2**2 / (n2 - 1.0))
         ok = ok & (se > 0)
         t = np.where(ok, (m1 - m2) / np.where(ok, se, 1.0), np.nan)
-    from scipy import stats  # here: importing scipy.stats costs ~1 s, and only computing p needs it
-
     df = np.where(ok, df, np.nan)
     p = np.where(ok, 2.0 * stats.t.sf(np.abs(np.where(ok, t, 0.0)), np.where(ok, df, 1.0)), np.nan)
     return TTestResult(t, df, np.where(ok, se, np.nan), p)
