@@ -396,9 +396,12 @@ def _add_exports() -> None:
               help="Folder to publish into (default the workspace's public/). It is replaced "
                    "entirely, so it must be new, empty or an earlier levelfield site.")
 @click.option("--full", is_flag=True, help="Render every page and download, not only those whose inputs changed.")
+@click.option("--workers", type=click.IntRange(1, 64), default=None,
+              help="Processes rendering the state pages (default 2 when two CPUs or more are available "
+                   "and a second one is idle, else 1). The site is the same whatever the number.")
 @click.pass_obj
 @guarded
-def publish(ws: Workspace, out: Path | None, full: bool) -> None:
+def publish(ws: Workspace, out: Path | None, full: bool, workers: int | None) -> None:
     """Build the static site from the store: pages, charts, downloads and feed.
 
     The site is built beside the output folder and swapped in at once: a failed build leaves
@@ -413,7 +416,7 @@ def publish(ws: Workspace, out: Path | None, full: bool) -> None:
     db = _store(ws)
     tell(progress, "publish", 0, None, "building the site")
     try:
-        report = build_site(ws, db=db, out=out, full=full)
+        report = build_site(ws, db=db, out=out, full=full, workers=workers)
     finally:
         _clear(progress)
     for line in report.lines():

@@ -24,7 +24,8 @@ import pandas as pd
 from monitor.config import Config, section_options
 from monitor.inputs import UNIT_KEYS
 
-POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
+POOL_METHOD_VERSION = "pool-3"  # pool-2: observed values and null rules taken from the engine; pool-3: the last
+# district of a simulated delegation drawn within reach, with rejection control (new random streams)
 #: bump when what the judge, the cross-state context or the watch list store changes
 FLAGS_METHOD_VERSION = "flags-1"
 STEP = "flags"

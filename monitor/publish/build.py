@@ -43,6 +43,7 @@ from monitor.publish.feed import warnings as feed_warnings
 from monitor.publish.pages import iter_site, static_assets
 from monitor.publish.reuse import KEPT, MANIFEST, Parts, Reuse
 from monitor.publish.runtime import RUNTIME_PATH, vega_runtime
+from monitor.publish.workers import default_workers
 
 try:
     import fcntl
@@ -86,13 +87,16 @@ class BuildReport:
 
 
 def build(source, config: Config | None = None, out: str | Path | None = None, *,
-          templates: Sequence[str | Path] = (), full: bool = False, _own: bool = False) -> BuildReport:
+          templates: Sequence[str | Path] = (), full: bool = False, workers: int | None = None,
+          _own: bool = False) -> BuildReport:
     """Build the site from ``source`` (a :class:`~monitor.workspace.Workspace` or a store
     database) into ``out`` (default: the workspace's ``public/``).
 
     A state or cycle page, or a download, whose inputs are those of the previous build's file
     (:mod:`monitor.publish.plan`) is kept, not rendered again; ``full`` renders every file.
-    ``templates``: folders searched before the built-in templates (overrides).
+    ``templates``: folders searched before the built-in templates (overrides). ``workers``:
+    processes rendering the state pages (default :func:`~monitor.publish.workers.default_workers`;
+    the site's bytes do not depend on it).
     """
     db, config, out, own = _resolve(source, config, out)
     own = own or _own
@@ -104,7 +108,8 @@ def build(source, config: Config | None = None, out: str | Path | None = None, *
         reuse = Reuse(out, full=full)
 
         def files():
-            yield from iter_site(data, templates, reuse=reuse, previous_feed=previous)
+            yield from iter_site(data, templates, reuse=reuse, previous_feed=previous,
+                                 workers=default_workers() if workers is None else workers)
             yield from static_assets().items()
             yield RUNTIME_PATH, vega_runtime(out / RUNTIME_PATH)
             yield MANIFEST, reuse.manifest()  # last: every page and download has recorded its inputs
@@ -151,14 +156,14 @@ def check_output(out: Path, store: Path | None = None, *, unmarked_ok: bool = Fa
 
 def build_site(ws, *, db: sqlite_utils.Database | None = None, config: Config | None = None,
                out: str | Path | None = None, templates: Sequence[str | Path] = (),
-               full: bool = False) -> BuildReport:
+               full: bool = False, workers: int | None = None) -> BuildReport:
     """:func:`build` for a workspace, reusing an open store and config when given (the
     recompute chain calls this after the flags)."""
     if db is None:
-        return build(ws, config, out, templates=templates, full=full)
+        return build(ws, config, out, templates=templates, full=full, workers=workers)
     public = ws.folder("public")
     out = Path(out) if out else public
-    return build(db, config or ws.config(), out, templates=templates, full=full,
+    return build(db, config or ws.config(), out, templates=templates, full=full, workers=workers,
                  _own=out.absolute() == public.absolute())
 
 

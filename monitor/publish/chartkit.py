@@ -251,3 +251,10 @@ def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[di
                "encoding": {"x": x, "y": {"value": -ERA_BAND / 2}, "text": _n("era_no"), "tooltip": tip}}
     columns = ["x", "x2", "parity", "era_label", "era_no", "chars"]
     return [{c: _clean(r[c]) for c in columns} for r in e], rects + [{"layer": [labels, numbers]}]
+
+
+def era_key(eras: pd.DataFrame) -> str:
+    """``1: 1972-1980, drawn by Upland Party; 2: ...``: the numbers the era bands show."""
+    return "; ".join(f"{i}: {int(first)}{F.DASH}{'' if F.missing(last) else int(last)}, drawn by {label}"
+                     for i, (first, last, label) in enumerate(zip(*(eras[c].tolist() for c in
+                                                                    ("first_cycle", "last_cycle", "era_label"))), 1))

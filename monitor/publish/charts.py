@@ -21,8 +21,8 @@ import pandas as pd
 
 from monitor.publish import formats as F
 from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style,
-                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, fmt_measure,
-                                      records)
+                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, _clean,
+                                      era_key, fmt_measure, records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -173,12 +173,17 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     ``frame``: cycle, value, low, high, null_low, null_high, flagged, direction, certification.
     ``eras``: first_cycle, last_cycle, era_label.
     """
-    f = _with_flags(frame, style)
-    lo, hi = float(f["cycle"].min()) - 1, float(f["cycle"].max()) + 1
+    # one chart per measure on every state page: plain lists, not frames
+    columns = ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"]
+    cols = {c: frame[c].tolist() if isinstance(frame, pd.DataFrame) else list(frame[c])
+            for c in ("cycle", "value", "low", "high", "null_low", "null_high", "flagged", "direction", "certification")}
+    cols["flag"] = [style.flag_label(fl, d) for fl, d in zip(cols["flagged"], cols["direction"])]
+    has_interval = any(not F.missing(v) for v in cols["low"])
+    lo, hi = float(min(cols["cycle"])) - 1, float(max(cols["cycle"])) + 1
     x = _cycle_axis(lo, hi)
     era_rows, era_layers = _eras(eras, lo, hi)
     layers = era_layers[:-1]
-    if f["null_low"].notna().any():
+    if any(not F.missing(v) for v in cols["null_low"]):
         layers.append({"data": {"name": "values"}, "mark": {"type": "area", "color": BAND, "opacity": 0.6},
                        "encoding": {"x": x, "y": _q("null_low", title=label), "y2": {"field": "null_high"},
                                     "tooltip": [_tip("cycle"), _tip("null_low", title="null tail from", fmt="+.3f"),
@@ -189,7 +194,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     if lines:
         layers.append({"data": {"values": lines}, "mark": {"type": "rule", "color": MUTED, "strokeDash": [2, 3]},
                        "encoding": {"y": _q("v", title=label), "tooltip": [_tip("text", "nominal", "reference")]}})
-    if f["low"].notna().any():
+    if has_interval:
         layers.append({"data": {"name": "values"}, "mark": {"type": "rule", "color": MUTED, "strokeWidth": 1.5},
                        "encoding": {"x": x, "y": _q("low", title=label), "y2": {"field": "high"}}})
     layers.append({"data": {"name": "values"}, "mark": {"type": "line", "color": INK, "strokeWidth": 1},
@@ -201,15 +206,13 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
                        "shape": _n("flag", title=None, scale=style.flag_shape(), legend=None),
                        "tooltip": [_tip("cycle"), _tip("value", fmt="+.3f")]
                        + ([_tip("low", title="95% low", fmt="+.3f"), _tip("high", title="95% high", fmt="+.3f")]
-                          if f["low"].notna().any() else [])
+                          if has_interval else [])
                        + [_tip("flag", "nominal"), _tip("certification", "nominal", "results")]}})
     layers += era_layers[-1:]
-    columns = ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"]
-    datasets = {"values": records(f, columns)}
+    table = list(zip(*(cols[c] for c in columns)))
+    datasets = {"values": [{c: _clean(v) for c, v in zip(columns, row)} for row in table]}
     if era_rows:
         datasets["eras"] = era_rows
-    # one chart per measure on every state page: rows as plain tuples, not frames
-    table = list(zip(*(f[c].tolist() for c in columns)))
     defined = [r for r in table if not F.missing(r[1])]
     flagged = [r for r in table if r[6] != NOT_FLAGGED]
     desc = f"{label} of {where}: {len(defined)} of {len(table)} cycles defined"
@@ -232,28 +235,21 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
                  ["cycle", label, "95% low", "95% high", "national-pool null (outer tails)", "flag", "results"], rows)
 
 
-def era_key(eras: pd.DataFrame) -> str:
-    """``1: 1972-1980, drawn by Upland Party; 2: ...``: the numbers the era bands show."""
-    return "; ".join(f"{i}: {int(first)}{F.DASH}{'' if F.missing(last) else int(last)}, drawn by {label}"
-                     for i, (first, last, label) in enumerate(zip(*(eras[c].tolist() for c in
-                                                                    ("first_cycle", "last_cycle", "era_label"))), 1))
-
-
 def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, style: Style, where: str) -> Chart:
     """Party a's vote share, seat share and expected seat share (national pool) over cycles.
 
     ``frame``: cycle, vote_share, seat_share, expected_share, expected_low, expected_high.
     """
-    f = frame
-    lo, hi = float(f["cycle"].min()) - 1, float(f["cycle"].max()) + 1
+    # one chart on every state page: plain lists, not frames
+    f = {c: frame[c].tolist() for c in ("cycle", "vote_share", "seat_share", "expected_share", "expected_low",
+                                        "expected_high")}
+    lo, hi = float(min(f["cycle"])) - 1, float(max(f["cycle"])) + 1
     x = _cycle_axis(lo, hi)
     names = {"vote_share": f"{style.a.name} vote share", "seat_share": f"{style.a.name} seat share"}
-    long = f.melt(id_vars=["cycle"], value_vars=["vote_share", "seat_share"], var_name="series", value_name="share")
-    long["series"] = long["series"].map(names)
     domain = list(names.values())
     era_rows, era_layers = _eras(eras, lo, hi)
     layers = era_layers[:-1]
-    if f["expected_share"].notna().any():
+    if any(not F.missing(v) for v in f["expected_share"]):
         layers.append({"data": {"name": "seats"}, "mark": {"type": "area", "color": BAND, "opacity": 0.7},
                        "encoding": {"x": x, "y": _q("expected_low", title=f"{style.a.name} share"), "y2": {"field": "expected_high"},
                                     "tooltip": [_tip("cycle"), _tip("expected_share", title="expected seat share", fmt=".1%"),
@@ -270,12 +266,15 @@ def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, sty
                                 "shape": _n("series", title=None, scale={"domain": domain, "range": ["square", "circle"]}),
                                 "tooltip": [_tip("cycle"), _tip("series", "nominal"), _tip("share", fmt=".1%")]}})
     layers += era_layers[-1:]
-    datasets = {"seats": records(f, ["cycle", "expected_share", "expected_low", "expected_high"]),
-                "long": records(long, ["cycle", "series", "share"])}
+    seats = ["cycle", "expected_share", "expected_low", "expected_high"]
+    datasets = {"seats": [{c: _clean(v) for c, v in zip(seats, row)} for row in zip(*(f[c] for c in seats))],
+                # long form: every cycle's vote share, then every cycle's seat share
+                "long": [{"cycle": _clean(cycle), "series": names[series], "share": _clean(value)}
+                         for series in names for cycle, value in zip(f["cycle"], f[series])]}
     if era_rows:
         datasets["eras"] = era_rows
-    last = f.iloc[-1]
-    desc = (f"{style.a.name}'s share of the two-party vote and of the seats in {where}, {int(f['cycle'].min())} to "
+    last = {c: values[-1] for c, values in f.items()}
+    desc = (f"{style.a.name}'s share of the two-party vote and of the seats in {where}, {int(min(f['cycle']))} to "
             f"{int(last['cycle'])}. In {int(last['cycle'])}: {F.share(last['vote_share'])} of the vote, "
             f"{F.share(last['seat_share'])} of the seats")
     if not F.missing(last["expected_share"]):
@@ -283,9 +282,9 @@ def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, sty
                  f"{F.share(last['expected_share'])} (95% {F.share(last['expected_low'])} to {F.share(last['expected_high'])})"
                  ". The grey band is that expectation")
     desc += "."
-    rows = [[str(int(r.cycle)), F.share(r.vote_share), F.share(r.seat_share), F.share(r.expected_share),
-             (f"{F.share(r.expected_low)} to {F.share(r.expected_high)}" if not F.missing(r.expected_low) else F.DASH)]
-            for r in f.itertuples()]
+    rows = [[str(int(cycle)), F.share(vote), F.share(seat), F.share(expected),
+             (f"{F.share(low)} to {F.share(high)}" if not F.missing(low) else F.DASH)]
+            for cycle, vote, seat, expected, low, high in zip(*f.values())]
     return Chart(chart_id, "Seats and votes over time", desc, _spec(layers, datasets, 200),
                  ["cycle", "vote share", "seat share", "expected seat share", "expected 95%"], rows)
 

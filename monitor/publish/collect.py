@@ -110,6 +110,7 @@ class SiteData:
     db: object = field(default=None, repr=False)
     _contests: pd.DataFrame | None = field(default=None, repr=False)
     _results: pd.DataFrame | None = field(default=None, repr=False)
+    _read_ahead: tuple | None = field(default=None, repr=False)
 
     @property
     def contests(self) -> pd.DataFrame:
@@ -129,7 +130,21 @@ class SiteData:
         keep = (u["state"] == state) & (u["chamber"] == chamber)
         if cycles is not None:
             keep &= u["cycle"].isin(cycles)
-        return reduced_contests(self.db, unit_ids=[int(i) for i in u.loc[keep, "unit_id"]])
+        ids = [int(i) for i in u.loc[keep, "unit_id"]]
+        read = self._read_ahead
+        if read is not None and ids and read[1].issuperset(ids):
+            return read[0][read[0]["unit_id"].isin(ids)]
+        return reduced_contests(self.db, unit_ids=ids)
+
+    def read_ahead(self, units: list[tuple[int, str, str]]) -> None:
+        """Read the current contests of these (cycle, state, chamber) units in one query, for
+        :meth:`contests_of` to answer from (the state pages' results of a new cycle: one query
+        instead of one per page)."""
+        u = self.units
+        wanted = set(units)
+        keep = [k in wanted for k in zip(u["cycle"].astype(int), u["state"], u["chamber"])]
+        ids = [int(i) for i in u.loc[keep, "unit_id"]]
+        self._read_ahead = (reduced_contests(self.db, unit_ids=ids), set(ids)) if ids else None
 
     @property
     def results(self) -> pd.DataFrame:

@@ -39,6 +39,7 @@ from monitor.exports import COVERAGE_FIELDS, EXPECTED_SEATS_FIELDS, GAP_FIELDS, 
 from monitor.national import HISTOGRAM_FIELDS, SUMMARY_FIELDS
 from monitor.publish import formats as F
 from monitor.publish.collect import SiteData
+from monitor.publish.plan import row_hashes
 from monitor.publish.reuse import KEPT, Parts
 
 #: Field types of the Table Schema spec (v1) that our schemas may use.
@@ -318,7 +319,7 @@ def _by_cycle(data: SiteData, spec: dict) -> dict[int, str] | None:
             or not frame["cycle"].astype(int).is_monotonic_increasing:
         return None
     cols = [f[0] for f in spec["fields"] if f[0] in frame.columns]
-    hashed = pd.util.hash_pandas_object(frame[cols].astype(str), index=False).to_numpy()
+    hashed = row_hashes(frame, cols)
     cycles = frame["cycle"].astype(int).to_numpy()
     out = {}
     for c in np.unique(cycles):

@@ -28,6 +28,7 @@ from monitor.publish.feed import atom_feed
 from monitor.publish.plan import deliveries, digests, page_digests, page_inputs
 from monitor.publish.reuse import KEPT, Reuse
 from monitor.publish.views import Views
+from monitor.publish.workers import Farm
 
 SITE_DIR = Path(__file__).resolve().parents[2] / "site"
 TEMPLATE_DIR = SITE_DIR / "templates"
@@ -92,8 +93,14 @@ def _root(page: str) -> str:
 
 class Renderer:
     def __init__(self, data: SiteData, env: jinja2.Environment, reuse: Reuse | None = None,
-                 previous_feed: bytes | None = None):
+                 previous_feed: bytes | None = None, workers: int = 1):
         self.data = data
+        self.workers = workers
+        self._store_path = None
+        if workers > 1 and data.db is not None:
+            from store import path_of
+
+            self._store_path = path_of(data.db)
         self.env = env
         self.views = Views(data)
         self.reuse = reuse
@@ -122,11 +129,7 @@ class Renderer:
         results download: a page holding every cycle of a large chamber would weigh megabytes).
         The table depends only on its unit's delivery (:func:`monitor.publish.plan.deliveries`): it
         is kept with the site's parts and rendered again only when the unit is re-delivered."""
-        units = self.data.units
-        cycles = sorted(units.loc[(units["state"] == state) & (units["chamber"] == chamber), "cycle"].astype(int),
-                        reverse=True)[:1]
-        names = {c: f"results.{self.delivered[(c, state, chamber)]}.{int(i == 0)}.html"
-                 for i, c in enumerate(cycles) if (c, state, chamber) in self.delivered}
+        cycles, names = self._results_names(state, chamber)
         html = {c: self.reuse.cached(n, page) for c, n in names.items()} if self.reuse is not None else {}
         missing = [c for c in cycles if html.get(c) is None]
         if missing:
@@ -138,6 +141,26 @@ class Renderer:
                     self.reuse.store(names[c], html[c], page)
         return [Markup(html[c].decode("utf-8")) for c in cycles if c in html]
 
+    def _results_names(self, state: str, chamber: str) -> tuple[list[int], dict[int, str]]:
+        """The cycles of a state page's results table (the latest) and the cached parts' names."""
+        units = self.views.by("units", ("state", "chamber"), (state, chamber))
+        cycles = sorted(units["cycle"].astype(int), reverse=True)[:1]
+        names = {c: f"results.{self.delivered[(c, state, chamber)]}.{int(i == 0)}.html"
+                 for i, c in enumerate(cycles) if (c, state, chamber) in self.delivered}
+        return cycles, names
+
+    def _read_results_ahead(self, todo: list[tuple[str, str, str]]) -> None:
+        """Read in one query the contests of the results tables the pages ``todo`` must render
+        (not cached: a new cycle, a re-delivered unit)."""
+        cache = self.reuse.cache if self.reuse is not None else None
+        units = []
+        for state, chamber, _ in todo:
+            cycles, names = self._results_names(state, chamber)
+            units += [(c, state, chamber) for c in cycles if cache is None or c not in names
+                      or not (cache / names[c]).is_file()]
+        if len(units) > 1:
+            self.data.read_ahead(units)
+
     def render(self) -> Iterator[tuple[str, bytes]]:
         """Each file as soon as it is rendered, so that a build holds one page at a time."""
         d, v = self.data, self.views
@@ -145,14 +168,27 @@ class Renderer:
         yield self.page(P.WATCH, "watch.html", "Watch list", "watch", **v.watch(_root(P.WATCH)))
         yield self.page(P.STATES, "states.html", "States", "states", **v.states(_root(P.STATES)))
         yield self.page(P.CYCLES, "cycles.html", "Cycles", "cycles", **v.cycles(_root(P.CYCLES)))
+        todo = []
         for state, chamber in d.pairs():
             path = v.state_path(state, chamber)
             if self.kept(path):
                 yield path, KEPT
-                continue
-            ctx = v.state(state, chamber, _root(path))
-            ctx["results"] = self.results(state, chamber, path)
-            yield self.page(path, "state.html", ctx["where"], "states", **ctx)
+            else:
+                todo.append((state, chamber, path))
+        self._read_results_ahead(todo)
+        if todo:  # the first one here: what every state page reads is then ready before any fork
+            yield todo[0][2], self._state_page(todo[0])[0]
+        # the other state pages on the workers while this process renders the rest of the site
+        with Farm(self._state_page, todo[1:], self._workers(), self._reopen) as farm:
+            yield from self._rest()
+            for (state, chamber, path), (html, parts) in farm.finish():
+                if self.reuse is not None:
+                    self.reuse.adopt(path, parts)
+                yield path, html
+
+    def _rest(self) -> Iterator[tuple[str, bytes]]:
+        """The cycle pages, methods, downloads and feed."""
+        d, v = self.data, self.views
         for cycle in d.cycles:
             path = P.cycle_page(cycle)
             if self.kept(path):
@@ -167,14 +203,37 @@ class Renderer:
                         datapackage=f"{P.DOWNLOAD_DIR}/datapackage.json", provenance=v.provenance(), empty=d.empty)
         yield P.FEED, atom_feed(d, v, P.FEED, self.previous_feed)
 
+    def _state_page(self, item: tuple[str, str, str]) -> tuple[bytes, list[str]]:
+        """One state page's bytes and the cached parts it is made with (a worker returns both, so
+        that the build records the parts as its own)."""
+        state, chamber, path = item
+        ctx = self.views.state(state, chamber, _root(path))
+        ctx["results"] = self.results(state, chamber, path)
+        html = self.page(path, "state.html", ctx["where"], "states", **ctx)[1]
+        return html, self.reuse.parts_of(path) if self.reuse is not None else []
+
+    def _workers(self) -> int:
+        """Processes for the state pages: one when the store cannot be opened again by a worker
+        (an in-memory database)."""
+        return self.workers if self._store_path is not None else 1
+
+    def _reopen(self) -> None:
+        """In a worker: its own connection to the store (one must not be used across a fork)."""
+        import store
+
+        self._inherited_db = self.data.db  # kept referenced: never closed from a worker
+        self.data.db = store.connect(self._store_path, migrate=False)
+
 
 def iter_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = (), *,
-              reuse: Reuse | None = None, previous_feed: bytes | None = None) -> Iterator[tuple[str, bytes]]:
+              reuse: Reuse | None = None, previous_feed: bytes | None = None,
+              workers: int = 1) -> Iterator[tuple[str, bytes]]:
     """Every generated page and download (not the static assets) as ``(path, content)``, lazily;
     with ``reuse`` (the previous build's manifest), a state or cycle page or a download whose
     inputs did not change comes as ``(path, KEPT)`` without being rendered. ``previous_feed``:
-    the feed of the build this one replaces (None for a first build)."""
-    return Renderer(data, environment(extra_template_dirs), reuse, previous_feed).render()
+    the feed of the build this one replaces (None for a first build). ``workers``: processes
+    rendering the state pages (:mod:`monitor.publish.workers`; the bytes are the same)."""
+    return Renderer(data, environment(extra_template_dirs), reuse, previous_feed, workers).render()
 
 
 def render_site(data: SiteData, extra_template_dirs: Sequence[str | Path] = ()) -> dict[str, bytes]:

@@ -89,7 +89,7 @@ def whole_units(data) -> list[tuple[int, str, str]]:
     m = data.measures
     if m.empty:
         return []
-    rows = m.loc[m["chamber"].map(is_whole), UNIT_KEYS].drop_duplicates()
+    rows = m.loc[m["chamber"].isin([c for c in m["chamber"].unique() if is_whole(c)]), UNIT_KEYS].drop_duplicates()
     return sorted(zip(rows["cycle"].astype(int), rows["state"], rows["chamber"]))
 
 
@@ -101,12 +101,20 @@ def touched_pages(inputs: dict[str, tuple], changed: Iterable[tuple]) -> set[str
     return {page for page, keys in inputs.items() if EVERYTHING in keys or changed.intersection(keys)}
 
 
-def _row_hashes(frame: pd.DataFrame, columns: list[str]) -> np.ndarray:
+def row_hashes(frame: pd.DataFrame, columns: list[str]) -> np.ndarray:
+    """A hash of each row's values in ``columns`` (those ``frame`` has). Each column is hashed in
+    its own type (numbers by value, without writing them as text); in a column of Python objects,
+    a missing value hashes alike whether it is None or NaN."""
     cols = [c for c in columns if c in frame.columns]
     if frame.empty or not cols:
         return np.zeros(len(frame), np.uint64)
-    return pd.util.hash_pandas_object(frame[cols].astype(object).where(frame[cols].notna(), None),
-                                      index=False).to_numpy(np.uint64)
+    sub = frame[cols]
+    loose = [c for c in cols if sub[c].dtype == object]
+    if loose:
+        sub = sub.copy()
+        for c in loose:
+            sub[c] = sub[c].where(sub[c].notna(), None)
+    return pd.util.hash_pandas_object(sub, index=False).to_numpy(np.uint64)
 
 
 def _fold(frame: pd.DataFrame, keys: list[str], tag: str, into: dict) -> None:
@@ -116,7 +124,7 @@ def _fold(frame: pd.DataFrame, keys: list[str], tag: str, into: dict) -> None:
         return
     # when a row was (re)computed is not what a page shows: a chamber's coverage is rewritten
     # whole when one of its units changes, and its other rows must not count as changed
-    h = _row_hashes(frame, [c for c in frame.columns if c not in STAMPS])
+    h = row_hashes(frame, [c for c in frame.columns if c not in STAMPS])
     codes = frame[keys[0]].astype(str).to_numpy(object)
     for k in keys[1:]:
         codes = codes + "|" + frame[k].astype(str).to_numpy(object)

@@ -93,6 +93,16 @@ class Reuse:
             if name not in parts:
                 parts.append(name)
 
+    def parts_of(self, path: str) -> list[str]:
+        """The cached parts recorded for the file ``path`` in this build."""
+        return list(self.now.get(path, {}).get("parts", ()))
+
+    def adopt(self, path: str, parts: list[str]) -> None:
+        """Record parts that ``path`` was made with in another process (a worker rendering it)."""
+        for name in parts:
+            self.used.add(name)
+            self._owns(path, name)
+
     def cached(self, name: str, owner: str | None = None) -> bytes | None:
         """The cached part ``name``, or None (marked as used either way: a part asked for and then
         made is kept); ``owner``: the file made with it."""

@@ -63,9 +63,18 @@ class Standing:
         rows = self.by("pool", tuple(UNIT_KEYS), (cycle, state, chamber))
         return rows.iloc[0] if len(rows) else None
 
+    def _memo(self, name: str, key, make):
+        """``make()``, computed once per key for this build (the data never change during one)."""
+        memo = self.__dict__.setdefault(f"_memo_{name}", {})
+        if key not in memo:
+            memo[key] = make()
+        return memo[key]
+
     def unit_cycles(self, state: str, chamber: str) -> list[int]:
         """The cycles with results of a state's chamber (a whole-chamber unit: of its chamber)."""
-        return sorted(int(c) for c in self.by("units", ("state", "chamber"), (state, base_chamber(chamber)))["cycle"])
+        base = base_chamber(chamber)
+        return self._memo("cycles", (state, base), lambda: sorted(
+            int(c) for c in self.by("units", ("state", "chamber"), (state, base))["cycle"]))
 
     # --- one unit ------------------------------------------------------------------------------
     def direction(self, flags: dict[str, list[str]]) -> str | None:
@@ -79,6 +88,9 @@ class Standing:
 
     def stake_of(self, cycle: int, state: str, chamber: str) -> dict:
         """The unit's seats at stake in words, with the seats won and the national pool's range."""
+        return self._memo("stake", (int(cycle), state, chamber), lambda: self._stake_of(cycle, state, chamber))
+
+    def _stake_of(self, cycle: int, state: str, chamber: str) -> dict:
         r = self._pool_row(cycle, state, chamber)
         if r is None or F.missing(r["excess_seats"]):
             return {"stake": self.words.stake(None), "detail": "no national-pool expectation"}
@@ -91,7 +103,13 @@ class Standing:
         return {"stake": stake, "detail": detail}
 
     def standing(self, cycle: int, state: str, chamber: str) -> dict | None:
-        """Everything the pages say about one flagged unit (None when it is not flagged)."""
+        """Everything the pages say about one flagged unit (None when it is not flagged); the home,
+        states, cycle and state pages ask for the same units, so each is worked out once (a copy
+        is returned: a page adds its own link)."""
+        s = self._memo("standing", (int(cycle), state, chamber), lambda: self._standing(cycle, state, chamber))
+        return None if s is None else dict(s)
+
+    def _standing(self, cycle: int, state: str, chamber: str) -> dict | None:
         flags = self._flags.get((int(cycle), state, chamber))
         if not flags:
             return None

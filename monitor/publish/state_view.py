@@ -40,13 +40,13 @@ class StatePage:
         current = self.by("unit_plans", ("state", "chamber"), (state, chamber)).tail(1)
         slug = "m"
         charts = []
+        eras = plans[["first_cycle", "last_cycle", "era_label"]]
         for measure in d.headline():
             frame = self._on_units(self._measure_frame(measure, state=state, chamber=chamber), units)
-            if frame["value"].notna().sum() == 0:
+            if all(F.missing(v) for v in frame["value"]):
                 continue
             lines = [t for t in d.thresholds if t.get("measure") == measure and applies(t, chamber)]
-            charts.append(C.trend(f"{slug}-{measure}", frame, plans[["first_cycle", "last_cycle", "era_label"]],
-                                  measure, d.label(measure), self.style, where, lines))
+            charts.append(C.trend(f"{slug}-{measure}", frame, eras, measure, d.label(measure), self.style, where, lines))
         seats = self._seats_over_time(state, chamber, units)
         seats_chart = C.seats_votes_time("seats-votes", seats, plans[["first_cycle", "last_cycle", "era_label"]],
                                          self.style, where) if not seats.empty else None
@@ -94,10 +94,11 @@ class StatePage:
         }
 
     @staticmethod
-    def _on_units(frame: pd.DataFrame, units: pd.DataFrame) -> pd.DataFrame:
-        """A trend chart's rows: one per unit of the state chamber (in ``units``' order), with its
-        certification and this measure's columns (missing where the unit has no row in ``frame``):
-        a right merge on the unit keys, done with lists (one per chart on every state page)."""
+    def _on_units(frame: pd.DataFrame, units: pd.DataFrame) -> dict[str, list]:
+        """A trend chart's rows as column lists: one per unit of the state chamber (in ``units``'
+        order), with its certification and this measure's columns (missing where the unit has no
+        row in ``frame``): a right merge on the unit keys, done with lists (one per chart on every
+        state page)."""
         cycles = units["cycle"].tolist()
         at = dict(zip(frame["cycle"].tolist(), range(len(frame))))
         take = [at.get(c) for c in cycles]
@@ -106,7 +107,7 @@ class StatePage:
             values = frame[col].tolist()
             out[col] = [np.nan if i is None else values[i] for i in take]
         out["certification"] = units["certification"].tolist()
-        return pd.DataFrame(out)
+        return out
 
     def _undefined_reasons(self, state: str, chamber: str) -> list[str]:
         """Why the headline measures have no value for this state (as the engine stored it)."""

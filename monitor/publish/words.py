@@ -45,6 +45,8 @@ class Words:
     def __init__(self, parties: dict):
         self.parties = parties
         self.names = {"a": parties["a"].name, "b": parties["b"].name}
+        # the same stored sentences come back on many pages: each is put in words once
+        self._said: dict[tuple, str] = {}
 
     # --- parties and directions ---------------------------------------------------------------
     def party(self, code) -> str:
@@ -115,6 +117,12 @@ class Words:
         text = F.text(text)
         if not text:
             return ""
+        key = ("why", text)
+        if key not in self._said:
+            self._said[key] = self._why(text)
+        return self._said[key]
+
+    def _why(self, text: str) -> str:
         m = _PLAN_WHY.match(text)
         if m:
             cycles = ", ".join(m.group("cycles").split())
@@ -131,6 +139,12 @@ class Words:
     def plain(self, text: str) -> str:
         """Codes in a sentence replaced by names: "party a" -> the name, "favours a" -> "favours"
         the name, "(positive favours a)" dropped (the sentence then names the party)."""
+        key = ("plain", text)
+        if key not in self._said:
+            self._said[key] = self._plain(text)
+        return self._said[key]
+
+    def _plain(self, text: str) -> str:
         a, b = self.names["a"], self.names["b"]
         text = re.sub(r"\s*\(positive (?:favours|means more for) a\)", "", text)
         text = re.sub(r"\b[Pp]arty ([ab])\b(?!')", lambda m: self.names[m.group(1)], text)
