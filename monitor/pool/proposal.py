@@ -11,7 +11,17 @@ from scipy.optimize import brentq
 
 
 def _solve_tilt(y: np.ndarray) -> float:
-    """Root ``lam`` of ``E_q[y] = 0`` for ``q_j ∝ exp(lam y_j)``; needs ``min y < 0 < max y``."""
+    """Root ``lam`` of ``E_q[y] = 0`` for ``q_j ∝ exp(lam y_j)``; needs ``min y < 0 < max y``.
+
+    Examples
+    --------
+    Two values -1 and 2: ``E_q[y] = 0`` when ``q_2 / q_1 = exp(3 lam) = 1/2``, so
+    ``lam = -ln(2) / 3`` (solved by hand from the definition):
+
+    >>> lam = _solve_tilt(np.array([-1.0, 2.0]))
+    >>> bool(abs(lam + np.log(2) / 3) < 1e-10)
+    True
+    """
 
     def mean_tilted(lam: float) -> float:
         z = lam * y
