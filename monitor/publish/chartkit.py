@@ -115,6 +115,11 @@ class Style:
 
 # --- spec helpers -------------------------------------------------------------------------------
 def _clean(value):
+    kind = type(value)  # the plain Python types first: most values of every chart are these
+    if kind is float:
+        return round(value, 6) if value - value == 0 else None  # NaN and infinities -> null
+    if kind is int or kind is str:
+        return value
     if value is None or value is pd.NA:
         return None
     if isinstance(value, (np.integer,)):
@@ -129,8 +134,8 @@ def _clean(value):
 
 def records(frame: pd.DataFrame, columns: list[str], names: list[str] | None = None, digits: int = 6) -> list[dict]:
     """Rows as JSON-ready dicts (NaN -> null, floats rounded to ``digits``), keyed by ``names``
-    (default: the column names)."""
-    cols = [frame[c].tolist() for c in columns]
+    (default: the column names). ``frame`` may also be a mapping of column lists."""
+    cols = [frame[c].tolist() if isinstance(frame, pd.DataFrame) else list(frame[c]) for c in columns]
     keys = names or columns
     out = [{c: _clean(v) for c, v in zip(keys, row)} for row in zip(*cols)]
     if digits < 6:

@@ -299,8 +299,9 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     axis = {"format": ".0%"}
     xt, yt = f"{style.a.name} statewide share of the two-party vote", f"{style.a.name} seat share"
     x, y = _q("vote", title=xt), _q("seat_share", title=yt)
-    by = points.set_index("point")
-    obs, flip, even = by.loc["observed"], by.loc["flipped vote"], by.loc["even vote"]
+    pts = {c: points[c].tolist() for c in ("point", "vote", "seat_share", "seats", "districts")}  # lists, not frames
+    by = {row[0]: dict(zip(pts, row)) for row in zip(*pts.values())}
+    obs, flip, even = by["observed"], by["flipped vote"], by["even vote"]
     # The three points often lie within a point or two of each other near 50%: nested marks of
     # distinct shape, size and fill (filled one under open ones) stay visible when they coincide, and each
     # has a direct label. The even vote lies midway between the other two and the curve never
@@ -316,7 +317,7 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     sizes = {"domain": marks, "range": [300, 80, 130]}
     left, right = ("observed", "flipped vote") if obs["vote"] <= flip["vote"] else ("flipped vote", "observed")
     place = {left: ("right", -9, -9, "bottom"),
-             right: ("left", 9, 9, "top") if by.loc[right, "seat_share"] > 0.1 else ("left", 9, -9, "bottom"),
+             right: ("left", 9, 9, "top") if by[right]["seat_share"] > 0.1 else ("left", 9, -9, "bottom"),
              "even vote": ("center", 0, -22, "bottom") if even["seat_share"] < 0.88 else ("center", 0, 22, "top")}
 
     def label(name: str) -> list[dict]:
@@ -345,10 +346,11 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     ] + [layer for name in marks for layer in label(name)]
     # drawing order: the large ring, then the filled diamond, then the open square over it (its
     # outline stays visible on the diamond when the two coincide)
-    points = points.assign(z=points["point"].map({"observed": 0, "flipped vote": 1, "even vote": 2}))
-    datasets = {"curve": records(curve.assign(line=lines[0]), ["vote", "seat_share", "line"]),
-                "points": records(points, ["point", "vote", "seat_share", "seats", "z"])}
-    n = int(points["districts"].iloc[0])
+    pts["z"] = [{"observed": 0, "flipped vote": 1, "even vote": 2}.get(p) for p in pts["point"]]
+    datasets = {"curve": records({"vote": curve["vote"].tolist(), "seat_share": curve["seat_share"].tolist(),
+                                  "line": [lines[0]] * len(curve)}, ["vote", "seat_share", "line"]),
+                "points": records(pts, ["point", "vote", "seat_share", "seats", "z"])}
+    n = int(pts["districts"][0])
     desc = (f"Seats-votes curve of {where} under uniform swing: every district's share shifted by the same amount. "
             f"Observed: {F.share(obs['vote'])} of the vote gave {style.a.name} {F.number(obs['seats'], 1)} of {n} seats. "
             f"With the vote flipped to {F.share(flip['vote'])}, {style.a.name} would win {F.number(flip['seats'], 1)} seats "
@@ -357,8 +359,8 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
             "Marks: the stepped line is the curve and the dotted diagonal is seats equal to votes; the observed result "
             "is the large open circle, the flipped vote the small filled diamond and the even vote (50%) the open square, "
             "each labelled beside it.")
-    rows = _curve_rows(curve) + [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
-                                 for r in points.itertuples()]
+    rows = _curve_rows(curve) + [[f"{p}: {F.share(v)}", f"{F.share(s)} ({F.number(won, 1)} seats)"]
+                                 for p, v, s, won in zip(pts["point"], pts["vote"], pts["seat_share"], pts["seats"])]
     return Chart(chart_id, "Seats-votes curve of the current plan", desc, _spec(layers, datasets, 260),
                  ["statewide vote share", "seat share"], rows)
 
