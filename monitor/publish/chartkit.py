@@ -258,6 +258,25 @@ def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[di
     return [{c: _clean(r[c]) for c in columns} for r in e], rects + [{"layer": [labels, numbers]}]
 
 
+class EraBands:
+    """A state's plan eras (``first_cycle``, ``last_cycle``, ``era_label``) as its charts draw them:
+    the bands and labels of :func:`_eras` worked out once per shown cycle range (every trend chart
+    of a state page shows the same cycles), and the key of :func:`era_key` once."""
+
+    def __init__(self, eras: pd.DataFrame):
+        self.frame = eras
+        self.empty = eras.empty
+        self.key = era_key(eras) if not eras.empty else ""
+        self._bands: dict[tuple[float, float], tuple[list[dict], list[dict]]] = {}
+
+    def at(self, lo: float, hi: float) -> tuple[list[dict], list[dict]]:
+        """:func:`_eras` between ``lo`` and ``hi`` (the same lists for every chart of that range:
+        a chart copies the list it extends and changes no layer)."""
+        if (lo, hi) not in self._bands:
+            self._bands[(lo, hi)] = _eras(self.frame, lo, hi)
+        return self._bands[(lo, hi)]
+
+
 def era_key(eras: pd.DataFrame) -> str:
     """``1: 1972-1980, drawn by Upland Party; 2: ...``: the numbers the era bands show."""
     return "; ".join(f"{i}: {int(first)}{F.DASH}{'' if F.missing(last) else int(last)}, drawn by {label}"

@@ -20,9 +20,9 @@ import numpy as np
 import pandas as pd
 
 from monitor.publish import formats as F
-from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style,
-                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, _clean,
-                                      era_key, fmt_measure, records)
+from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, EraBands,
+                                      Style, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, _clean,
+                                      fmt_measure, records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -165,13 +165,13 @@ def label_levels(frame: pd.DataFrame, labelled, width_px: float = 300.0, char_px
     return out
 
 
-def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, label: str, style: Style,
+def trend(chart_id: str, frame: pd.DataFrame, eras: EraBands, measure: str, label: str, style: Style,
           where: str, thresholds: list[dict] | None = None) -> Chart:
     """A measure of one state over all cycles: its 95% interval, its national-pool null band
     (where it is judged against one), flagged cycles marked, plan eras shaded and labelled.
 
     ``frame``: cycle, value, low, high, null_low, null_high, flagged, direction, certification.
-    ``eras``: first_cycle, last_cycle, era_label.
+    ``eras``: the state's plan eras (first_cycle, last_cycle, era_label).
     """
     # one chart per measure on every state page: plain lists, not frames
     columns = ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"]
@@ -181,7 +181,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     has_interval = any(not F.missing(v) for v in cols["low"])
     lo, hi = float(min(cols["cycle"])) - 1, float(max(cols["cycle"])) + 1
     x = _cycle_axis(lo, hi)
-    era_rows, era_layers = _eras(eras, lo, hi)
+    era_rows, era_layers = eras.at(lo, hi)
     layers = era_layers[:-1]
     if any(not F.missing(v) for v in cols["null_low"]):
         layers.append({"data": {"name": "values"}, "mark": {"type": "area", "color": BAND, "opacity": 0.6},
@@ -225,7 +225,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     desc += ("Flagged at the national tails in " + ", ".join(f"{int(r[0])} ({r[6]})" for r in flagged) + "."
              if flagged else "Not flagged in any cycle.")
     if not eras.empty:
-        desc += " Plan eras (numbered in the band above the chart where a name does not fit): " + era_key(eras) + "."
+        desc += " Plan eras (numbered in the band above the chart where a name does not fit): " + eras.key + "."
     if lines:
         desc += " Dotted lines: thresholds proposed in the literature (proposals, not law)."
     rows = [[str(int(cycle)), fmt_measure(measure, value), fmt_measure(measure, low), fmt_measure(measure, high),
@@ -235,7 +235,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
                  ["cycle", label, "95% low", "95% high", "national-pool null (outer tails)", "flag", "results"], rows)
 
 
-def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, style: Style, where: str) -> Chart:
+def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: EraBands, style: Style, where: str) -> Chart:
     """Party a's vote share, seat share and expected seat share (national pool) over cycles.
 
     ``frame``: cycle, vote_share, seat_share, expected_share, expected_low, expected_high.
@@ -247,7 +247,7 @@ def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, sty
     x = _cycle_axis(lo, hi)
     names = {"vote_share": f"{style.a.name} vote share", "seat_share": f"{style.a.name} seat share"}
     domain = list(names.values())
-    era_rows, era_layers = _eras(eras, lo, hi)
+    era_rows, era_layers = eras.at(lo, hi)
     layers = era_layers[:-1]
     if any(not F.missing(v) for v in f["expected_share"]):
         layers.append({"data": {"name": "seats"}, "mark": {"type": "area", "color": BAND, "opacity": 0.7},

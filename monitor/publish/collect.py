@@ -212,7 +212,7 @@ class SiteData:
 
     def headline(self) -> list[str]:
         if self._headline is None:
-            present = set(self.measures["measure"])
+            present = set(self.measures["measure"].unique().tolist())
             self._headline = [m for m in HEADLINE_MEASURES if m in present]
         return self._headline
 

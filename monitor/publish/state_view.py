@@ -41,16 +41,16 @@ class StatePage:
         current = self.by("unit_plans", ("state", "chamber"), (state, chamber)).tail(1)
         slug = "m"
         charts = []
-        eras = plans[["first_cycle", "last_cycle", "era_label"]]
+        eras = C.EraBands(plans[["first_cycle", "last_cycle", "era_label"]])  # drawn once per page
         for measure in d.headline():
-            frame = self._on_units(self.lists("_mf", ("state", "chamber", "measure"), (state, chamber, measure)), units)
+            frame = self._on_units(self.lists("_mf", ("state", "chamber", "measure"), (state, chamber, measure),
+                                                ("cycle", *TREND_COLUMNS)), units)
             if all(F.missing(v) for v in frame["value"]):
                 continue
             lines = [t for t in d.thresholds if t.get("measure") == measure and applies(t, chamber)]
             charts.append(C.trend(f"{slug}-{measure}", frame, eras, measure, d.label(measure), self.style, where, lines))
         seats = self._seats_over_time(state, chamber, units)
-        seats_chart = C.seats_votes_time("seats-votes", seats, plans[["first_cycle", "last_cycle", "era_label"]],
-                                         self.style, where) if not seats.empty else None
+        seats_chart = C.seats_votes_time("seats-votes", seats, eras, self.style, where) if not seats.empty else None
         if seats_chart is not None:
             self._label_seats_votes(seats_chart)
         curve = self.by("curves", ("state", "chamber"), (state, chamber))
@@ -72,7 +72,7 @@ class StatePage:
             "standing": (self.standing(last, state, chamber) or self.standing(last, state, whole_code(chamber)))
             if last is not None else None,
             "watch_past": self._watch_rows(past, root),
-            "era_key": C.era_key(plans.assign(era_label=plans["era_label"])) if len(plans) else "",
+            "era_key": eras.key,
             "state": self.state_label(state), "code": state, "chamber": d.chamber_label(chamber), "where": where,
             "chamber_code": chamber,
             "current_plan": self._plan_row(current.iloc[0]) if len(current) else None,
@@ -166,7 +166,8 @@ class StatePage:
 
     def _measure_table(self, state: str, chamber: str, units: pd.DataFrame) -> dict:
         d = self.d
-        m = self.lists("measures", ("state", "chamber"), (state, chamber))
+        m = self.lists("measures", ("state", "chamber"), (state, chamber),
+                       ("cycle", "measure", "value", "p_value", "reason"))
         stored = set(m["measure"])
         present = [name for name in TABLE_MEASURES if name in stored]
         shown = set(present)
@@ -179,9 +180,10 @@ class StatePage:
             else:
                 text = self.measure_value(name, value) + ("" if F.missing(p) else f" (p {F.pvalue(p)})")
             cells[(int(cycle), name)] = text
-        pool = self.lists("pool", ("state", "chamber"), (state, chamber))
+        pool = self.lists("pool", ("state", "chamber"), (state, chamber), ("cycle", "excess_seats"))
         excess = {int(c): self.words.stake(x).text for c, x in zip(pool["cycle"], pool["excess_seats"])}
-        flagged = self.lists("tails", ("state", "chamber"), (state, chamber))
+        flagged = self.lists("tails", ("state", "chamber"), (state, chamber),
+                             ("cycle", "measure", "flagged", "direction"))
         flags: dict[int, list[str]] = {}
         for cycle, name, flag, direction in zip(*(flagged[c] for c in ("cycle", "measure", "flagged", "direction"))):
             if flag == 1:

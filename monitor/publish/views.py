@@ -68,16 +68,19 @@ class Views(StatePage, Standing):
         start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
         return grouped.iloc[start:end]
 
-    def lists(self, name: str, keys: tuple[str, ...], key) -> dict[str, list]:
-        """The rows of :meth:`by` as one list per column (each frame's columns turned into lists
-        once per build): what a page reads many values of, without slicing a frame per page."""
+    def lists(self, name: str, keys: tuple[str, ...], key, columns: tuple[str, ...]) -> dict[str, list]:
+        """The ``columns`` of the rows of :meth:`by` as one list each (each column of a frame turned
+        into a list once per build): what a page reads many values of, without slicing a frame."""
         if (name, keys, "lists") not in self._splits:
             self.by(name, keys, key)  # splits the frame
-            grouped, spans = self._splits[(name, keys)]
-            self._splits[(name, keys, "lists")] = ({c: grouped[c].tolist() for c in grouped.columns}, spans)
-        columns, spans = self._splits[(name, keys, "lists")]
+            self._splits[(name, keys, "lists")] = {}
+        whole = self._splits[(name, keys, "lists")]
+        grouped, spans = self._splits[(name, keys)]
         start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
-        return {c: values[start:end] for c, values in columns.items()}
+        for c in columns:
+            if c not in whole:
+                whole[c] = grouped[c].tolist()
+        return {c: whole[c][start:end] for c in columns}
 
     def records(self, name: str, keys: tuple[str, ...], key) -> list:
         """The rows of :meth:`by` as plain named tuples (as ``itertuples`` gives them, without the
