@@ -146,6 +146,16 @@ def records(frame: pd.DataFrame, columns: list[str], names: list[str] | None = N
     return out
 
 
+def _columns(frame: pd.DataFrame) -> zip:
+    """(state_label, value, flag) of each row of a chart's frame, from column lists."""
+    return zip(*(frame[c].tolist() for c in ("state_label", "value", "flag")))
+
+
+def _js(text: str) -> str:
+    """A string literal for a Vega expression."""
+    return "'" + text.replace("\\", "\\\\").replace("'", "\\'") + "'"
+
+
 def _q(field_name: str, **extra) -> dict:
     return {"field": field_name, "type": "quantitative", **extra}
 

@@ -21,8 +21,8 @@ import pandas as pd
 
 from monitor.publish import formats as F
 from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, EraBands,
-                                      Style, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, _clean,
-                                      fmt_measure, records)
+                                      Style, _columns, _js, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis,
+                                      _clean, fmt_measure, records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -121,15 +121,15 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
     if len(few):
         desc += (f" On a row of their own, in grey: {len(few)} states with fewer than {min_districts} districts, "
                  "too few to flag.")
-    rows = [[r.state_label, fmt_measure(measure, r.value), r.flag] for r in f.sort_values("value", ascending=False).itertuples()]
+    rows = [[s, fmt_measure(measure, v), fl] for s, v, fl in _columns(f.sort_values("value", ascending=False))]
     return Chart(chart_id, f"{label} across states, {cycle}", desc, spec, ["state", label, "flag"], rows)
 
 
 def flagged_by_party(flagged: pd.DataFrame, style: Style) -> str:
     """``favouring Upland Party: Aa (A), Bb (B); favouring ...``: the flagged states of a chart,
     grouped by the party their flag favours (each party named once, not once per state)."""
-    groups = [(label, [r.state_label for r in flagged.itertuples() if r.flag == label])
-              for label in style.flag_domain()[:2]]
+    named = list(zip(flagged["state_label"].tolist(), flagged["flag"].tolist()))  # lists: no itertuples per chart
+    groups = [(label, [state for state, flag in named if flag == label]) for label in style.flag_domain()[:2]]
     return "; ".join(f"{label.replace('favours', 'favouring', 1)}: {', '.join(states)}" for label, states in groups if states)
 
 
@@ -419,14 +419,9 @@ def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style:
     if len(few):
         desc += (f" Below them, apart and in grey: {len(few)} states with fewer than {min_districts} districts, "
                  "never flagged (a small delegation lands at the extremes easily).")
-    rows = [[str(i), r.state_label, fmt_measure(measure, r.value), r.flag] for i, r in enumerate(ranked.itertuples(), 1)]
-    rows += [["", r.state_label, fmt_measure(measure, r.value), r.flag] for r in few.itertuples()]
+    rows = [[str(i), s, fmt_measure(measure, v), fl] for i, (s, v, fl) in enumerate(_columns(ranked), 1)]
+    rows += [["", s, fmt_measure(measure, v), fl] for s, v, fl in _columns(few)]
     return Chart(chart_id, f"{label}, {chamber_label}, {cycle}", desc, spec, ["rank", "state", label, "flag"], rows)
-
-
-def _js(text: str) -> str:
-    """A string literal for a Vega expression."""
-    return "'" + text.replace("\\", "\\\\").replace("'", "\\'") + "'"
 
 
 def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
