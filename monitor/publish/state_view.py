@@ -208,13 +208,12 @@ class StatePage:
     def _coverage(self, state: str, chamber: str) -> list[dict]:
         """Each cycle's coverage, newest first: what the measures cover, what is missing or left
         out and why, and whether the unit is below flags.min_coverage (never flagged)."""
-        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
-        gaps = self.by("coverage_gaps", ("state", "chamber"), (state, chamber))
+        cov = self._coverage_lists(state, chamber)
+        gaps = self.lists("coverage_gaps", ("state", "chamber"), (state, chamber), ("cycle", "district", "seats", "gap", "reason"))
         by_cycle: dict[int, list[tuple]] = {}  # each cycle's gaps, in their stored order
-        for cycle, *gap in zip(*(gaps[c].tolist() for c in ("cycle", "district", "seats", "gap", "reason"))):
+        for cycle, *gap in zip(*gaps.values()):
             by_cycle.setdefault(int(cycle), []).append(gap)
-        columns = list(cov.columns)
-        records = [dict(zip(columns, row)) for row in zip(*(cov[c].tolist() for c in columns))]
+        records = [dict(zip(cov, row)) for row in zip(*cov.values())]
         rows = []
         for r in sorted(records, key=lambda r: r["cycle"], reverse=True):
             cycle = int(r["cycle"])
@@ -229,12 +228,17 @@ class StatePage:
             })
         return rows
 
+    def _coverage_lists(self, state: str, chamber: str) -> dict[str, list]:
+        """The coverage rows of a state chamber, every column as a list."""
+        return self.lists("coverage", ("state", "chamber"), (state, chamber), tuple(self.d.coverage.columns))
+
     def _vote_headline(self, state: str, chamber: str) -> dict | None:
         """The latest cycle's two vote shares of party a, each named: as cast and after the policy."""
-        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
-        if cov.empty:
+        cov = self._coverage_lists(state, chamber)
+        if not cov["cycle"]:
             return None
-        r = cov.sort_values("cycle").iloc[-1]
+        latest = max(range(len(cov["cycle"])), key=cov["cycle"].__getitem__)
+        r = {c: values[latest] for c, values in cov.items()}
         return {"cycle": int(r["cycle"]), "as_cast": F.share(r["vote_share_as_cast"]),
                 "after_policy": F.share(r["vote_share_after_policy"]), "policy": self.d.policy,
                 "differ": F.share(r["vote_share_as_cast"]) != F.share(r["vote_share_after_policy"])}
