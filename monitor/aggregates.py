@@ -27,12 +27,13 @@ from store import bases as store_bases
 from store import history, tables, write_from_snapshot
 from store import measures as store_measures
 from store import reductions as stored_reductions
+from store.rows import changes, sql_rows
 
 PLAN_COLUMNS = ["state", "chamber", "plan_id", "first_cycle", "last_cycle", "drawn_by", "inferred"]
 
 
 #: the method version of the stored aggregates: bump it when what they hold changes
-METHOD_VERSION = "aggregates-1"
+METHOD_VERSION = "aggregates-2"  # 2: the digests hash the input rows column-wise
 #: the order of the marked points of the seats-votes curves (as :func:`seats_votes_curves` writes them)
 POINTS = {"observed": 0, "flipped vote": 1, "even vote": 2}
 TABLE_COLUMNS = stored.TABLES
@@ -54,17 +55,23 @@ def _inputs(db: sqlite_utils.Database) -> dict[str, pd.DataFrame]:
 def group_bases(inputs: dict[str, pd.DataFrame]) -> dict[str, str]:
     """``cycle|chamber`` -> what its aggregates are computed from: its units' content, policy and
     reduction method, their stored competitive and uncontested counts, flags, excess seats and
-    plan eras."""
-    digests: dict[str, "hashlib._Hash"] = {}
+    plan eras (every row of the inputs, hashed column-wise: :func:`pandas.util.hash_pandas_object`)."""
+    parts: dict[str, list] = {}
     for name in ("keys", "measures", "tails", "pool", "unit_plans"):
         frame = inputs[name]
+        if frame.empty:
+            continue
         cols = [c for c in frame.columns if c not in ("unit_id", "load_id")]
-        for row in frame.sort_values(UNIT_KEYS, kind="mergesort")[cols].itertuples(index=False):
-            key = f"{row.cycle}|{row.chamber}"
-            h = digests.setdefault(key, hashlib.sha256(METHOD_VERSION.encode()))
-            h.update(f"{name}|{'|'.join(map(str, row))}\n".encode())
+        frame = frame[cols].sort_values(["cycle", "chamber", *[c for c in cols if c not in ("cycle", "chamber")]],
+                                        kind="mergesort").reset_index(drop=True)
+        rows = pd.util.hash_pandas_object(frame.astype(object).where(frame.notna(), None), index=False).to_numpy()
+        key = frame["cycle"].astype(int).astype(str) + "|" + frame["chamber"].astype(str)
+        cut = np.flatnonzero(np.r_[True, key.to_numpy()[1:] != key.to_numpy()[:-1], True])
+        for start, end in zip(cut[:-1], cut[1:]):
+            parts.setdefault(key.iat[start], []).append(f"{name}:{end - start}:".encode() + rows[start:end].tobytes())
     live = _groups(inputs["keys"])
-    return {key: h.hexdigest() for key, h in digests.items() if key in live}
+    return {key: hashlib.sha256(METHOD_VERSION.encode() + b"".join(chunks)).hexdigest()
+            for key, chunks in parts.items() if key in live}
 
 
 def _groups(units: pd.DataFrame) -> set[str]:
@@ -114,7 +121,7 @@ def _latest(contests: pd.DataFrame, keys: pd.DataFrame) -> np.ndarray:
 def _merged(new: dict, old: dict, groups: set[str], keys: pd.DataFrame) -> dict[str, pd.DataFrame]:
     """The recomputed groups' rows with the other groups' stored rows, in a whole recompute's order."""
     live = _groups(keys)
-    latest = keys.groupby(["state", "chamber"])["cycle"].max()
+    latest = {pair: int(c) for pair, c in keys.groupby(["state", "chamber"])["cycle"].max().items()}
     redone_pairs = {(s, ch) for (s, ch), c in latest.items() if f"{c}|{ch}" in groups}
     out = {"unit_plans": new["unit_plans"], "national_drawers": new["national_drawers"]}
     for name, order in (("national_summary", ["cycle", "chamber"]),
@@ -127,7 +134,7 @@ def _merged(new: dict, old: dict, groups: set[str], keys: pd.DataFrame) -> dict[
     for name in ("swing_curves", "swing_points"):
         kept = old[name]
         pair = list(zip(kept["state"], kept["chamber"]))
-        current = [latest.get(p) == c and p not in redone_pairs for p, c in zip(pair, kept["cycle"].astype(int))]
+        current = [latest.get(p) == c and p not in redone_pairs for p, c in zip(pair, kept["cycle"].astype(int).tolist())]
         kept = kept[np.array(current, dtype=bool)]
         frame = pd.concat([kept[TABLE_COLUMNS[name]], new[name][TABLE_COLUMNS[name]]], ignore_index=True)
         if name == "swing_points":
@@ -148,34 +155,35 @@ def _stack(kept: pd.DataFrame, new: pd.DataFrame, order: list[str], columns: lis
 def refresh(db: sqlite_utils.Database, *, full: bool = False) -> dict[str, int]:
     """Recompute and store the aggregates of the (cycle, chamber) groups whose inputs changed
     (:func:`group_bases`; every group when ``full`` or when none was recorded), reading only
-    those groups' reductions (one consistent step); return the rows per table."""
+    those groups' reductions (one consistent step), and write the rows that changed (none when no
+    group changed); return the rows per table."""
     def prepare():
         inputs = _inputs(db)
         now = group_bases(inputs)
         known = {} if full else store_bases.read(db, "aggregates")
         todo = {g for g, b in now.items() if known.get(g) != b}
-        old = None if full or not known else {name: stored.read(db, name) for name in stored.TABLES}
-        made = frames(db, inputs=inputs) if old is None else frames(db, todo, old, inputs)
-        rows = {name: [tuple(_plain(v) for v in r) for r in frame[stored.TABLES[name]].itertuples(index=False)]
-                for name, frame in made.items()}
+        gone = [g for g in known if g not in now]
+        if known and not todo and not gone:
+            return stored.counts
+        old = {name: stored.read(db, name) for name in stored.TABLES}
+        made = frames(db, inputs=inputs) if full or not known else frames(db, todo, old, inputs)
+        changes = {name: _changes(name, old[name], frame) for name, frame in made.items()}
 
         def write(conn) -> dict[str, int]:
-            stored.replace_all(conn, rows)
-            store_bases.replace(conn, "aggregates", now if old is None else {g: now[g] for g in todo},
-                                every=old is None, drop=[g for g in known if g not in now])
-            return {name: len(r) for name, r in rows.items()}
+            stored.write_changes(conn, changes)
+            store_bases.replace(conn, "aggregates", {g: now[g] for g in todo}, every=full or not known, drop=gone)
+            return stored.counts(conn)
 
         return write
 
     return write_from_snapshot(db, prepare)
 
 
-def _plain(value):
-    """A numpy or pandas scalar as the Python value SQLite stores (NaN and None as NULL)."""
-    if value is None or value is pd.NA:
-        return None
-    if hasattr(value, "item"):
-        value = value.item()
-    if isinstance(value, float) and not np.isfinite(value):
-        return None
-    return value
+def _changes(name: str, old: pd.DataFrame, new: pd.DataFrame) -> tuple[list, list]:
+    """The keys to delete and rows to insert that turn the stored rows of table ``name`` into
+    ``new`` (keyed by their unit, or by their position in a whole recompute's order)."""
+    columns = stored.TABLES[name]
+    if name in stored.ORDERED:
+        return changes(sql_rows(old, columns), sql_rows(new, columns), 3)
+    return changes([(i, *r) for i, r in enumerate(sql_rows(old, columns))],
+                   [(i, *r) for i, r in enumerate(sql_rows(new, columns))], 1)

@@ -21,7 +21,6 @@ previous run stored.
 from __future__ import annotations
 
 import datetime as dt
-import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -33,9 +32,13 @@ from monitor.coverage import stored_coverage
 from monitor.inputs import UNIT_KEYS
 from monitor.staggered import Classes, base_chamber, is_whole
 from monitor.staggered import partial as staggered_partial
+from store import bases as store_bases
 from store import flags as store_flags
 from store import measures as store_measures
+from store import plans as store_plans
 from store import write_from_snapshot
+from store.rows import changes as row_changes
+from store.rows import sql_rows, sql_value
 
 # The national pool and the measures' registry (monitor.tails, monitor.events) are imported by the
 # steps that compute: `levelfield flags` only reads stored rows (flag_table) and starts without them.
@@ -79,49 +82,61 @@ def watch_list(t: pd.DataFrame, plans: pd.DataFrame, seats: pd.DataFrame, config
     """Plans on watch, from the judged tails rows and the unit -> plan assignment."""
     need_cycles, need_measures = config["flags.watch_cycles"], config["flags.watch_measures"]
     flagged = t[t["flagged"] == 1]
-    per = (flagged.groupby([*UNIT_KEYS, "direction"])["measure"]
-           .agg(lambda m: sorted(set(m))).reset_index())
-    per = per[per["measure"].map(len) >= need_measures]
-    per = per.merge(plans, on=UNIT_KEYS, how="left")
+    per: dict[tuple, set] = {}  # (cycle, state, chamber, direction) -> the measures flagging that way
+    for key in zip(flagged["cycle"].astype(int).tolist(), flagged["state"].tolist(), flagged["chamber"].tolist(),
+                   flagged["direction"].tolist(), flagged["measure"].tolist()):
+        per.setdefault(key[:4], set()).add(key[4])
+    plan_of = {(int(c), s, ch): (p, d, i) for c, s, ch, p, d, i in zip(
+        plans["cycle"], plans["state"], plans["chamber"], plans["plan_id"], plans["drawn_by"], plans["inferred"])}
     # no unit of the pool may have an expected seat count (no two-party votes anywhere): no column
-    has_excess = not seats.empty and "excess_seats" in seats.columns
-    per = per.merge(seats[[*UNIT_KEYS, "excess_seats"]], on=UNIT_KEYS, how="left") if has_excess else per.assign(excess_seats=np.nan)
-    # the plans with enough flagged cycles one way, found at once (most plans have none)
-    most = per.groupby(["state", "chamber", "plan_id", "direction"])["cycle"].nunique() if len(per) else pd.Series()
-    enough = {key[:3] for key, n in most.items() if n >= need_cycles}
-    rows = []
-    for (state, chamber, plan_id), group in per.groupby(["state", "chamber", "plan_id"], sort=True):
-        if (state, chamber, plan_id) not in enough:
+    excess = ({} if seats.empty or "excess_seats" not in seats.columns else
+              {(int(c), s, ch): x for c, s, ch, x in zip(seats["cycle"], seats["state"], seats["chamber"],
+                                                         seats["excess_seats"].to_numpy(float))})
+    by_plan: dict[tuple, dict[str, list]] = {}
+    for (cycle, state, chamber, direction), measures in per.items():
+        plan = plan_of.get((cycle, state, chamber))
+        if len(measures) < need_measures or plan is None or not isinstance(plan[0], str):
             continue
-        counts = group.groupby("direction")["cycle"].nunique()  # one direction has need_cycles (enough)
-        best = counts[counts == counts.max()]
-        if len(best) > 1:  # as many cycles each way: no agreement, not on watch
-            continue
-        favours = best.index[0]
-        agree = group[group["direction"] == favours].sort_values("cycle")
-        excess = agree["excess_seats"].to_numpy(float)
-        stake = float(np.nanmean(excess)) if np.isfinite(excess).any() else None
-        measures = sorted({m for ms in agree["measure"] for m in ms})
-        first = agree.iloc[0]
-        rows.append({
-            "state": state, "chamber": chamber, "plan_id": plan_id,
-            "drawn_by": first["drawn_by"], "inferred": int(first["inferred"]), "favours": favours,
-            "severity": round(abs(stake), 2) if stake is not None else 0.0,
-            "seats_at_stake": None if stake is None else round(stake, 2),  # as severity: one rounding
-            "concurring": int(agree["measure"].map(len).max()),
-            "cycles": " ".join(str(c) for c in agree["cycle"]),
-            "measures": " ".join(measures), "since": int(agree["cycle"].min()),
-        })
+        by_plan.setdefault((state, chamber, plan[0]), {}).setdefault(direction, []).append(
+            (cycle, sorted(measures), plan[1], plan[2], excess.get((cycle, state, chamber), np.nan)))
+    rows = [row for key in sorted(by_plan) if (row := _watch_entry(key, by_plan[key], need_cycles)) is not None]
     cols = ["state", "chamber", "plan_id", "drawn_by", "inferred", "favours", "severity", "seats_at_stake",
             "concurring", "cycles", "measures", "since"]
     out = pd.DataFrame(rows, columns=cols)
     return out.sort_values(["severity", "concurring", "state"], ascending=[False, False, True]).reset_index(drop=True)
 
 
+def _watch_entry(plan: tuple, ways: dict[str, list], need_cycles: int) -> dict | None:
+    """The watch entry of ``plan`` (state, chamber, plan_id) from its cycles flagged by enough
+    measures each way (``ways``: direction -> (cycle, measures, drawn_by, inferred, excess seats)),
+    or None when fewer than ``need_cycles`` cycles agree, or as many cycles go each way."""
+    counts = {d: len({e[0] for e in entries}) for d, entries in ways.items()}
+    most = max(counts.values())
+    best = [d for d, n in counts.items() if n == most]
+    if most < need_cycles or len(best) > 1:  # too few cycles, or as many each way: no agreement
+        return None
+    favours = best[0]
+    agree = sorted(ways[favours], key=lambda e: e[0])
+    excess = np.array([e[4] for e in agree], dtype=float)
+    stake = float(np.nanmean(excess)) if np.isfinite(excess).any() else None
+    state, chamber, plan_id = plan
+    return {
+        "state": state, "chamber": chamber, "plan_id": plan_id,
+        "drawn_by": agree[0][2], "inferred": int(agree[0][3]), "favours": favours,
+        "severity": round(abs(stake), 2) if stake is not None else 0.0,
+        "seats_at_stake": None if stake is None else round(stake, 2),  # as severity: one rounding
+        "concurring": max(len(e[1]) for e in agree),
+        "cycles": " ".join(str(e[0]) for e in agree),
+        "measures": " ".join(sorted({m for e in agree for m in e[1]})), "since": agree[0][0],
+    }
+
+
 def run_flags(db: sqlite_utils.Database, config: Config, *, full: bool = False,
               now: dt.datetime | None = None, progress=None) -> FlagsReport:
-    """Recompute the national tails of changed cycle/chamber groups, judge every unit, rebuild
-    the watch list, and record every flag that was raised or cleared.
+    """Redo the cycle/chamber groups whose inputs changed (every one when ``full``): redraw their
+    national tails where their pool changed, judge their units, update the robust z across cycles
+    of their chambers and the watch entries of their state chambers, write the rows that changed,
+    and record every flag that was raised or cleared.
 
     Reads, computation and the write are one consistent step (:func:`store.write_from_snapshot`):
     when another process commits meanwhile (a load, or a second recompute), the step runs again on
@@ -166,79 +181,163 @@ def partial_units(units: pd.DataFrame, config: Config) -> np.ndarray:
 
 
 def _flag_step(db: sqlite_utils.Database, config: Config, full: bool, stamp: str, progress=None):
-    """Read the store, compute tails, flags, watch list and events; return the writer."""
-    from monitor import events as E
+    """Read the store, redo the groups whose inputs changed (:mod:`monitor.flag_scope`): their
+    tails, flags, the robust z of their chambers and the watch list of their state chambers, and
+    the events; return the writer of what changed (nothing when no group changed)."""
+    from monitor import flag_scope
     from monitor.plans import assign_plans, write_inferred
-    from monitor.tails import P_FLAGGED, POOL_METHOD_VERSION, context_stats, judge, observed_values, stored_names
 
     report = FlagsReport()
     units = flag_units(db)
-    stored = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "reason"], stored_names())
-    observed, undefined, actual_seats = observed_values(stored, units)
-    loads = units.set_index("unit_id")["load_id"]
     plans, inferred = assign_plans(db, units)
-    old = {name: store_flags.read_all(db, name) for name in ("pool_seats", "tails", "watch")}
-    pvals = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "p_value", "reason"], sorted(P_FLAGGED.values()))
-    seats, tails = _pool_groups(db, units, (observed, undefined, actual_seats), old, store_flags.group_hashes(db),
-                                config, full, report, progress)
-    districts = units.set_index(UNIT_KEYS)["districts_eligible"]
     cover = stored_coverage(db).units
     coverage_share = pd.to_numeric(cover.set_index(UNIT_KEYS)["seat_coverage"], errors="coerce").astype(float)
-    partial = pd.Series(partial_units(units, config), index=pd.MultiIndex.from_frame(units[UNIT_KEYS]))
-    judged = context_stats(judge(tails, pvals, districts, config, coverage_share, partial))
-    judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
-    watch = watch_list(judged, plans, seats, config)
-    report.flags = int(judged["flagged"].sum())
-    report.on_watch = len(watch)
-
-    group_load = E.group_loads(units, loads)
-    events = E.unit_events(old["tails"], judged, group_load, stamp)
-    events += E.watch_events(old["watch"], watch, E.cycles_of_plans(plans), group_load, stamp)
-    report.events = [e["text"] for e in events]
+    partial = partial_units(units, config)
+    scope, pool = flag_scope.scope(units, plans, coverage_share, partial, config,
+                                   store_bases.read(db, flag_scope.STEP), store_flags.group_hashes(db), full)
+    report.groups_total = len(scope.groups)
+    inferred_changed = set(inferred) != store_plans.inferred(db)
+    if not scope.todo and not inferred_changed:
+        return lambda conn: _counted(conn, report)
+    changes = _redo(db, config, scope, pool, units, plans, (coverage_share, partial), stamp, report, progress)
 
     def write(conn) -> FlagsReport:
-        write_inferred(conn, inferred)
-        store_flags.replace_all(
-            conn,
-            seats=_sql_rows(seats, store_flags.SEAT_COLUMNS, POOL_METHOD_VERSION, stamp),
-            tails=_sql_rows(judged, store_flags.TAIL_COLUMNS, stamp),
-            watch_columns=list(watch.columns),
-            watch=_sql_rows(watch, list(watch.columns), stamp),
-            events=[(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
-                     e["direction"], e["why"], stamp, e["load_id"]) for e in events],
-        )
-        return report
+        if inferred_changed:
+            write_inferred(conn, inferred)
+        store_flags.write_changes(conn, changes)
+        store_bases.replace(conn, flag_scope.STEP, {g: scope.bases[g] for g in scope.todo if g in scope.bases},
+                            drop=[g for g in scope.todo if g not in scope.bases], every=full)
+        return _counted(conn, report)
 
     return write
 
 
-def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, old: dict, stored_hash: dict,
-                 config: Config, full: bool, report: FlagsReport, progress) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Expected seats and tails of every (cycle, chamber) group: recomputed where the group's inputs
-    changed (or ``full``), reading that group's stored reductions only; else taken over from what
-    the previous run stored."""
+def _counted(conn, report: FlagsReport) -> FlagsReport:
+    report.flags, report.on_watch = store_flags.counts(conn)
+    return report
+
+
+def _redo(db, config: Config, scope, pool: dict, units: pd.DataFrame, plans: pd.DataFrame, judged_by: tuple,
+          stamp: str, report: FlagsReport, progress) -> store_flags.FlagChanges:
+    """The changes of the groups ``scope.todo``: their pool rows (redrawn or as stored), tails
+    (judged, in context), the robust z across cycles of their chambers' other rows, the watch
+    entries of their state chambers, and the events."""
+    from monitor import events as E
+    from monitor.tails import P_FLAGGED, POOL_METHOD_VERSION, context_stats, judge, observed_values, stored_names
+
+    coverage_share, partial = judged_by
+    todo = scope.todo_groups
+    mine = units[_in_groups(units, todo)].reset_index(drop=True)
+    stored = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "reason"], stored_names(), groups=todo)
+    observed = observed_values(stored, mine)
+    old_seats = store_flags.read_groups(db, "pool_seats", todo)
+    old_tails = store_flags.read_groups(db, "tails", todo)
+    seats, tails = _pool_groups(db, mine, observed, (old_seats, old_tails), pool, scope, config, report, progress)
+    pvals = store_measures.read(db, [*UNIT_KEYS, "measure", "value", "p_value", "reason"],
+                                sorted(P_FLAGGED.values()), groups=todo)
+    keys = pd.MultiIndex.from_frame(units[UNIT_KEYS])
+    districts = pd.Series(units["districts_eligible"].to_numpy(), index=keys)
+    judged = judge(tails, pvals, districts, config, coverage_share, pd.Series(partial, index=keys))
+    chambers = sorted({ch for _, ch in todo})
+    others = store_flags.read_chambers(db, "tails", [*UNIT_KEYS, "measure", "value", "robust_z_all"], chambers)
+    others = others[~_in_groups(others, todo)].reset_index(drop=True)
+    judged = context_stats(judged, others)
+    z = _moved_z(judged, others, stamp)
+    judged = judged.merge(plans[[*UNIT_KEYS, "plan_id"]], on=UNIT_KEYS, how="left")
+
+    pairs = set(zip(mine["state"], mine["chamber"])) | set(zip(old_tails["state"], old_tails["chamber"]))
+    watch, old_watch = _watch_of(db, pairs, chambers, todo, judged, seats, plans, config)
+    group_load = E.group_loads(units, units.set_index("unit_id")["load_id"])
+    events = E.unit_events(old_tails, judged, group_load, stamp)
+    events += E.watch_events(old_watch, watch, E.cycles_of_plans(plans), group_load, stamp)
+    report.events = [e["text"] for e in events]
+    return store_flags.FlagChanges(
+        seats=_changed(old_seats, seats, [*store_flags.SEAT_COLUMNS, "method_version"], 3, stamp,
+                       method_version=POOL_METHOD_VERSION),
+        tails=_changed(old_tails, judged, store_flags.TAIL_COLUMNS, 4, stamp),
+        watch_columns=list(watch.columns),
+        watch=_changed(old_watch, watch, list(watch.columns), 3, stamp),
+        robust_z_all=z,
+        events=[(e["scope"], e["cycle"], e["state"], e["chamber"], e["plan_id"], e["measure"], e["event"],
+                 e["direction"], e["why"], stamp, e["load_id"]) for e in events],
+    )
+
+
+def _moved_z(judged: pd.DataFrame, others: pd.DataFrame, stamp: str) -> list[tuple]:
+    """(robust_z_all, stamp, key...) of the stored tails rows of other groups whose robust z across
+    cycles moved (``others`` holds the new ones after :func:`monitor.tails.context_stats`)."""
+    if others.empty:
+        return []
+    from monitor.tails import across_cycles
+
+    new = across_cycles(judged, others)[len(judged):]
+    old = others["robust_z_all"].to_numpy(float)
+    moved = ~((new == old) | (np.isnan(new) & np.isnan(old)))
+    rows = others[moved]
+    return [(sql_value(v), stamp, int(c), s, ch, m) for v, c, s, ch, m in zip(
+        new[moved], rows["cycle"], rows["state"], rows["chamber"], rows["measure"])]
+
+
+def _in_groups(frame: pd.DataFrame, groups) -> np.ndarray:
+    groups = set(groups)
+    return np.array([(int(c), ch) in groups for c, ch in zip(frame["cycle"], frame["chamber"])], dtype=bool)
+
+
+def _watch_of(db, pairs: set, chambers: list, todo, judged: pd.DataFrame, seats: pd.DataFrame,
+              plans: pd.DataFrame, config: Config) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The watch entries of the state chambers ``pairs`` (from the new rows of the groups ``todo``
+    and the stored rows of their other cycles), and those stored before."""
+    cols = [*UNIT_KEYS, "measure", "direction", "flagged"]
+    flagged = store_flags.read_chambers(db, "tails", cols, chambers, "flagged = 1")
+    flagged = pd.concat([flagged[~_in_groups(flagged, todo)], judged.loc[judged["flagged"] == 1, cols]],
+                        ignore_index=True)
+    excess = store_flags.read_chambers(db, "pool_seats", [*UNIT_KEYS, "excess_seats"], chambers)
+    excess = pd.concat([excess[~_in_groups(excess, todo)], seats.reindex(columns=[*UNIT_KEYS, "excess_seats"])],
+                       ignore_index=True)
+
+    def of_pairs(frame):
+        return frame[np.array([(s, ch) in pairs for s, ch in zip(frame["state"], frame["chamber"])], dtype=bool)]
+
+    watch = watch_list(of_pairs(flagged), of_pairs(plans), of_pairs(excess), config)
+    return watch, of_pairs(store_flags.read_all(db, "watch"))
+
+
+def _changed(old: pd.DataFrame, new: pd.DataFrame, columns: list[str], key_len: int, stamp: str,
+             **constant) -> tuple[list, list]:
+    """The keys to delete and rows to insert (each followed by ``stamp``) that turn the stored rows
+    ``old`` into ``new`` (``constant``: columns ``new`` lacks, with their one value)."""
+    new = new.assign(**constant) if constant else new
+    delete, insert = row_changes(sql_rows(old, columns), sql_rows(new, columns), key_len)
+    return delete, [(*r, stamp) for r in insert]
+
+
+def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, old: tuple, pool: dict, scope,
+                 config: Config, report: FlagsReport, progress) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Expected seats and tails of the groups of ``units``: redrawn where the group's pool digest
+    changed (``scope.redraw``), reading that group's stored reductions only; else the stored pool
+    rows and null bands (``old``: the stored pool_seats and tails rows of the groups)."""
+    from monitor.flag_scope import group_key
     from monitor.inputs import measure_inputs, measured_contests, reduced_contests
-    from monitor.tails import NULL_FLAGGED, group_hash, pool_group
+    from monitor.tails import pool_group, stored_group
 
     observed, undefined, actual_seats = stored
-    old_seats, old_tails = old["pool_seats"], old["tails"]
+    old_seats, old_tails = old
     seat_frames, tail_frames = [], []
     groups = units.groupby(["cycle", "chamber"], sort=True)
     for done, ((cycle, chamber), part) in enumerate(groups):
         if progress is not None:
             progress("flags", done, groups.ngroups, f"{cycle} {chamber}")
-        report.groups_total += 1
-        digest = group_hash(part, config)
-        if not full and stored_hash.get(f"{cycle}|{chamber}") == digest:
-            keep = (old_seats["cycle"] == cycle) & (old_seats["chamber"] == chamber)
-            seat_frames.append(old_seats[keep].drop(columns=["method_version", "computed_at"]))
-            keep = (old_tails["cycle"] == cycle) & (old_tails["chamber"] == chamber) & old_tails["measure"].isin(NULL_FLAGGED)
-            tail_frames.append(old_tails[keep][[*UNIT_KEYS, "measure", "value", "null_percentile", "null_low",
-                                                 "null_high", "null_dropped", "reason"]])
+        rows = part.index.to_numpy()
+        key = group_key(cycle, chamber)
+        if key not in scope.redraw:
+            mine = (old_seats["cycle"] == cycle) & (old_seats["chamber"] == chamber)
+            seat_frames.append(old_seats[mine].drop(columns=["method_version", "computed_at"]))
+            bands = old_tails[(old_tails["cycle"] == cycle) & (old_tails["chamber"] == chamber)]
+            tail_frames.append(stored_group(old_seats[mine], bands, part, {k: v[rows] for k, v in observed.items()},
+                                            {k: v[rows] for k, v in undefined.items()}))
             continue
         report.groups_computed += 1
         report.units_pooled += len(part)
-        rows = part.index.to_numpy()
         contests = (measured_contests(db, config, cycle=int(cycle), chamber=chamber)[0] if is_whole(chamber)
                     else reduced_contests(db, int(cycle), chamber=chamber))
         arrays = measure_inputs(contests, config, hashes=False)
@@ -251,38 +350,12 @@ def _pool_groups(db: sqlite_utils.Database, units: pd.DataFrame, stored: tuple, 
         seats, tails = pool_group(arrays, members, {k: v[pick] for k, v in observed.items()},
                                   {k: v[pick] for k, v in undefined.items()}, actual_seats[pick],
                                   config, int(cycle), chamber)
-        seats["inputs_hash"] = digest
-        seat_frames.append(seats.assign(_fresh=True))
+        seats["inputs_hash"] = pool[key]
+        seat_frames.append(seats)
         tail_frames.append(tails)
     seats = pd.concat(seat_frames, ignore_index=True) if seat_frames else pd.DataFrame(columns=[*UNIT_KEYS, "excess_seats"])
     tails = pd.concat(tail_frames, ignore_index=True) if tail_frames else pd.DataFrame(columns=[*UNIT_KEYS, "measure", "value"])
     return seats, tails
-
-
-def _sql_rows(frame: pd.DataFrame, columns, *extra) -> list[tuple]:
-    """The rows of ``frame`` as SQL values of ``columns`` (None for a column it lacks), each
-    followed by ``extra``; read column by column (every row of the tails is written each run)."""
-    cols = [[_sql(v) for v in frame[c].tolist()] if c in frame.columns else [None] * len(frame) for c in columns]
-    return [(*row, *extra) for row in zip(*cols)]
-
-
-def _sql(value):
-    kind = type(value)
-    if kind is str or kind is int:
-        return value
-    if kind is float:
-        return value if math.isfinite(value) else None
-    if value is None:
-        return None
-    if isinstance(value, float) and not np.isfinite(value):
-        return None
-    if hasattr(value, "item"):
-        value = value.item()
-        if isinstance(value, float) and not np.isfinite(value):
-            return None
-    if value is pd.NA or value is pd.NaT:
-        return None
-    return value
 
 
 

@@ -20,10 +20,10 @@ import pandas as pd
 from monitor import pool as P
 from monitor.config import Config
 from monitor.coverage import not_flagged_reason
+from monitor.flag_scope import POOL_METHOD_VERSION, group_hash  # noqa: F401 (the pool's digest, named here too)
 from monitor.inputs import UNIT_KEYS
 from monitor.measures import registry
 
-POOL_METHOD_VERSION = "pool-2"  # pool-2: observed values and null rules taken from the engine
 #: the measures the flags judge (the registry's ``flag`` declarations), by their flag name
 JUDGED = registry.flag_by_name()
 #: flag names judged against their national-pool null
@@ -75,17 +75,6 @@ def state_key(state: str) -> int:
     return int.from_bytes(hashlib.sha256(state.encode()).digest()[:4], "little")
 
 
-def group_hash(units: pd.DataFrame, config: Config) -> str:
-    """What a group's pool rows depend on: the pool and tail settings, each unit's inputs hash."""
-    h = hashlib.sha256(POOL_METHOD_VERSION.encode())
-    h.update(json.dumps({k: config[k] for k in (
-        "pool.tolerance", "pool.draws", "pool.exclude_own_state", "pool.seed", "flags.min_districts",
-        "flags.tail")}, sort_keys=True).encode())
-    for key, value in sorted(zip(units["state"], units["inputs_hash"])):
-        h.update(f"{key}\x1f{value}\n".encode())
-    return h.hexdigest()
-
-
 def pool_group(arrays, members: np.ndarray, observed: dict, undefined: dict, actual_seats: np.ndarray,
                config: Config, cycle: int, chamber: str) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Expected seats and null percentiles for the units ``members`` (indexes into arrays.units),
@@ -124,13 +113,38 @@ def pool_group(arrays, members: np.ndarray, observed: dict, undefined: dict, act
                       "no simulated delegation reached the state's vote share" if i is not None else
                       "no two-party votes")
             seats_rows.append({**unit, "reason": reason})
-            tail_rows += [{**base, "measure": name, "value": _f(observed[name][j]), "reason": undefined[name][j] or reason}
-                          for name in NULL_FLAGGED]
+            tail_rows += unit_tails(base, j, observed, undefined, None, reason)
             continue
         seats_rows.append({**unit, **_seat_columns(seats, i)})
-        tail_rows += [{**base, "measure": name, **_tail_columns(nulls[name], i, observed[name][j], undefined[name][j])}
-                      for name in NULL_FLAGGED]
+        bands = {name: {"null_percentile": nulls[name].percentile[i], "null_low": nulls[name].null_low[i],
+                        "null_high": nulls[name].null_high[i], "null_dropped": nulls[name].nan_fraction[i]}
+                 for name in NULL_FLAGGED}
+        tail_rows += unit_tails(base, j, observed, undefined, bands)
     return pd.DataFrame(seats_rows), pd.DataFrame(tail_rows)
+
+
+def stored_group(seats: pd.DataFrame, bands: pd.DataFrame, units: pd.DataFrame, observed: dict,
+                 undefined: dict) -> pd.DataFrame:
+    """The tails rows of a group whose pool was not redrawn, as :func:`pool_group` gives them: the
+    null bands its stored rows hold (``bands``: the stored tails rows; ``seats``: the stored
+    pool rows, whose reason says why a unit has no draws), the observed values and reasons of the
+    stored measures (``observed``, ``undefined``: of ``units``, in their order)."""
+    band_of = {(int(c), s, ch, m): (p, lo, hi, d) for c, s, ch, m, p, lo, hi, d in zip(
+        bands["cycle"], bands["state"], bands["chamber"], bands["measure"], bands["null_percentile"],
+        bands["null_low"], bands["null_high"], bands["null_dropped"])}
+    no_draws = {(int(c), s, ch): r for c, s, ch, r in zip(seats["cycle"], seats["state"], seats["chamber"],
+                                                           seats["reason"]) if isinstance(r, str) and r}
+    rows = []
+    for j, u in enumerate(units[UNIT_KEYS].itertuples(index=False)):
+        base = {"cycle": int(u.cycle), "state": u.state, "chamber": u.chamber}
+        key = (base["cycle"], u.state, u.chamber)
+        if key in no_draws:
+            rows += unit_tails(base, j, observed, undefined, None, no_draws[key])
+            continue
+        found = {name: band_of.get((*key, name), (np.nan,) * 4) for name in NULL_FLAGGED}
+        rows += unit_tails(base, j, observed, undefined, {name: dict(zip(
+            ("null_percentile", "null_low", "null_high", "null_dropped"), found[name])) for name in NULL_FLAGGED})
+    return pd.DataFrame(rows)
 
 
 def _seat_columns(seats: P.SeatsResult, i: int) -> dict:
@@ -139,16 +153,32 @@ def _seat_columns(seats: P.SeatsResult, i: int) -> dict:
             "draws": int(seats.n_accepted[i]), "ess": _f(seats.ess[i]), "mc_se": _f(seats.mc_se[i]), "reason": None}
 
 
-def _tail_columns(r: P.NullResult, i: int, value: float, undefined: str) -> dict:
+def unit_tails(base: dict, j: int, observed: dict, undefined: dict, bands: dict | None,
+               reason: str | None = None) -> list[dict]:
+    """One unit's tails rows (unit ``j`` of ``observed`` and ``undefined``): against its null
+    ``bands`` (measure -> null_percentile, null_low, null_high, null_dropped), or, where the unit
+    has no draws (``bands`` None), its values with ``reason`` where the measure has none."""
+    if bands is None:
+        return [{**base, "measure": name, "value": _f(observed[name][j]), "reason": undefined[name][j] or reason}
+                for name in NULL_FLAGGED]
+    return [{**base, "measure": name, **_tail_columns(bands[name], observed[name][j], undefined[name][j])}
+            for name in NULL_FLAGGED]
+
+
+def _tail_columns(band: dict, value: float, undefined: str) -> dict:
     """One unit's tails row of one measure: null where the stored measure is (with its reason)."""
-    band = {"null_low": _f(r.null_low[i]), "null_high": _f(r.null_high[i]), "null_dropped": _f(r.nan_fraction[i])}
+    cols = {"null_low": _f(band["null_low"]), "null_high": _f(band["null_high"]),
+            "null_dropped": _f(band["null_dropped"])}
     if undefined:
-        return {"value": None, **band, "reason": undefined}
-    return {"value": _f(value), "null_percentile": _f(r.percentile[i]), **band,
-            "reason": None if np.isfinite(r.percentile[i]) else "undefined on every simulated delegation"}
+        return {"value": None, **cols, "reason": undefined}
+    pct = float(band["null_percentile"])
+    return {"value": _f(value), "null_percentile": _f(pct), **cols,
+            "reason": None if np.isfinite(pct) else "undefined on every simulated delegation"}
 
 
 def _f(x) -> float | None:
+    if x is None:
+        return None
     x = float(x)
     return x if np.isfinite(x) else None
 
@@ -223,16 +253,33 @@ def judge(tails: pd.DataFrame, pvals: pd.DataFrame, districts: pd.Series, config
     return t
 
 
-def context_stats(t: pd.DataFrame) -> pd.DataFrame:
-    """Cross-state percentile and robust z within each cycle and chamber, and across all cycles."""
+def context_stats(t: pd.DataFrame, others: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Cross-state percentile and robust z within each cycle and chamber, and across all cycles.
+
+    ``others``: the stored rows (cycle, state, chamber, measure, value) of the other cycles of the
+    chambers of ``t`` (when ``t`` holds some groups only): they enter the robust z across cycles
+    (theirs: :func:`across_cycles`)."""
     t = t.copy()
     t["cross_percentile"] = np.nan
     t["robust_z"] = np.nan
-    t["robust_z_all"] = np.nan
     for measure, part in t.groupby("measure"):
         values = part["value"].to_numpy(float)
         group = (part["cycle"].astype(str) + "|" + part["chamber"]).to_numpy()
         t.loc[part.index, "cross_percentile"] = P.cross_state_percentile(values, group)
         t.loc[part.index, "robust_z"] = P.robust_z(values, group)
-        t.loc[part.index, "robust_z_all"] = P.robust_z(values, part["chamber"].to_numpy())
+    t["robust_z_all"] = across_cycles(t, others)[: len(t)]
     return t
+
+
+def across_cycles(t: pd.DataFrame, others: pd.DataFrame | None = None) -> np.ndarray:
+    """The robust z of each row's value among every cycle of its chamber (per measure): of the
+    rows of ``t``, then of ``others``."""
+    frame = t[["chamber", "measure", "value"]]
+    if others is not None and len(others):
+        frame = pd.concat([frame, others[["chamber", "measure", "value"]]], ignore_index=True)
+    else:
+        frame = frame.reset_index(drop=True)
+    out = np.full(len(frame), np.nan)
+    for _, part in frame.groupby("measure"):
+        out[part.index.to_numpy()] = P.robust_z(part["value"].to_numpy(float), part["chamber"].to_numpy())
+    return out

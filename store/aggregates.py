@@ -13,6 +13,7 @@ from typing import Mapping
 import pandas as pd
 import sqlite_utils
 
+from store.rows import apply
 from store.tables import read_table
 
 #: table -> its columns (besides ``position``), in this order
@@ -29,20 +30,25 @@ TABLES: dict[str, list[str]] = {
     "swing_points": ["state", "chamber", "cycle", "point", "vote", "seat_share", "seats", "districts"],
     "seats_votes": ["cycle", "state", "chamber", "vote_share", "seat_share"],
 }
-_ORDERED = {"unit_plans": "cycle, state, chamber", "seats_votes": "cycle, state, chamber"}
+#: the tables keyed by unit (cycle, state, chamber); the others by ``position``
+ORDERED = {"unit_plans": "cycle, state, chamber", "seats_votes": "cycle, state, chamber"}
 
 
-def replace_all(conn: sqlite3.Connection, rows: Mapping[str, list[tuple]]) -> None:
-    """Replace every table of TABLES by ``rows[table]`` (tuples in its column order; the tables with
-    a ``position`` get it from the tuples' order)."""
-    for table, columns in TABLES.items():
-        conn.execute(f"DELETE FROM {table}")
-        ordered = table in _ORDERED
-        cols = columns if ordered else ["position", *columns]
-        values = rows[table] if ordered else [(i, *r) for i, r in enumerate(rows[table])]
-        conn.executemany(f"INSERT INTO {table} ({', '.join(cols)}) VALUES ({', '.join('?' for _ in cols)})", values)
+def write_changes(conn: sqlite3.Connection, changes: Mapping[str, tuple[list, list]]) -> None:
+    """Per table of TABLES, delete the rows under the keys and insert the rows of ``changes[table]``
+    (:func:`store.rows.changes`: keyed by (cycle, state, chamber) for the tables in ORDERED, else
+    by position, which leads each tuple); the rows of a table it does not name stay as stored."""
+    for table, (delete, insert) in changes.items():
+        ordered = table in ORDERED
+        apply(conn, table, ["cycle", "state", "chamber"] if ordered else ["position"],
+              TABLES[table] if ordered else ["position", *TABLES[table]], delete, insert)
+
+
+def counts(conn) -> dict[str, int]:
+    """The rows of every table of TABLES."""
+    return {table: conn.execute(f"SELECT COUNT(*) FROM {table}").fetchone()[0] for table in TABLES}
 
 
 def read(db: sqlite_utils.Database, table: str) -> pd.DataFrame:
     """A table of TABLES in the order it was written (empty, with its columns, on an older store)."""
-    return read_table(db, table, TABLES[table], _ORDERED.get(table, "position"))
+    return read_table(db, table, TABLES[table], ORDERED.get(table, "position"))

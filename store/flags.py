@@ -7,10 +7,13 @@ was stored before), by ``levelfield flags`` and by the publisher.
 from __future__ import annotations
 
 import sqlite3
+from dataclasses import dataclass, field
 from typing import Sequence
 
 import pandas as pd
 import sqlite_utils
+
+from store.rows import apply, group_filter
 
 SEAT_COLUMNS = ["cycle", "state", "chamber", "districts", "vote_share", "seats_a", "expected_seats", "low",
                 "high", "percentile", "excess_seats", "draws", "ess", "mc_se", "reason", "inputs_hash"]
@@ -36,23 +39,62 @@ def read_all(db: sqlite_utils.Database, table: str) -> pd.DataFrame:
     return pd.read_sql_query(f"SELECT * FROM {table}", db.conn)
 
 
+def read_groups(db: sqlite_utils.Database, table: str, groups, columns: Sequence[str] | None = None) -> pd.DataFrame:
+    """``columns`` (every one when None) of the ``pool_seats`` or ``tails`` rows of the (cycle,
+    chamber) ``groups``."""
+    assert table in ("pool_seats", "tails"), table
+    where, params = group_filter(groups)
+    return pd.read_sql_query(f"SELECT {', '.join(columns) if columns else '*'} FROM {table} WHERE {where}",
+                             db.conn, params=params)
+
+
+def read_chambers(db: sqlite_utils.Database, table: str, columns: Sequence[str], chambers,
+                  where: str = "") -> pd.DataFrame:
+    """``columns`` of the rows of ``table`` (``pool_seats``, ``tails`` or ``watch``) of the ``chambers``
+    (and ``where``)."""
+    assert table in ("pool_seats", "tails", "watch"), table
+    chambers = sorted(chambers)
+    marks = ", ".join("?" for _ in chambers)
+    return pd.read_sql_query(f"SELECT {', '.join(columns)} FROM {table} WHERE chamber IN ({marks})"
+                             + (f" AND {where}" if where else ""), db.conn, params=chambers)
+
+
+def counts(conn) -> tuple[int, int]:
+    """The flagged tails rows and the plans on watch."""
+    flagged = conn.execute("SELECT COUNT(*) FROM tails WHERE flagged = 1").fetchone()[0]
+    return flagged, conn.execute("SELECT COUNT(*) FROM watch").fetchone()[0]
+
+
 def _insert(conn: sqlite3.Connection, table: str, columns: Sequence[str], rows: Sequence[tuple]) -> None:
     conn.executemany(f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({', '.join('?' for _ in columns)})",
                      rows)
 
 
-def replace_all(conn: sqlite3.Connection, *, seats: Sequence[tuple], tails: Sequence[tuple],
-                watch_columns: Sequence[str], watch: Sequence[tuple], events: Sequence[tuple]) -> None:
-    """Replace ``pool_seats`` (rows in SEAT_COLUMNS order + method_version, computed_at), ``tails``
-    (TAIL_COLUMNS + computed_at) and ``watch`` (``watch_columns`` + computed_at); append ``events``
-    (EVENT_COLUMNS) to ``flag_events``."""
-    conn.execute("DELETE FROM pool_seats")
-    _insert(conn, "pool_seats", [*SEAT_COLUMNS, "method_version", "computed_at"], seats)
-    conn.execute("DELETE FROM tails")
-    _insert(conn, "tails", [*TAIL_COLUMNS, "computed_at"], tails)
-    conn.execute("DELETE FROM watch")
-    _insert(conn, "watch", [*watch_columns, "computed_at"], watch)
-    _insert(conn, "flag_events", EVENT_COLUMNS, events)
+@dataclass
+class FlagChanges:
+    """What a flags run writes: per table the keys to delete and the rows to insert
+    (:func:`store.rows.changes`; ``pool_seats`` rows in SEAT_COLUMNS order + method_version,
+    computed_at; ``tails`` in TAIL_COLUMNS + computed_at; ``watch`` in ``watch_columns`` +
+    computed_at), the new ``robust_z_all`` of tails rows otherwise unchanged (value, computed_at
+    and the key), and the ``events`` to append (EVENT_COLUMNS)."""
+
+    seats: tuple[list, list] = field(default_factory=lambda: ([], []))
+    tails: tuple[list, list] = field(default_factory=lambda: ([], []))
+    watch_columns: Sequence[str] = ()
+    watch: tuple[list, list] = field(default_factory=lambda: ([], []))
+    robust_z_all: list[tuple] = field(default_factory=list)
+    events: list[tuple] = field(default_factory=list)
+
+
+def write_changes(conn: sqlite3.Connection, changes: FlagChanges) -> None:
+    """Write a flags run's changes (inside the caller's transaction): unchanged rows stay as stored."""
+    apply(conn, "pool_seats", ["cycle", "state", "chamber"], [*SEAT_COLUMNS, "method_version", "computed_at"],
+          *changes.seats)
+    apply(conn, "tails", ["cycle", "state", "chamber", "measure"], [*TAIL_COLUMNS, "computed_at"], *changes.tails)
+    conn.executemany("UPDATE tails SET robust_z_all = ?, computed_at = ? "
+                     "WHERE cycle = ? AND state = ? AND chamber = ? AND measure = ?", changes.robust_z_all)
+    apply(conn, "watch", ["state", "chamber", "plan_id"], [*changes.watch_columns, "computed_at"], *changes.watch)
+    _insert(conn, "flag_events", EVENT_COLUMNS, changes.events)
 
 
 # levelfield flags: the three views --------------------------------------------------------------

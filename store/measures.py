@@ -8,6 +8,8 @@ from typing import Iterable, Sequence
 import pandas as pd
 import sqlite_utils
 
+from store.rows import group_filter
+
 UnitKey = tuple[int, str, str]
 
 #: The columns a measure row is written with, in this order.
@@ -34,12 +36,19 @@ def replace_units(conn: sqlite3.Connection, keys: Iterable[UnitKey], rows: Seque
         f"INSERT INTO measures ({', '.join(ROW_COLUMNS)}) VALUES ({', '.join('?' for _ in ROW_COLUMNS)})", rows)
 
 
-def read(db: sqlite_utils.Database, columns: Sequence[str], measures: Sequence[str] | None = None) -> pd.DataFrame:
-    """``columns`` of the stored rows (of ``measures`` only, when given), sorted by unit and measure."""
-    where, params = "", []
+def read(db: sqlite_utils.Database, columns: Sequence[str], measures: Sequence[str] | None = None,
+         groups=None) -> pd.DataFrame:
+    """``columns`` of the stored rows (of ``measures`` only, when given; of the (cycle, chamber)
+    ``groups`` only, when given), sorted by unit and measure."""
+    clauses, params = [], []
     if measures is not None:
-        where = f"WHERE measure IN ({', '.join('?' for _ in measures)}) "
-        params = list(measures)
+        clauses.append(f"measure IN ({', '.join('?' for _ in measures)})")
+        params += list(measures)
+    if groups is not None:
+        where, more = group_filter(groups)
+        clauses.append(where)
+        params += more
+    where = f"WHERE {' AND '.join(clauses)} " if clauses else ""
     return pd.read_sql_query(
         f"SELECT {', '.join(columns)} FROM measures {where}ORDER BY cycle, state, chamber, measure",
         db.conn, params=params)

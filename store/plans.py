@@ -26,6 +26,12 @@ def loaded(db: sqlite_utils.Database) -> pd.DataFrame:
         "SELECT state, chamber, plan_id, first_cycle, last_cycle, drawn_by FROM plans WHERE inferred = 0", db.conn)
 
 
+def inferred(db: sqlite_utils.Database) -> set[tuple]:
+    """(state, chamber, plan_id, first_cycle, last_cycle) of every inferred plan."""
+    return {tuple(r) for r in db.execute(
+        "SELECT state, chamber, plan_id, first_cycle, last_cycle FROM plans WHERE inferred = 1")}
+
+
 def replace_inferred(conn: sqlite3.Connection, rows: Sequence[tuple], note: str) -> None:
     """Replace every inferred plan by ``rows`` (state, chamber, plan_id, first_cycle, last_cycle),
     drawn by ``other``. Loaded plans are never touched: only ``inferred = 1`` rows are deleted and

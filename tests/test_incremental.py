@@ -177,3 +177,73 @@ def test_staggered_chambers_follow_the_change_too(tmp_path):
     assert _files(tmp_path / "public") == _files(full_dir)
     again = pipeline.recompute(db, config)
     assert again.measures_computed == 0 and again.groups_computed == 0
+
+
+def _flag_rows(db) -> dict[str, list[tuple]]:
+    """Every row of the flags' tables but when it was computed, in key order (Python values as
+    SQLite returns them: floats compare bit for bit)."""
+    from store.flags import SEAT_COLUMNS, TAIL_COLUMNS, WATCH_VIEW_COLUMNS
+
+    return {"pool_seats": db.execute(f"SELECT {', '.join(SEAT_COLUMNS)}, method_version FROM pool_seats "
+                                     "ORDER BY cycle, state, chamber").fetchall(),
+            "tails": db.execute(f"SELECT {', '.join(TAIL_COLUMNS)} FROM tails "
+                                "ORDER BY cycle, state, chamber, measure").fetchall(),
+            "watch": db.execute(f"SELECT {', '.join(WATCH_VIEW_COLUMNS)} FROM watch "
+                                "ORDER BY state, chamber, plan_id").fetchall()}
+
+
+def test_a_changed_groups_incremental_flags_equal_flags_from_scratch(tmp_path):
+    """After a correction, the flags step redoes the one (cycle, chamber) group that changed and
+    leaves the other groups' rows as stored (their when-computed included), yet every row of
+    pool_seats, tails and watch equals, value for value, a flags run from scratch on a copy of the
+    same store (its flag tables and their bases emptied first). The reference is the project's own
+    full run; the data is the benchmark's invented federation."""
+    import datetime as dt
+    import sqlite3
+
+    import store
+    from monitor.flags import run_flags
+
+    data = tmp_path / "data"
+    summary = synthetic.generate(data, states=3, cycles=2, new_cycles=1)
+    ws = Workspace(tmp_path / "ws")
+    ws.ensure()
+    (ws.root / "levelfield.toml").write_text((data / "levelfield.toml").read_text(), encoding="utf-8")
+    db, config = ws.open_store(), ws.config()
+    files = [Path(p) for p in summary["files"]]
+    for path in files:
+        load_file(db, path, config)
+    pipeline.prepare(db, config)
+    pipeline.recompute(db, config)
+    path, state, chamber = scenarios.corrected_file(files[1], tmp_path / "fix.csv", chamber="state_lower")
+    load_file(db, path, config)
+    pipeline.prepare(db, config)
+    from monitor.compute import compute
+
+    compute(db, config)
+    later = dt.datetime(2031, 1, 1, tzinfo=dt.timezone.utc)
+    report = run_flags(db, config, now=later)
+    assert report.groups_computed == 1
+    stamp = later.isoformat(timespec="seconds")
+    cycle = db.execute("SELECT MAX(cycle) FROM units WHERE superseded_by IS NULL AND load_id = "
+                       "(SELECT MAX(load_id) FROM units)").fetchone()[0]
+    redone = db.execute("SELECT DISTINCT cycle, chamber FROM pool_seats WHERE computed_at = ?", [stamp]).fetchall()
+    assert redone == [(cycle, chamber)]  # the other groups' expected seats were not rewritten
+    kept = db.execute("SELECT COUNT(*) FROM tails WHERE computed_at <> ?", [stamp]).fetchone()[0]
+    assert kept > 0
+    incremental = _flag_rows(db)
+
+    scratch_path = tmp_path / "scratch.sqlite"
+    target = sqlite3.connect(scratch_path)
+    db.conn.backup(target)
+    target.close()
+    scratch = store.connect(scratch_path)
+    for table in ("pool_seats", "tails", "watch"):
+        scratch.execute(f"DELETE FROM {table}")
+    scratch.execute("DELETE FROM bases WHERE step = 'flags'")
+    scratch.conn.commit()
+    run_flags(scratch, config, full=True, now=later)
+    fresh = _flag_rows(scratch)
+    for table, rows in fresh.items():
+        assert rows, table
+        assert incremental[table] == rows, table

@@ -34,7 +34,8 @@ from monitor.pool import (
     robust_z,
     simulate_delegations,
 )
-from monitor.pool.sampler import _inverse_cdf, guide_table
+from monitor.pool.proposal import LAST_FLOOR
+from monitor.pool.sampler import LAST_MAX_N, _inverse_cdf, guide_table
 from monitor.pool.seats import _weighted_midrank, _weighted_quantile
 
 Z_MAX = 4.0
@@ -142,6 +143,23 @@ def test_seat_law_matches_rejection_sampling(small_pool, V, tol):
     assert abs(r.expected_seats[0] - k_rej.mean()) < Z_MAX * se_mean
 
 
+def test_large_delegation_matches_rejection_sampling(small_pool):
+    # a delegation of LAST_MAX_N districts or more draws them all from the tilted pool (no last
+    # district within reach): its seat law against plain rejection, the same 4-SE rule
+    N, V, tol = LAST_MAX_N + 5, 0.49, 0.005
+    a, b = small_pool.votes_a, small_pool.votes_b
+    k_rej, _ = rejection_seats(a, b, N, V, tol, draws=400_000, seed=13, chunk=50_000)
+    assert k_rej.size > 20_000
+    d = simulate_delegations(small_pool, [-1], [N], [V], rng=14, tol=tol, accepted=20_000)
+    r = expected_seats(d, [0.0])
+    se_mean = np.hypot(r.mc_se[0], k_rej.std() / np.sqrt(k_rej.size))
+    assert abs(r.expected_seats[0] - k_rej.mean()) < Z_MAX * se_mean
+    for k in np.unique(k_rej)[np.bincount(np.searchsorted(np.unique(k_rej), k_rej)) >= 200]:  # seat counts seen 200+ times
+        p_rej = np.mean(k_rej == k)
+        p_is, se_is = weighted_share(d, 0, d.seats == k)
+        assert abs(p_is - p_rej) < Z_MAX * np.hypot(se_is, np.sqrt(p_rej * (1 - p_rej) / k_rej.size))
+
+
 def test_seat_law_matches_exact_enumeration_far_from_mean():
     # integer votes so the uniform sampler's law can be enumerated exactly (15^5 ordered tuples)
     g = np.random.default_rng(21)
@@ -157,6 +175,46 @@ def test_seat_law_matches_exact_enumeration_far_from_mean():
         p_is, se_is = weighted_share(d, 0, 2 * d.seats == k2)
         assert abs(p_is - p) < Z_MAX * max(se_is, np.sqrt(p * (1 - p) / d.ess[0]))
     assert set(np.unique(2 * d.seats).astype(int)) <= set(law)
+
+
+@pytest.mark.parametrize("N, V", [(1, 0.505), (2, 0.47), (3, 0.47), (3, 0.62), (4, 0.38)])
+def test_proposal_and_weights_exact_by_enumeration(N, V):
+    # The exact expectation of the weighted estimator, by enumerating every proposal (every
+    # district before the last, every last district of its window S, the rejection control's
+    # keep probability) with the sampler's own window, mass, floor c and log-weight, equals the
+    # conditional expectation under the uniform sampler, by enumerating every ordered N-tuple in A
+    # (the definition the sampler must reproduce). Checked for seats and for the count of one
+    # district in the delegation; and S contains every last district completing a tuple into A.
+    import itertools
+
+    from monitor.pool.sampler import _LastDistrict, _tilted_proposal, log_weight
+
+    g = np.random.default_rng(31)
+    n = g.integers(20, 61, 9).astype(float)
+    a = np.round(np.clip(g.normal(0.47, 0.15, 9), 0.05, 0.95) * n)
+    tol, M = 0.01, 9
+    seat = seat_of(a, n - a)
+    t, lam, y, q = _tilted_proposal(a, n, a / n, V, tol, tilt=N > 1)
+    last = _LastDistrict.of(np.arange(M), y, q, n, V, t, tol, N)
+    exact = np.zeros(3)  # sum over J in A of p(J) * (1, seats, count of district 0)
+    estimator = np.zeros(3)  # sum over proposals of P(proposal, kept) * w(J) * (1, seats, count of 0)
+    for before in itertools.product(range(M), repeat=N - 1):
+        before = list(before)
+        sa, sn = a[before].sum(), n[before].sum()
+        lo, hi = last.window(np.array([sa]), np.array([sn]))
+        S = last.district[lo[0]:hi[0]]
+        m = last.cum[hi[0]] - last.cum[lo[0]]
+        for j in range(M):
+            J = before + [j]
+            f = np.array([1.0, seat[J].sum(), J.count(0)])
+            if abs((sa + a[j]) / (sn + n[j]) - V) > tol:
+                continue
+            exact += f / M**N
+            assert j in S  # S holds every completion into A
+            kept = np.prod(q[before]) * q[j] / m * (min(1.0, m / last.floor) if last.floor > 0 else 1.0)
+            estimator += kept * np.exp(log_weight(lam, y[J].sum(), np.array([m]), last.floor)[0]) * f
+    assert exact[0] > 0
+    np.testing.assert_allclose(estimator[1:] / estimator[0], exact[1:] / exact[0], rtol=1e-11, atol=1e-14)
 
 
 def test_ess_per_draw_beats_rejection_acceptance_far_from_mean():
@@ -289,47 +347,95 @@ def test_seed_reproducible_and_distinct(small_pool):
     assert not np.array_equal(d6.district[rows == 0], d6.district[rows == 1])
 
 
+def last_window(a, n, y, V, T, tol, sa, sn):
+    """Which of the districts (votes a, turnout n, scaled y) lie in the window S of a last district
+    after districts of votes ``sa`` and turnout ``sn``: the y-interval derived in the sampler's module
+    docstring, with the largest turnout, widened by 1e-9 of its scale (written out here again)."""
+    P, reach = sa - T * sn, sn + n.max()
+    lo = (-P + (V - T - tol) * reach) / n.mean()
+    hi = (-P + (V - T + tol) * reach) / n.mean()
+    eps = 1e-9 * (1 + abs(lo) + abs(hi))
+    return (y >= lo - eps) & (y <= hi + eps)
+
+
 def inverse_cdf_reference(pool, state, N, V, tol, tilt, centre, seed_seq, key, rows):
-    """A unit's kept draws written from the definitions alone: q_j proportional to
-    exp(lam y_j) over the districts of the other states, y_j = (a_j - T n_j) / mean(n) (module
-    docstring of monitor.pool.sampler; lam and T as the sampler reports them), indexes by
-    numpy's own weighted choice (searchsorted of the CDF, side="right") on the uniforms of the
-    unit's stream (child of the seed sequence with spawn key ``key``), rows kept in the window."""
+    """A unit's kept draws and their weights written from the definitions (module docstring of
+    monitor.pool.sampler; lam and T as the sampler reports them), one row at a time: q_j
+    proportional to exp(lam y_j) over the districts of the other states, y_j = (a_j - T n_j) /
+    mean(n); the unit's stream (child of the seed sequence with spawn key ``key``) has two children,
+    each read row after row: N - 1 uniforms of the first give the districts before the last by
+    numpy's weighted choice (searchsorted of the CDF, side="right"), two of the second the last
+    district by the same on q restricted to the window S (districts sorted by y) and the rejection
+    control (kept when u * c < m, c = LAST_FLOOR times the mass of S after N - 1 districts
+    of mean turnout at exactly the centre). The weight is the definition p(J) / (proposal
+    probability of J * probability of keeping it), normalised."""
     eligible = np.flatnonzero(pool.state != state)
     a, n = pool.votes_a[eligible], pool.turnout[eligible]
-    z = tilt * ((a - centre * n) / n.mean())
+    y = (a - centre * n) / n.mean()
+    z = tilt * y
     q = np.exp(z - z.max())
     q /= q.sum()
     cdf = np.cumsum(q)
     cdf /= cdf[-1]
+    by_y = np.argsort(y, kind="stable")
+    before = (N - 1) * n.mean()
+    c = LAST_FLOOR * q[by_y][last_window(a, n, y[by_y], V, centre, tol, centre * before, before)].sum()
     stream = np.random.default_rng(np.random.SeedSequence(seed_seq.entropy, spawn_key=(*seed_seq.spawn_key, key)))
-    j = eligible[np.searchsorted(cdf, stream.random((rows, N)), side="right")]
-    share = pool.votes_a[j].sum(axis=1) / pool.turnout[j].sum(axis=1)
-    ok = np.flatnonzero(np.abs(share - V) <= tol)
-    return j[ok], share[ok], ok
+    if N >= LAST_MAX_N:  # a large delegation: all N districts from the tilted pool, N uniforms a row
+        j = eligible[np.searchsorted(cdf, stream.random((rows, N)), side="right")]
+        share = pool.votes_a[j].sum(axis=1) / pool.turnout[j].sum(axis=1)
+        ok = np.flatnonzero(np.abs(share - V) <= tol)
+        w = np.exp(-tilt * ((pool.votes_a[j[ok]] - centre * pool.turnout[j[ok]]) / n.mean()).sum(axis=1))
+        return j[ok], w / w.sum(), share[ok], ok
+    first, second = stream.spawn(2)
+    u, u_last = first.random((rows, N - 1)), second.random((rows, 2))
+    kept, weights, shares, ok = [], [], [], []
+    for r in range(rows):
+        j = list(np.searchsorted(cdf, u[r], side="right"))
+        sa, sn = a[j].sum(), n[j].sum()
+        S = by_y[last_window(a, n, y[by_y], V, centre, tol, sa, sn)]
+        m = q[S].sum()
+        if m == 0 or u_last[r, 1] * c >= m:
+            continue
+        last = S[min(np.searchsorted(np.cumsum(q[S]) / m, u_last[r, 0], side="right"), S.size - 1)]
+        J = j + [last]
+        share = a[J].sum() / n[J].sum()
+        if abs(share - V) <= tol:
+            proposal = np.prod(q[J]) / m * min(1.0, m / c)
+            kept.append(eligible[J])
+            weights.append((1 / eligible.size) ** N / proposal)
+            shares.append(share)
+            ok.append(r)
+    w = np.array(weights)
+    return np.array(kept), w / w.sum(), np.array(shares), np.array(ok)
 
 
 def test_draws_are_the_inverse_cdf_of_the_units_own_stream(small_pool, monkeypatch):
-    # the sampler's kept draws equal, index for index, the reference's, whatever the size of the
-    # batches it draws in (so they do not depend on how the work is cut, nor does the count of
-    # proposals made: the rows up to the last kept one)
+    # the sampler's kept draws and weights equal the reference's (written from the definitions,
+    # weights from p(J) / proposal probability), whatever the size of the batches it draws in (so
+    # they do not depend on how the work is cut, nor does the count of proposals made: the rows up
+    # to the last kept one); a delegation of one district (no tilt), of two, and one large enough
+    # to draw every district from the tilted pool (LAST_MAX_N) included
     import monitor.pool.sampler as sampler_module
 
     seed = np.random.SeedSequence(17)
-    units, Ns, V = np.array([2, 5]), np.array([3, 7]), np.array([0.44, 0.55])
-    d = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=700, unit_key=[11, 12])
+    units, Ns, V = np.array([2, 5, 6, 1, 3]), np.array([3, 7, 1, 2, LAST_MAX_N]), np.array([0.44, 0.55, 0.5, 0.6, 0.5])
+    keys = [11, 12, 13, 14, 15]
+    d = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=300, unit_key=keys)
     monkeypatch.setattr(sampler_module, "_DRAW_CELLS", 50)  # batches of a few rows
-    small = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=700, unit_key=[11, 12])
+    small = simulate_delegations(small_pool, units, Ns, V, rng=seed, accepted=300, unit_key=keys)
     for f in ("district", "weight", "share", "seats", "n_proposed", "n_accepted", "ess"):
         np.testing.assert_array_equal(getattr(d, f), getattr(small, f))
+    assert d.tilt[2] == 0.0  # one district: nothing before the last to tilt
     rows = d.draw_unit[d.row_draw]
-    for u in range(2):
-        j, share, ok = inverse_cdf_reference(small_pool, units[u], Ns[u], V[u], d.tol, d.tilt[u], d.tilt_share[u],
-                                             seed, [11, 12][u], rows=40_000)
-        assert ok.size >= 700
-        np.testing.assert_array_equal(d.district[rows == u], j[:700].ravel())
-        np.testing.assert_array_equal(d.share[d.draw_unit == u], share[:700])
-        assert d.n_proposed[u] == ok[699] + 1
+    for u in range(5):
+        j, w, share, ok = inverse_cdf_reference(small_pool, units[u], Ns[u], V[u], d.tol, d.tilt[u],
+                                                d.tilt_share[u], seed, keys[u], rows=3000)
+        assert ok.size >= 300
+        np.testing.assert_array_equal(d.district[rows == u], j[:300].ravel())
+        np.testing.assert_array_equal(d.share[d.draw_unit == u], share[:300])
+        np.testing.assert_allclose(d.weight[d.draw_unit == u], w[:300] / w[:300].sum(), rtol=1e-9)
+        assert d.n_proposed[u] == ok[299] + 1
 
 
 def test_batched_comparison_equals_one_pass(small_pool):

@@ -18,7 +18,9 @@ The package, one module per step:
 
 =============  ===============================================================================
 ``pool``       :class:`NationalPool`: the districts of one cycle and chamber nationwide
-``sampler``    :func:`simulate_delegations`: weighted simulated delegations (exponential tilting)
+``sampler``    :func:`simulate_delegations`: weighted simulated delegations (exponential tilting,
+               the last district within reach)
+``proposal``   the sampler's proposals: tilt, guide-table draws, the last district, the weights
 ``seats``      :func:`expected_seats`: expected seats, their interval and the actual seats' percentile
 ``nulls``      :func:`null_distributions`: each measure's percentile within its null, and
                :func:`compare_with_pool`, both for many units in memory-bounded batches
