@@ -115,6 +115,11 @@ class Style:
 
 # --- spec helpers -------------------------------------------------------------------------------
 def _clean(value):
+    kind = type(value)  # the plain Python types first: most values of every chart are these
+    if kind is float:
+        return round(value, 6) if value - value == 0 else None  # NaN and infinities -> null
+    if kind is int or kind is str:
+        return value
     if value is None or value is pd.NA:
         return None
     if isinstance(value, (np.integer,)):
@@ -129,8 +134,8 @@ def _clean(value):
 
 def records(frame: pd.DataFrame, columns: list[str], names: list[str] | None = None, digits: int = 6) -> list[dict]:
     """Rows as JSON-ready dicts (NaN -> null, floats rounded to ``digits``), keyed by ``names``
-    (default: the column names)."""
-    cols = [frame[c].tolist() for c in columns]
+    (default: the column names). ``frame`` may also be a mapping of column lists."""
+    cols = [frame[c].tolist() if isinstance(frame, pd.DataFrame) else list(frame[c]) for c in columns]
     keys = names or columns
     out = [{c: _clean(v) for c, v in zip(keys, row)} for row in zip(*cols)]
     if digits < 6:
@@ -139,6 +144,16 @@ def records(frame: pd.DataFrame, columns: list[str], names: list[str] | None = N
                 if isinstance(v, float):
                     row[k] = round(v, digits)
     return out
+
+
+def _columns(frame: pd.DataFrame) -> zip:
+    """(state_label, value, flag) of each row of a chart's frame, from column lists."""
+    return zip(*(frame[c].tolist() for c in ("state_label", "value", "flag")))
+
+
+def _js(text: str) -> str:
+    """A string literal for a Vega expression."""
+    return "'" + text.replace("\\", "\\\\").replace("'", "\\'") + "'"
 
 
 def _q(field_name: str, **extra) -> dict:
@@ -251,6 +266,25 @@ def _eras(eras: pd.DataFrame, lo: float, hi: float) -> tuple[list[dict], list[di
                "encoding": {"x": x, "y": {"value": -ERA_BAND / 2}, "text": _n("era_no"), "tooltip": tip}}
     columns = ["x", "x2", "parity", "era_label", "era_no", "chars"]
     return [{c: _clean(r[c]) for c in columns} for r in e], rects + [{"layer": [labels, numbers]}]
+
+
+class EraBands:
+    """A state's plan eras (``first_cycle``, ``last_cycle``, ``era_label``) as its charts draw them:
+    the bands and labels of :func:`_eras` worked out once per shown cycle range (every trend chart
+    of a state page shows the same cycles), and the key of :func:`era_key` once."""
+
+    def __init__(self, eras: pd.DataFrame):
+        self.frame = eras
+        self.empty = eras.empty
+        self.key = era_key(eras) if not eras.empty else ""
+        self._bands: dict[tuple[float, float], tuple[list[dict], list[dict]]] = {}
+
+    def at(self, lo: float, hi: float) -> tuple[list[dict], list[dict]]:
+        """:func:`_eras` between ``lo`` and ``hi`` (the same lists for every chart of that range:
+        a chart copies the list it extends and changes no layer)."""
+        if (lo, hi) not in self._bands:
+            self._bands[(lo, hi)] = _eras(self.frame, lo, hi)
+        return self._bands[(lo, hi)]
 
 
 def era_key(eras: pd.DataFrame) -> str:

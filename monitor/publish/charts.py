@@ -20,9 +20,9 @@ import numpy as np
 import pandas as pd
 
 from monitor.publish import formats as F
-from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, Style,
-                                      _eras, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis, _clean,
-                                      era_key, fmt_measure, records)
+from monitor.publish.chartkit import (BAND, FAINT, FLAG_CODES, GRID, INK, MUTED, NOT_FLAGGED, TOO_FEW, Chart, EraBands,
+                                      Style, _columns, _js, _n, _q, _rule, _signed_title, _spec, _tip, _cycle_axis,
+                                      _clean, fmt_measure, records)
 
 
 def histogram(chart_id: str, hist: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:
@@ -121,15 +121,15 @@ def distribution(chart_id: str, frame: pd.DataFrame, measure: str, label: str, s
     if len(few):
         desc += (f" On a row of their own, in grey: {len(few)} states with fewer than {min_districts} districts, "
                  "too few to flag.")
-    rows = [[r.state_label, fmt_measure(measure, r.value), r.flag] for r in f.sort_values("value", ascending=False).itertuples()]
+    rows = [[s, fmt_measure(measure, v), fl] for s, v, fl in _columns(f.sort_values("value", ascending=False))]
     return Chart(chart_id, f"{label} across states, {cycle}", desc, spec, ["state", label, "flag"], rows)
 
 
 def flagged_by_party(flagged: pd.DataFrame, style: Style) -> str:
     """``favouring Upland Party: Aa (A), Bb (B); favouring ...``: the flagged states of a chart,
     grouped by the party their flag favours (each party named once, not once per state)."""
-    groups = [(label, [r.state_label for r in flagged.itertuples() if r.flag == label])
-              for label in style.flag_domain()[:2]]
+    named = list(zip(flagged["state_label"].tolist(), flagged["flag"].tolist()))  # lists: no itertuples per chart
+    groups = [(label, [state for state, flag in named if flag == label]) for label in style.flag_domain()[:2]]
     return "; ".join(f"{label.replace('favours', 'favouring', 1)}: {', '.join(states)}" for label, states in groups if states)
 
 
@@ -165,13 +165,13 @@ def label_levels(frame: pd.DataFrame, labelled, width_px: float = 300.0, char_px
     return out
 
 
-def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, label: str, style: Style,
+def trend(chart_id: str, frame: pd.DataFrame, eras: EraBands, measure: str, label: str, style: Style,
           where: str, thresholds: list[dict] | None = None) -> Chart:
     """A measure of one state over all cycles: its 95% interval, its national-pool null band
     (where it is judged against one), flagged cycles marked, plan eras shaded and labelled.
 
     ``frame``: cycle, value, low, high, null_low, null_high, flagged, direction, certification.
-    ``eras``: first_cycle, last_cycle, era_label.
+    ``eras``: the state's plan eras (first_cycle, last_cycle, era_label).
     """
     # one chart per measure on every state page: plain lists, not frames
     columns = ["cycle", "value", "low", "high", "null_low", "null_high", "flag", "certification"]
@@ -181,7 +181,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     has_interval = any(not F.missing(v) for v in cols["low"])
     lo, hi = float(min(cols["cycle"])) - 1, float(max(cols["cycle"])) + 1
     x = _cycle_axis(lo, hi)
-    era_rows, era_layers = _eras(eras, lo, hi)
+    era_rows, era_layers = eras.at(lo, hi)
     layers = era_layers[:-1]
     if any(not F.missing(v) for v in cols["null_low"]):
         layers.append({"data": {"name": "values"}, "mark": {"type": "area", "color": BAND, "opacity": 0.6},
@@ -225,7 +225,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
     desc += ("Flagged at the national tails in " + ", ".join(f"{int(r[0])} ({r[6]})" for r in flagged) + "."
              if flagged else "Not flagged in any cycle.")
     if not eras.empty:
-        desc += " Plan eras (numbered in the band above the chart where a name does not fit): " + era_key(eras) + "."
+        desc += " Plan eras (numbered in the band above the chart where a name does not fit): " + eras.key + "."
     if lines:
         desc += " Dotted lines: thresholds proposed in the literature (proposals, not law)."
     rows = [[str(int(cycle)), fmt_measure(measure, value), fmt_measure(measure, low), fmt_measure(measure, high),
@@ -235,7 +235,7 @@ def trend(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, measure: str, 
                  ["cycle", label, "95% low", "95% high", "national-pool null (outer tails)", "flag", "results"], rows)
 
 
-def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, style: Style, where: str) -> Chart:
+def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: EraBands, style: Style, where: str) -> Chart:
     """Party a's vote share, seat share and expected seat share (national pool) over cycles.
 
     ``frame``: cycle, vote_share, seat_share, expected_share, expected_low, expected_high.
@@ -247,7 +247,7 @@ def seats_votes_time(chart_id: str, frame: pd.DataFrame, eras: pd.DataFrame, sty
     x = _cycle_axis(lo, hi)
     names = {"vote_share": f"{style.a.name} vote share", "seat_share": f"{style.a.name} seat share"}
     domain = list(names.values())
-    era_rows, era_layers = _eras(eras, lo, hi)
+    era_rows, era_layers = eras.at(lo, hi)
     layers = era_layers[:-1]
     if any(not F.missing(v) for v in f["expected_share"]):
         layers.append({"data": {"name": "seats"}, "mark": {"type": "area", "color": BAND, "opacity": 0.7},
@@ -299,8 +299,9 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     axis = {"format": ".0%"}
     xt, yt = f"{style.a.name} statewide share of the two-party vote", f"{style.a.name} seat share"
     x, y = _q("vote", title=xt), _q("seat_share", title=yt)
-    by = points.set_index("point")
-    obs, flip, even = by.loc["observed"], by.loc["flipped vote"], by.loc["even vote"]
+    pts = {c: points[c].tolist() for c in ("point", "vote", "seat_share", "seats", "districts")}  # lists, not frames
+    by = {row[0]: dict(zip(pts, row)) for row in zip(*pts.values())}
+    obs, flip, even = by["observed"], by["flipped vote"], by["even vote"]
     # The three points often lie within a point or two of each other near 50%: nested marks of
     # distinct shape, size and fill (filled one under open ones) stay visible when they coincide, and each
     # has a direct label. The even vote lies midway between the other two and the curve never
@@ -316,7 +317,7 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     sizes = {"domain": marks, "range": [300, 80, 130]}
     left, right = ("observed", "flipped vote") if obs["vote"] <= flip["vote"] else ("flipped vote", "observed")
     place = {left: ("right", -9, -9, "bottom"),
-             right: ("left", 9, 9, "top") if by.loc[right, "seat_share"] > 0.1 else ("left", 9, -9, "bottom"),
+             right: ("left", 9, 9, "top") if by[right]["seat_share"] > 0.1 else ("left", 9, -9, "bottom"),
              "even vote": ("center", 0, -22, "bottom") if even["seat_share"] < 0.88 else ("center", 0, 22, "top")}
 
     def label(name: str) -> list[dict]:
@@ -345,10 +346,11 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
     ] + [layer for name in marks for layer in label(name)]
     # drawing order: the large ring, then the filled diamond, then the open square over it (its
     # outline stays visible on the diamond when the two coincide)
-    points = points.assign(z=points["point"].map({"observed": 0, "flipped vote": 1, "even vote": 2}))
-    datasets = {"curve": records(curve.assign(line=lines[0]), ["vote", "seat_share", "line"]),
-                "points": records(points, ["point", "vote", "seat_share", "seats", "z"])}
-    n = int(points["districts"].iloc[0])
+    pts["z"] = [{"observed": 0, "flipped vote": 1, "even vote": 2}.get(p) for p in pts["point"]]
+    datasets = {"curve": records({"vote": curve["vote"].tolist(), "seat_share": curve["seat_share"].tolist(),
+                                  "line": [lines[0]] * len(curve)}, ["vote", "seat_share", "line"]),
+                "points": records(pts, ["point", "vote", "seat_share", "seats", "z"])}
+    n = int(pts["districts"][0])
     desc = (f"Seats-votes curve of {where} under uniform swing: every district's share shifted by the same amount. "
             f"Observed: {F.share(obs['vote'])} of the vote gave {style.a.name} {F.number(obs['seats'], 1)} of {n} seats. "
             f"With the vote flipped to {F.share(flip['vote'])}, {style.a.name} would win {F.number(flip['seats'], 1)} seats "
@@ -357,8 +359,8 @@ def swing_curve(chart_id: str, curve: pd.DataFrame, points: pd.DataFrame, style:
             "Marks: the stepped line is the curve and the dotted diagonal is seats equal to votes; the observed result "
             "is the large open circle, the flipped vote the small filled diamond and the even vote (50%) the open square, "
             "each labelled beside it.")
-    rows = _curve_rows(curve) + [[f"{r.point}: {F.share(r.vote)}", f"{F.share(r.seat_share)} ({F.number(r.seats, 1)} seats)"]
-                                 for r in points.itertuples()]
+    rows = _curve_rows(curve) + [[f"{p}: {F.share(v)}", f"{F.share(s)} ({F.number(won, 1)} seats)"]
+                                 for p, v, s, won in zip(pts["point"], pts["vote"], pts["seat_share"], pts["seats"])]
     return Chart(chart_id, "Seats-votes curve of the current plan", desc, _spec(layers, datasets, 260),
                  ["statewide vote share", "seat share"], rows)
 
@@ -417,14 +419,9 @@ def ranking(chart_id: str, frame: pd.DataFrame, measure: str, label: str, style:
     if len(few):
         desc += (f" Below them, apart and in grey: {len(few)} states with fewer than {min_districts} districts, "
                  "never flagged (a small delegation lands at the extremes easily).")
-    rows = [[str(i), r.state_label, fmt_measure(measure, r.value), r.flag] for i, r in enumerate(ranked.itertuples(), 1)]
-    rows += [["", r.state_label, fmt_measure(measure, r.value), r.flag] for r in few.itertuples()]
+    rows = [[str(i), s, fmt_measure(measure, v), fl] for i, (s, v, fl) in enumerate(_columns(ranked), 1)]
+    rows += [["", s, fmt_measure(measure, v), fl] for s, v, fl in _columns(few)]
     return Chart(chart_id, f"{label}, {chamber_label}, {cycle}", desc, spec, ["rank", "state", label, "flag"], rows)
-
-
-def _js(text: str) -> str:
-    """A string literal for a Vega expression."""
-    return "'" + text.replace("\\", "\\\\").replace("'", "\\'") + "'"
 
 
 def pool_seats(chart_id: str, frame: pd.DataFrame, style: Style, cycle: int, chamber_label: str) -> Chart:

@@ -132,8 +132,8 @@ class SiteData:
             keep &= u["cycle"].isin(cycles)
         ids = [int(i) for i in u.loc[keep, "unit_id"]]
         read = self._read_ahead
-        if read is not None and ids and read[1].issuperset(ids):
-            return read[0][read[0]["unit_id"].isin(ids)]
+        if read is not None and ids and read[1].keys() >= set(ids):
+            return read[0].take(sorted(row for i in set(ids) for row in read[1][i]))  # the rows in their read order
         return reduced_contests(self.db, unit_ids=ids)
 
     def read_ahead(self, units: list[tuple[int, str, str]]) -> None:
@@ -144,7 +144,14 @@ class SiteData:
         wanted = set(units)
         keep = [k in wanted for k in zip(u["cycle"].astype(int), u["state"], u["chamber"])]
         ids = [int(i) for i in u.loc[keep, "unit_id"]]
-        self._read_ahead = (reduced_contests(self.db, unit_ids=ids), set(ids)) if ids else None
+        if not ids:
+            self._read_ahead = None
+            return
+        read = reduced_contests(self.db, unit_ids=ids)
+        rows: dict[int, list[int]] = {i: [] for i in ids}  # each unit's rows, found once for every page
+        for row, unit in enumerate(read["unit_id"].tolist()):
+            rows.setdefault(unit, []).append(row)
+        self._read_ahead = (read, rows)
 
     @property
     def results(self) -> pd.DataFrame:
@@ -212,7 +219,7 @@ class SiteData:
 
     def headline(self) -> list[str]:
         if self._headline is None:
-            present = set(self.measures["measure"])
+            present = set(self.measures["measure"].unique().tolist())
             self._headline = [m for m in HEADLINE_MEASURES if m in present]
         return self._headline
 

@@ -36,20 +36,21 @@ class StatePage:
         where = f"{self.state_label(state)}, {d.chamber_label(chamber)}"
         units = self.by("units", ("state", "chamber"), (state, chamber))
         plans = self.by("plans", ("state", "chamber"), (state, chamber)).copy()
-        plans["era_label"] = [self.drawer(r.drawn_by, r.inferred) for r in plans.itertuples()]
+        plan_rows = self.records("plans", ("state", "chamber"), (state, chamber))
+        plans["era_label"] = [self.drawer(r.drawn_by, r.inferred) for r in plan_rows]
         current = self.by("unit_plans", ("state", "chamber"), (state, chamber)).tail(1)
         slug = "m"
         charts = []
-        eras = plans[["first_cycle", "last_cycle", "era_label"]]
+        eras = C.EraBands(plans[["first_cycle", "last_cycle", "era_label"]])  # drawn once per page
         for measure in d.headline():
-            frame = self._on_units(self._measure_frame(measure, state=state, chamber=chamber), units)
+            frame = self._on_units(self.lists("_mf", ("state", "chamber", "measure"), (state, chamber, measure),
+                                                ("cycle", *TREND_COLUMNS)), units)
             if all(F.missing(v) for v in frame["value"]):
                 continue
             lines = [t for t in d.thresholds if t.get("measure") == measure and applies(t, chamber)]
             charts.append(C.trend(f"{slug}-{measure}", frame, eras, measure, d.label(measure), self.style, where, lines))
         seats = self._seats_over_time(state, chamber, units)
-        seats_chart = C.seats_votes_time("seats-votes", seats, plans[["first_cycle", "last_cycle", "era_label"]],
-                                         self.style, where) if not seats.empty else None
+        seats_chart = C.seats_votes_time("seats-votes", seats, eras, self.style, where) if not seats.empty else None
         if seats_chart is not None:
             self._label_seats_votes(seats_chart)
         curve = self.by("curves", ("state", "chamber"), (state, chamber))
@@ -58,26 +59,27 @@ class StatePage:
         if not curve.empty:
             cycle = int(points["cycle"].iloc[0])
             swing = C.swing_curve("swing", curve, points, self.style, f"{where} ({cycle} results)")
-        events = self.by("events", ("state", "chamber"), (state, chamber))
+        events = self.records("events", ("state", "chamber"), (state, chamber))
         # a staggered chamber is judged as a whole chamber: its watch rows and standing are shown here
-        watch = pd.concat([self.by("watch", ("state", "chamber"), (state, chamber)),
-                           self.by("watch", ("state", "chamber"), (state, whole_code(chamber)))])
-        in_force, past = self.watch_split(watch)
-        past = past.iloc[sorted(range(len(past)), key=lambda i: -int((str(past["cycles"].iloc[i]).split() or ["0"])[0]))]  # newest first
+        watch = (self.records("watch", ("state", "chamber"), (state, chamber))
+                 + self.records("watch", ("state", "chamber"), (state, whole_code(chamber))))
+        in_force = [r for r in watch if self.plan_in_force(r.state, r.chamber) == r.plan_id]
+        past = sorted((r for r in watch if self.plan_in_force(r.state, r.chamber) != r.plan_id),
+                      key=lambda r: -int((str(r.cycles).split() or ["0"])[0]))  # newest first
         last = int(units["cycle"].max()) if len(units) else None
         return {
             "latest": last,
             "standing": (self.standing(last, state, chamber) or self.standing(last, state, whole_code(chamber)))
             if last is not None else None,
             "watch_past": self._watch_rows(past, root),
-            "era_key": C.era_key(plans.assign(era_label=plans["era_label"])) if len(plans) else "",
+            "era_key": eras.key,
             "state": self.state_label(state), "code": state, "chamber": d.chamber_label(chamber), "where": where,
             "chamber_code": chamber,
             "current_plan": self._plan_row(current.iloc[0]) if len(current) else None,
             "eras": [{"plan_id": r.plan_id, "first": int(r.first_cycle),
                       "last": "" if F.missing(r.last_cycle) else str(int(r.last_cycle)),
                       "drawn_by": self.drawer(r.drawn_by, r.inferred), "inferred": bool(r.inferred), "note": F.text(r.note),
-                      "source": F.text(r.source)} for r in plans.itertuples()],
+                      "source": F.text(r.source)} for r in plan_rows],
             "watch": self._watch_rows(in_force, root), "charts": charts, "seats_chart": seats_chart,
             "undefined": self._undefined_reasons(state, chamber) if not charts else [],
             "swing": swing, "swing_cycle": int(points["cycle"].iloc[0]) if not points.empty else None,
@@ -94,17 +96,17 @@ class StatePage:
         }
 
     @staticmethod
-    def _on_units(frame: pd.DataFrame, units: pd.DataFrame) -> dict[str, list]:
+    def _on_units(frame: dict[str, list], units: pd.DataFrame) -> dict[str, list]:
         """A trend chart's rows as column lists: one per unit of the state chamber (in ``units``'
         order), with its certification and this measure's columns (missing where the unit has no
-        row in ``frame``): a right merge on the unit keys, done with lists (one per chart on every
-        state page)."""
+        row in ``frame``, the measure's rows as column lists): a right merge on the unit keys, done
+        with lists (one per chart on every state page)."""
         cycles = units["cycle"].tolist()
-        at = dict(zip(frame["cycle"].tolist(), range(len(frame))))
+        at = dict(zip(frame["cycle"], range(len(frame["cycle"]))))
         take = [at.get(c) for c in cycles]
         out = {"cycle": cycles}
         for col in TREND_COLUMNS:
-            values = frame[col].tolist()
+            values = frame[col]
             out[col] = [np.nan if i is None else values[i] for i in take]
         out["certification"] = units["certification"].tolist()
         return out
@@ -127,17 +129,31 @@ class StatePage:
         national pool expects at that vote share (the pool conditions on the same vote share and
         counts the same districts), so that the band compares with the seat-share line. The shares
         are stored by the aggregates step (:func:`monitor.curves.seats_votes_series`)."""
-        series = self.by("seats_votes", ("state", "chamber"), (state, chamber))
-        if series.empty:
-            return pd.DataFrame()
-        out = series[["cycle", "vote_share", "seat_share"]].astype({"cycle": int}).reset_index(drop=True)
-        pool = self.by("pool", ("state", "chamber"), (state, chamber))
-        pool = pool.assign(expected_share=pool["expected_seats"] / pool["districts"],
-                           expected_low=pool["low"] / pool["districts"], expected_high=pool["high"] / pool["districts"])
-        out = out.merge(pool[["cycle", "expected_share", "expected_low", "expected_high"]], on="cycle", how="left")
-        for col in ("vote_share", "seat_share", "expected_share", "expected_low", "expected_high"):
-            out[col] = pd.to_numeric(out[col], errors="coerce").astype(float)
-        return out
+        series = self.by("_seats_votes", ("state", "chamber"), (state, chamber))
+        return series.drop(columns=["state", "chamber"]) if not series.empty else pd.DataFrame()
+
+    @property
+    def _seats_votes(self) -> pd.DataFrame:
+        """The stored shares of every unit beside the seat share its national pool expects (the
+        rows of :meth:`_seats_over_time`), worked out for all units at once, once per build."""
+        if not hasattr(self, "_seats_votes_cache"):
+            series = self.d.seats_votes
+            if series.empty:
+                self._seats_votes_cache = series
+                return series
+            out = series[["state", "chamber", "cycle", "vote_share", "seat_share"]].astype({"cycle": int})
+            pool = self.d.pool
+            pool = pool.assign(expected_share=pool["expected_seats"] / pool["districts"],
+                               expected_low=pool["low"] / pool["districts"],
+                               expected_high=pool["high"] / pool["districts"])
+            keys = ["state", "chamber", "cycle"]
+            out = out.reset_index(drop=True).merge(
+                pool[keys + ["expected_share", "expected_low", "expected_high"]].astype({"cycle": int}),
+                on=keys, how="left")
+            for col in ("vote_share", "seat_share", "expected_share", "expected_low", "expected_high"):
+                out[col] = pd.to_numeric(out[col], errors="coerce").astype(float)
+            self._seats_votes_cache = out
+        return self._seats_votes_cache
 
     def _label_seats_votes(self, chart) -> None:
         """Say in the seats-and-votes chart's table and text which shares its lines are."""
@@ -150,23 +166,26 @@ class StatePage:
 
     def _measure_table(self, state: str, chamber: str, units: pd.DataFrame) -> dict:
         d = self.d
-        m = self.by("measures", ("state", "chamber"), (state, chamber))
-        stored = set(m["measure"].tolist())
+        m = self.lists("measures", ("state", "chamber"), (state, chamber),
+                       ("cycle", "measure", "value", "p_value", "reason"))
+        stored = set(m["measure"])
         present = [name for name in TABLE_MEASURES if name in stored]
+        shown = set(present)
         cells: dict[tuple, str] = {}
-        for cycle, name, value, p, reason in zip(*(m[c].tolist() for c in ("cycle", "measure", "value", "p_value", "reason"))):
-            if name not in present:
+        for cycle, name, value, p, reason in zip(*(m[c] for c in ("cycle", "measure", "value", "p_value", "reason"))):
+            if name not in shown:
                 continue
             if F.missing(value):
                 text = f"{F.DASH} ({self.words.plain(reason)})" if isinstance(reason, str) else F.DASH
             else:
                 text = self.measure_value(name, value) + ("" if F.missing(p) else f" (p {F.pvalue(p)})")
             cells[(int(cycle), name)] = text
-        pool = self.by("pool", ("state", "chamber"), (state, chamber))
-        excess = {int(c): self.words.stake(x).text for c, x in zip(pool["cycle"].tolist(), pool["excess_seats"].tolist())}
-        flagged = self.by("tails", ("state", "chamber"), (state, chamber))
+        pool = self.lists("pool", ("state", "chamber"), (state, chamber), ("cycle", "excess_seats"))
+        excess = {int(c): self.words.stake(x).text for c, x in zip(pool["cycle"], pool["excess_seats"])}
+        flagged = self.lists("tails", ("state", "chamber"), (state, chamber),
+                             ("cycle", "measure", "flagged", "direction"))
         flags: dict[int, list[str]] = {}
-        for cycle, name, flag, direction in zip(*(flagged[c].tolist() for c in ("cycle", "measure", "flagged", "direction"))):
+        for cycle, name, flag, direction in zip(*(flagged[c] for c in ("cycle", "measure", "flagged", "direction"))):
             if flag == 1:
                 flags.setdefault(int(cycle), []).append(f"{d.label(name)} ({self.party(direction)})")
         rows = []
@@ -189,13 +208,12 @@ class StatePage:
     def _coverage(self, state: str, chamber: str) -> list[dict]:
         """Each cycle's coverage, newest first: what the measures cover, what is missing or left
         out and why, and whether the unit is below flags.min_coverage (never flagged)."""
-        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
-        gaps = self.by("coverage_gaps", ("state", "chamber"), (state, chamber))
+        cov = self._coverage_lists(state, chamber)
+        gaps = self.lists("coverage_gaps", ("state", "chamber"), (state, chamber), ("cycle", "district", "seats", "gap", "reason"))
         by_cycle: dict[int, list[tuple]] = {}  # each cycle's gaps, in their stored order
-        for cycle, *gap in zip(*(gaps[c].tolist() for c in ("cycle", "district", "seats", "gap", "reason"))):
+        for cycle, *gap in zip(*gaps.values()):
             by_cycle.setdefault(int(cycle), []).append(gap)
-        columns = list(cov.columns)
-        records = [dict(zip(columns, row)) for row in zip(*(cov[c].tolist() for c in columns))]
+        records = [dict(zip(cov, row)) for row in zip(*cov.values())]
         rows = []
         for r in sorted(records, key=lambda r: r["cycle"], reverse=True):
             cycle = int(r["cycle"])
@@ -210,25 +228,29 @@ class StatePage:
             })
         return rows
 
+    def _coverage_lists(self, state: str, chamber: str) -> dict[str, list]:
+        """The coverage rows of a state chamber, every column as a list."""
+        return self.lists("coverage", ("state", "chamber"), (state, chamber), tuple(self.d.coverage.columns))
+
     def _vote_headline(self, state: str, chamber: str) -> dict | None:
         """The latest cycle's two vote shares of party a, each named: as cast and after the policy."""
-        cov = self.by("coverage", ("state", "chamber"), (state, chamber))
-        if cov.empty:
+        cov = self._coverage_lists(state, chamber)
+        if not cov["cycle"]:
             return None
-        r = cov.sort_values("cycle").iloc[-1]
+        latest = max(range(len(cov["cycle"])), key=cov["cycle"].__getitem__)
+        r = {c: values[latest] for c, values in cov.items()}
         return {"cycle": int(r["cycle"]), "as_cast": F.share(r["vote_share_as_cast"]),
                 "after_policy": F.share(r["vote_share_after_policy"]), "policy": self.d.policy,
                 "differ": F.share(r["vote_share_as_cast"]) != F.share(r["vote_share_after_policy"])}
 
     def _corrections(self, state: str, chamber: str) -> list[dict]:
         """The corrections of this state and chamber, newest first, with what each changed."""
-        c = self.d.corrections
-        c = c[(c["state"] == state) & (c["chamber"] == chamber)]
+        c = self.records("corrections", ("state", "chamber"), (state, chamber))
         return [{"cycle": int(r.cycle), "load": f"#{int(r.load_id)}", "file_name": r.file_name,
                  "at": F.stamp(parse_time(r.loaded_at)),
                  "changes": [self.words.change(c) for c in r.changes] or ["no difference found"],
                  "basis": r.basis, "superseded": f"#{int(r.old_load_id)}"}
-                for r in c.sort_values(["load_id", "cycle"], ascending=False).itertuples()]
+                for r in sorted(c, key=lambda r: (r.load_id, r.cycle), reverse=True)]
 
     def _results(self, state: str, chamber: str, cycles=None) -> list[dict]:
         """Each cycle's district results (of ``cycles`` only, when given), newest first, each in

@@ -6,6 +6,8 @@ formatted here with :mod:`monitor.publish.formats`.
 
 from __future__ import annotations
 
+from collections import namedtuple
+
 import numpy as np
 import pandas as pd
 
@@ -66,6 +68,34 @@ class Views(StatePage, Standing):
         start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
         return grouped.iloc[start:end]
 
+    def lists(self, name: str, keys: tuple[str, ...], key, columns: tuple[str, ...]) -> dict[str, list]:
+        """The ``columns`` of the rows of :meth:`by` as one list each (each column of a frame turned
+        into a list once per build): what a page reads many values of, without slicing a frame."""
+        if (name, keys, "lists") not in self._splits:
+            self.by(name, keys, key)  # splits the frame
+            self._splits[(name, keys, "lists")] = {}
+        whole = self._splits[(name, keys, "lists")]
+        grouped, spans = self._splits[(name, keys)]
+        start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
+        for c in columns:
+            if c not in whole:
+                whole[c] = grouped[c].tolist()
+        return {c: whole[c][start:end] for c in columns}
+
+    def records(self, name: str, keys: tuple[str, ...], key) -> list:
+        """The rows of :meth:`by` as plain named tuples (as ``itertuples`` gives them, without the
+        index), each frame turned into tuples once per build, so that a page reads lists, not frames."""
+        if (name, keys, "records") not in self._splits:
+            self.by(name, keys, key)  # splits the frame
+            grouped, spans = self._splits[(name, keys)]
+            columns = list(grouped.columns)
+            row = namedtuple("Row", columns, rename=True)
+            rows = [row._make(r) for r in zip(*(grouped[c].tolist() for c in columns))]
+            self._splits[(name, keys, "records")] = (rows, spans)
+        rows, spans = self._splits[(name, keys, "records")]
+        start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
+        return rows[start:end]
+
     def _headline_frame(self) -> pd.DataFrame:
         """The headline measures with their tails judgement (flag, direction, null band)."""
         d = self.d
@@ -109,20 +139,24 @@ class Views(StatePage, Standing):
     # --- provenance -------------------------------------------------------------------------
     def provenance(self, load_ids=None) -> dict:
         """The loads behind a page (all loads when ``load_ids`` is None): what the footer shows."""
-        loads = self.d.loads[self.d.loads["outcome"] == "loaded"]
-        if load_ids is not None:
-            loads = loads[loads["id"].isin({int(i) for i in load_ids})]
-        rows = [{"id": int(r.id), "file_name": r.file_name, "source": F.text(r.source), "loaded_at": r.loaded_at,
-                 "sha256": r.sha256, "short": r.sha256[:12]} for r in loads.itertuples()]
-        times = [t for t in (parse_time(r["loaded_at"]) for r in rows) if t is not None]
+        if not hasattr(self, "_loaded_cache"):  # every loaded file in words, once per build
+            loads = self.d.loads[self.d.loads["outcome"] == "loaded"]
+            rows = [{"id": int(i), "file_name": name, "source": F.text(source), "loaded_at": at,
+                     "sha256": sha, "short": sha[:12]}
+                    for i, name, source, at, sha in zip(*(loads[c].tolist() for c in
+                                                          ("id", "file_name", "source", "loaded_at", "sha256")))]
+            self._loaded_cache = (rows, {r["id"]: k for k, r in enumerate(rows)},
+                                  [parse_time(r["loaded_at"]) for r in rows])
+        loaded, at, stamps = self._loaded_cache
+        keep = range(len(loaded)) if load_ids is None else sorted({at[i] for i in {int(i) for i in load_ids} if i in at})
+        rows = [dict(loaded[k]) for k in keep]
+        times = [t for t in (stamps[k] for k in keep) if t is not None]
         return {"loads": rows, "count": len(rows), "latest": rows[-1] if rows else None,
                 "first_day": F.day(min(times, default=None)), "last_day": F.day(max(times, default=None)),
                 "as_of": F.stamp(max(times, default=None))}
 
     # --- shared pieces ------------------------------------------------------------------------
-    def _measure_frame(self, measure: str, cycle=None, state=None, chamber=None) -> pd.DataFrame:
-        if state is not None:
-            return self.by("_mf", ("state", "chamber", "measure"), (state, chamber, measure))
+    def _measure_frame(self, measure: str, cycle: int, chamber: str) -> pd.DataFrame:
         return self.by("_mf", ("cycle", "chamber", "measure"), (cycle, chamber, measure))
 
     def _watch_rows(self, watch: pd.DataFrame, root: str) -> list[dict]:
@@ -131,7 +165,7 @@ class Views(StatePage, Standing):
         rows = []
         unofficial, incomplete = self._unofficial_units, self._incomplete_units
         w = self.words
-        for r in watch.itertuples():
+        for r in (watch.itertuples() if isinstance(watch, pd.DataFrame) else watch):
             cycles = str(r.cycles or "").split()
             stake = w.stake(r.seats_at_stake)
             rows.append({
@@ -175,14 +209,21 @@ class Views(StatePage, Standing):
             self._pairs_cache = set(self.d.pairs())
         return self._pairs_cache
 
-    def _events(self, events: pd.DataFrame, root: str) -> list[dict]:
-        rows = []
-        for e in events.sort_values("id", ascending=False).itertuples():
+    def _events(self, events: list, root: str) -> list[dict]:
+        """Flag events (rows of :meth:`records`) in words, newest first."""
+        rows, stamps, places = [], {}, {}  # a page's events share a few times and one place: each said once
+        for e in sorted(events, key=lambda e: -e.id):
+            if e.at not in stamps:
+                stamps[e.at] = F.stamp(parse_time(e.at))
+            place = (e.state, e.chamber)
+            if place not in places:
+                places[place] = (self.state_label(e.state), self.d.chamber_short(e.chamber),
+                                 root + self.state_path(*place) if place in self._pairs else None)
+            state, chamber, href = places[place]
             rows.append({
-                "id": int(e.id), "at": F.stamp(parse_time(e.at)), "scope": e.scope, "event": e.event,
+                "id": int(e.id), "at": stamps[e.at], "scope": e.scope, "event": e.event,
                 "cycle": "" if F.missing(e.cycle) else str(int(e.cycle)),
-                "state": self.state_label(e.state), "chamber": self.d.chamber_short(e.chamber),
-                "href": root + self.state_path(e.state, e.chamber) if (e.state, e.chamber) in self._pairs else None,
+                "state": state, "chamber": chamber, "href": href,
                 "plan_id": F.text(e.plan_id), "measure": self.d.label(e.measure) if F.text(e.measure) else "",
                 "favours": self.party(e.direction), "why": self.words.why(e.why),
                 "load": "" if F.missing(e.load_id) else f"#{int(e.load_id)}",
