@@ -36,7 +36,7 @@ from monitor.pool import (
 )
 from monitor.pool.proposal import LAST_FLOOR
 from monitor.pool.sampler import LAST_MAX_N, _inverse_cdf, guide_table
-from monitor.pool.seats import _stable_rows_order, _weighted_midrank, _weighted_quantile
+from monitor.pool.seats import _stable_rows_order, _weighted_midrank, _weighted_quantiles
 
 Z_MAX = 4.0
 
@@ -576,7 +576,7 @@ def test_weighted_helpers_against_reference_libraries():
         want = stats.percentileofscore(v[seg == s], ref[s], kind="mean") / 100
         assert pct[s] == pytest.approx(want)
     for q in (0.025, 0.3, 0.5, 0.975):
-        got = _weighted_quantile(v, w, seg, 5, q)
+        got = _weighted_quantiles(v, w, seg, 5, (q,))[0]
         for s in range(5):
             want = np.quantile(v[seg == s], q, method="inverted_cdf", weights=w[seg == s])
             assert got[s] == want
@@ -604,7 +604,7 @@ def test_quantiles_of_equal_segments_against_numpy():
     seg = np.repeat(np.arange(6), 250)
     v, w = np.round(g.normal(size=seg.size), 2), g.random(seg.size)
     for q in (0.025, 0.5, 0.975):
-        got = _weighted_quantile(v, w, seg, 6, q)
+        got = _weighted_quantiles(v, w, seg, 6, (q,))[0]
         for s in range(6):
             assert got[s] == np.quantile(v[seg == s], q, method="inverted_cdf", weights=w[seg == s])
 

@@ -339,6 +339,12 @@ class _UnitDraws:
     tilt: float = 0.0
     tilt_share: float = np.nan
 
+    @classmethod
+    def none(cls, index_type, proposed: int = 0, tilt: float = 0.0, tilt_share: float = np.nan) -> "_UnitDraws":
+        """No kept draw (the target out of reach, or none of ``proposed`` landed in the window)."""
+        return cls(np.empty(0, index_type), np.empty(0), np.empty(0), np.empty(0), proposed, 0, np.nan, tilt,
+                   tilt_share)
+
 
 def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol: float, accepted: int,
                max_draws: int, stream) -> _UnitDraws:
@@ -357,7 +363,7 @@ def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol:
         a_el, n_el = group.a[eligible], group.n[eligible]
         prop = _tilted_proposal(a_el, n_el, a_el / n_el, v, tol, tilt=N > 1)
     if prop is None:
-        return _UnitDraws(np.empty(0, group.index_type), np.empty(0), np.empty(0), np.empty(0))
+        return _UnitDraws.none(group.index_type)
     t, lam, y_el, q = prop
     a, n, seat = group.a, group.n, group.seat
     y = np.zeros(a.size)
@@ -401,8 +407,7 @@ def _draw_unit(group: _GroupArrays, eligible: np.ndarray, N: int, v: float, tol:
             kept_share.append(sh[ok])
             kept_seats.append(seat[jk].sum(axis=1))
     if not got:
-        return _UnitDraws(np.empty(0, group.index_type), np.empty(0), np.empty(0), np.empty(0), done, 0, np.nan,
-                          lam, t)
+        return _UnitDraws.none(group.index_type, done, lam, t)
     logw = np.concatenate(kept_logw)
     w = np.exp(logw - logw.max())
     w /= w.sum()

@@ -82,17 +82,13 @@ def _stable_rows_order(m: np.ndarray) -> np.ndarray:
     return (order + np.arange(0, rows * n, n)[:, None]).ravel()
 
 
-def _weighted_quantile(values, weights, seg, n_seg, q):
-    """Per segment, the smallest value whose weighted CDF reaches ``q`` (inverse CDF).
+def _weighted_quantiles(values, weights, seg, n_seg, qs):
+    """Per segment and for each ``q`` of ``qs``, the smallest value whose weighted CDF reaches
+    ``q`` (inverse CDF), from one sort of the values.
 
     ``values`` must be free of NaN; segments with zero total weight give NaN.  The inverse-CDF
     rule returns an observed value, which suits discrete quantities such as seats.
     """
-    return _weighted_quantiles(values, weights, seg, n_seg, (q,))[0]
-
-
-def _weighted_quantiles(values, weights, seg, n_seg, qs):
-    """:func:`_weighted_quantile` at each of ``qs``, from one sort of the values."""
     out = [np.full(n_seg, np.nan) for _ in qs]
     live = weights > 0
     if not live.any():

@@ -287,10 +287,14 @@ def gzip_member(content: bytes) -> bytes:
     return gzip.compress(content, compresslevel=GZIP_LEVEL, mtime=0)
 
 
+def _stem(name: str) -> str:
+    """A resource's file name stem (``flagged-units`` -> ``flagged_units``)."""
+    return name.replace("-", "_")
+
+
 def csv_path(name: str) -> str:
     """A resource's CSV file name inside the downloads folder."""
-    base = name.replace("-", "_")
-    return f"{base}.csv.gz" if name in COMPRESSED else f"{base}.csv"
+    return f"{_stem(name)}.csv.gz" if name in COMPRESSED else f"{_stem(name)}.csv"
 
 
 def downloads(data: SiteData, prefix: str = "downloads") -> tuple[dict[str, bytes], list[dict]]:
@@ -349,7 +353,7 @@ def _file(data: SiteData, spec: dict, kind: str, reuse, path: str, parts: dict[i
     head = _sha(repr((fields, packed)).encode())
     if reuse is not None and reuse.keep(path, _sha(f"{head}|{sorted(parts.items())}".encode())):
         return KEPT
-    base = spec["name"].replace("-", "_")
+    base = _stem(spec["name"])
     rows = _csv_rows if kind == "csv" else _json_lines
 
     def encode(cycle: int) -> bytes:
@@ -378,7 +382,7 @@ def iter_downloads(data: SiteData, prefix: str, listing: list[dict], reuse=None)
     lines are read one cycle at a time)."""
     resources = []
     for spec in RESOURCES:
-        base = spec["name"].replace("-", "_")
+        base = _stem(spec["name"])
         packed = spec["name"] in COMPRESSED
         parts = _by_cycle(data, spec) if reuse is not None or packed else None
         kinds = ("csv",) if spec["name"] in CSV_ONLY else ("csv", "json")
