@@ -9,6 +9,7 @@ derived rows): nothing here is a check value from outside; the reference is the 
 from __future__ import annotations
 
 import os
+import threading
 from pathlib import Path
 
 import pytest
@@ -66,3 +67,25 @@ def test_a_second_process_only_when_a_second_cpu_is_idle(monkeypatch):
     monkeypatch.setattr(os, "sched_getaffinity", lambda pid: {0})
     monkeypatch.setattr(os, "getloadavg", lambda: (0.0, 0.0, 0.0))
     assert workers.default_workers() == 1
+
+
+def test_no_worker_is_forked_while_another_thread_runs():
+    # the watcher's scheduler runs a build in a thread of its own: a fork there could copy a lock
+    # another thread holds, so the pages are rendered in the build's own process
+    items = list(range(workers.MIN_PAGES + 1))
+    with workers.Farm(lambda i: i * i, items, workers=2) as alone:
+        forked_alone = alone.pool is not None
+        assert dict(alone.finish()) == {i: i * i for i in items}
+    stop = threading.Event()
+    other = threading.Thread(target=stop.wait)
+    other.start()
+    try:
+        with workers.Farm(lambda i: i * i, items, workers=2) as busy:
+            assert busy.pool is None
+            assert dict(busy.finish()) == {i: i * i for i in items}
+    finally:
+        stop.set()
+        other.join()
+    if "fork" in __import__("multiprocessing").get_all_start_methods():
+        assert forked_alone  # the same call forks when the build is the only thread
+

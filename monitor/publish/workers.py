@@ -8,14 +8,19 @@ renders the other files (home, cycle pages, downloads). When the build is done w
 takes back the chunks no worker has started and renders them itself, then gathers the workers'
 pages. Each page is rendered by the same code on the same data whichever process renders it.
 
-Only where ``fork`` exists (Linux, macOS); elsewhere, with one worker, or with few pages, every
-page is rendered in the build's own process.
+Only where ``fork`` exists (Linux, macOS) and the build's process runs no other thread; elsewhere,
+with one worker, or with few pages, every page is rendered in the build's own process. A fork
+copies only the forking thread, with every lock as it was at that instant: a lock another thread
+held (the watcher's scheduler runs the build in a thread of its own) would stay held for ever in
+the worker. So the service renders its pages in one process; ``levelfield publish`` and
+``watch --once`` may fork.
 """
 
 from __future__ import annotations
 
 import multiprocessing
 import os
+import threading
 from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import Future, ProcessPoolExecutor
 
@@ -46,6 +51,11 @@ def default_workers() -> int:
     return 2 if load < cpus - 0.5 else 1
 
 
+def _may_fork() -> bool:
+    """Whether worker processes may be forked from here: ``fork`` exists and no other thread runs."""
+    return "fork" in multiprocessing.get_all_start_methods() and threading.active_count() == 1
+
+
 def _run(chunk: Sequence) -> list:
     render, setup = _TASK["render"], _TASK["setup"]
     if _TASK.get("pid") != os.getpid():  # first chunk in this worker
@@ -66,7 +76,7 @@ class Farm:
         self.items = list(items)
         self.futures: list[tuple[list, Future]] = []
         self.pool = None
-        if workers > 1 and len(self.items) >= MIN_PAGES and "fork" in multiprocessing.get_all_start_methods():
+        if workers > 1 and len(self.items) >= MIN_PAGES and _may_fork():
             _TASK.update(render=render, setup=setup, pid=os.getpid())
             self.pool = ProcessPoolExecutor(workers - 1, mp_context=multiprocessing.get_context("fork"))
             for start in range(0, len(self.items), CHUNK):
