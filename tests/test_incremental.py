@@ -26,9 +26,10 @@ from monitor.verify import verify_store
 from monitor.workspace import Workspace
 
 
-@pytest.fixture(scope="module")
-def history(tmp_path_factory):
-    root = tmp_path_factory.mktemp("incremental")
+def _computed_store(root: Path, loaded: int | None = None):
+    """The benchmark's invented federation (3 states, 2 cycles and a new one) written under
+    ``root``, its first ``loaded`` files (all by default) loaded, prepared and recomputed in a
+    workspace there: ``(ws, db, config, files)``."""
     data = root / "data"
     summary = synthetic.generate(data, states=3, cycles=2, new_cycles=1)
     ws = Workspace(root / "ws")
@@ -36,10 +37,17 @@ def history(tmp_path_factory):
     (ws.root / "levelfield.toml").write_text((data / "levelfield.toml").read_text(), encoding="utf-8")
     db, config = ws.open_store(), ws.config()
     files = [Path(p) for p in summary["files"]]
-    for path in files[:2]:
+    for path in files[:loaded]:
         load_file(db, path, config)
     pipeline.prepare(db, config)
     pipeline.recompute(db, config)
+    return ws, db, config, files
+
+
+@pytest.fixture(scope="module")
+def history(tmp_path_factory):
+    root = tmp_path_factory.mktemp("incremental")
+    ws, db, config, files = _computed_store(root, loaded=2)
     return {"root": root, "ws": ws, "db": db, "config": config, "files": files}
 
 
@@ -204,17 +212,7 @@ def test_a_changed_groups_incremental_flags_equal_flags_from_scratch(tmp_path):
     import store
     from monitor.flags import run_flags
 
-    data = tmp_path / "data"
-    summary = synthetic.generate(data, states=3, cycles=2, new_cycles=1)
-    ws = Workspace(tmp_path / "ws")
-    ws.ensure()
-    (ws.root / "levelfield.toml").write_text((data / "levelfield.toml").read_text(), encoding="utf-8")
-    db, config = ws.open_store(), ws.config()
-    files = [Path(p) for p in summary["files"]]
-    for path in files:
-        load_file(db, path, config)
-    pipeline.prepare(db, config)
-    pipeline.recompute(db, config)
+    _, db, config, files = _computed_store(tmp_path)
     path, state, chamber = scenarios.corrected_file(files[1], tmp_path / "fix.csv", chamber="state_lower")
     load_file(db, path, config)
     pipeline.prepare(db, config)
