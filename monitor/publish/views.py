@@ -51,6 +51,12 @@ class Views(StatePage, Standing):
     def by(self, name: str, keys: tuple[str, ...], key) -> pd.DataFrame:
         """Rows of frame ``name`` (a SiteData frame, or ``_mf``) whose ``keys`` equal ``key``;
         each frame is split once, so a page costs a lookup, not a scan."""
+        grouped, spans = self._split(name, keys)
+        start, end = _span(spans, key)
+        return grouped.iloc[start:end]
+
+    def _split(self, name: str, keys: tuple[str, ...]) -> tuple[pd.DataFrame, dict]:
+        """Frame ``name``'s rows grouped by ``keys`` and each group's (start, end), made once."""
         if (name, keys) not in self._splits:
             frame = getattr(self, name) if name.startswith("_") else getattr(self.d, name)
             # the rows grouped (each group's rows in the frame's order, as a groupby gives them;
@@ -64,19 +70,14 @@ class Views(StatePage, Standing):
             spans = {k: (end - len(p), end) for (k, p), end in zip(positions.items(), ends)}
             grouped = frame.take([i for p in positions.values() for i in p])
             self._splits[(name, keys)] = (grouped, spans)
-        grouped, spans = self._splits[(name, keys)]
-        start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
-        return grouped.iloc[start:end]
+        return self._splits[(name, keys)]
 
     def lists(self, name: str, keys: tuple[str, ...], key, columns: tuple[str, ...]) -> dict[str, list]:
         """The ``columns`` of the rows of :meth:`by` as one list each (each column of a frame turned
         into a list once per build): what a page reads many values of, without slicing a frame."""
-        if (name, keys, "lists") not in self._splits:
-            self.by(name, keys, key)  # splits the frame
-            self._splits[(name, keys, "lists")] = {}
-        whole = self._splits[(name, keys, "lists")]
-        grouped, spans = self._splits[(name, keys)]
-        start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
+        grouped, spans = self._split(name, keys)
+        whole = self._splits.setdefault((name, keys, "lists"), {})
+        start, end = _span(spans, key)
         for c in columns:
             if c not in whole:
                 whole[c] = grouped[c].tolist()
@@ -85,16 +86,13 @@ class Views(StatePage, Standing):
     def records(self, name: str, keys: tuple[str, ...], key) -> list:
         """The rows of :meth:`by` as plain named tuples (as ``itertuples`` gives them, without the
         index), each frame turned into tuples once per build, so that a page reads lists, not frames."""
+        grouped, spans = self._split(name, keys)
         if (name, keys, "records") not in self._splits:
-            self.by(name, keys, key)  # splits the frame
-            grouped, spans = self._splits[(name, keys)]
             columns = list(grouped.columns)
             row = namedtuple("Row", columns, rename=True)
-            rows = [row._make(r) for r in zip(*(grouped[c].tolist() for c in columns))]
-            self._splits[(name, keys, "records")] = (rows, spans)
-        rows, spans = self._splits[(name, keys, "records")]
-        start, end = spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
-        return rows[start:end]
+            self._splits[(name, keys, "records")] = [row._make(r) for r in zip(*(grouped[c].tolist() for c in columns))]
+        start, end = _span(spans, key)
+        return self._splits[(name, keys, "records")][start:end]
 
     def _headline_frame(self) -> pd.DataFrame:
         """The headline measures with their tails judgement (flag, direction, null band)."""
@@ -486,3 +484,9 @@ def _setting(value, name: str = "") -> str:
                     for state, count in states.items()]
         return "; ".join(e for chamber, states in value.items() for e in entries(chamber, states)) or "none"
     return str(value)
+
+
+def _span(spans: dict, key) -> tuple[int, int]:
+    """Where the group ``key`` (a tuple, or one value) lies in a split frame; (0, 0) when absent."""
+    return spans.get(key if isinstance(key, tuple) else (key,), (0, 0))
+
